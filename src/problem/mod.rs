@@ -1,0 +1,617 @@
+//! The planning problem: TOML schema, validation, candidate generation and
+//! link sets.
+
+mod plan_file;
+mod raw;
+
+pub use plan_file::read_link_set;
+
+use crate::error::{InputError, line_of};
+use crate::signal::{Log, TimeDomain, Window, WindowKind, parse_log, windows};
+use raw::{RawLink, RawProblem};
+use rayon::prelude::*;
+use std::collections::{BTreeMap, HashMap};
+use std::path::{Path, PathBuf};
+use toml::Spanned;
+
+/// Index of a unit in [`Problem::nodes`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct NodeId(pub u32);
+
+/// Index of a candidate link in [`Problem::links`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct LinkId(pub u32);
+
+impl NodeId {
+    /// The index as `usize`.
+    pub fn index(self) -> usize {
+        self.0 as usize
+    }
+}
+
+impl LinkId {
+    /// The index as `usize`.
+    pub fn index(self) -> usize {
+        self.0 as usize
+    }
+}
+
+/// Estimator gains (DESIGN §2).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Gains {
+    /// γ_c, flow gain.
+    pub flow_gain: f64,
+    /// γ_d, jump gain.
+    pub jump_gain: f64,
+    /// κ, flow coupling.
+    pub flow_coupling: f64,
+    /// δ, jump coupling.
+    pub jump_coupling: f64,
+    /// Default arc weight a_ik of a link.
+    pub link_weight: f64,
+}
+
+impl Default for Gains {
+    fn default() -> Self {
+        Gains {
+            flow_gain: 1.0,
+            jump_gain: 1.0,
+            flow_coupling: 1.0,
+            jump_coupling: 0.2,
+            link_weight: 1.0,
+        }
+    }
+}
+
+/// A field unit with its recorded log.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Node {
+    /// The unit's name in the problem file.
+    pub id: String,
+    /// Its validated regressor log.
+    pub log: Log,
+    /// Position in km, when given.
+    pub position: Option<[f64; 2]>,
+}
+
+/// The ends of a link.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Ends {
+    /// Each end listens to the other.
+    TwoWay(NodeId, NodeId),
+    /// `to` listens to `from`.
+    OneWay {
+        /// The talking end.
+        from: NodeId,
+        /// The listening end.
+        to: NodeId,
+    },
+}
+
+/// A candidate link.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Link {
+    /// The link's id (given, or made from its ends).
+    pub id: String,
+    /// Its ends and direction.
+    pub ends: Ends,
+    /// Cost to install.
+    pub cost: f64,
+    /// Arc weight a_ik.
+    pub weight: f64,
+    /// Already in place.
+    pub installed: bool,
+    /// Made by the `[candidates]` rule rather than written out.
+    pub generated: bool,
+}
+
+/// A directed arc `from → to` ("`to` listens to `from`").
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Arc {
+    /// Talking unit.
+    pub from: NodeId,
+    /// Listening unit.
+    pub to: NodeId,
+    /// Weight a_{to,from}.
+    pub weight: f64,
+}
+
+impl Link {
+    /// The one or two arcs of the link.
+    pub fn arcs(&self) -> impl Iterator<Item = Arc> + '_ {
+        let (a, b, two) = match self.ends {
+            Ends::TwoWay(a, b) => (a, b, true),
+            Ends::OneWay { from, to } => (from, to, false),
+        };
+        let w = self.weight;
+        std::iter::once(Arc {
+            from: a,
+            to: b,
+            weight: w,
+        })
+        .chain(two.then_some(Arc {
+            from: b,
+            to: a,
+            weight: w,
+        }))
+    }
+}
+
+/// A chosen set of candidate links (sorted, no repeats).
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub struct LinkSet(Vec<LinkId>);
+
+impl LinkSet {
+    /// A link set from any ids (sorted and de-duplicated).
+    pub fn new(mut ids: Vec<LinkId>) -> Self {
+        ids.sort();
+        ids.dedup();
+        LinkSet(ids)
+    }
+
+    /// The ids in increasing order.
+    pub fn ids(&self) -> &[LinkId] {
+        &self.0
+    }
+}
+
+/// A validated planning problem.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Problem {
+    /// The problem file.
+    pub path: PathBuf,
+    /// Network name.
+    pub name: String,
+    /// Parameter dimension p.
+    pub parameters: usize,
+    /// Excitation window length T.
+    pub window: f64,
+    /// How window length is measured.
+    pub window_kind: WindowKind,
+    /// Stride between window starts, when given.
+    pub stride: Option<f64>,
+    /// Required excitation μ_req, when given.
+    pub min_excitation: Option<f64>,
+    /// Required convergence rate (1/s), when given.
+    pub target_rate: Option<f64>,
+    /// Estimator gains.
+    pub gains: Gains,
+    /// Units.
+    pub nodes: Vec<Node>,
+    /// Candidate links.
+    pub links: Vec<Link>,
+    /// Common hybrid time domain of all logs.
+    pub domain: TimeDomain,
+    /// Excitation windows.
+    pub windows: Vec<Window>,
+}
+
+impl Problem {
+    /// Number of units.
+    pub fn n(&self) -> usize {
+        self.nodes.len()
+    }
+
+    /// Looks a unit up by name.
+    pub fn node_id(&self, name: &str) -> Option<NodeId> {
+        self.nodes
+            .iter()
+            .position(|n| n.id == name)
+            .map(|k| NodeId(k as u32))
+    }
+
+    /// The unit's name.
+    pub fn node_name(&self, id: NodeId) -> &str {
+        &self.nodes[id.index()].id
+    }
+
+    /// The link.
+    pub fn link(&self, id: LinkId) -> &Link {
+        &self.links[id.index()]
+    }
+
+    /// Every candidate link.
+    pub fn all_links(&self) -> LinkSet {
+        LinkSet::new((0..self.links.len() as u32).map(LinkId).collect())
+    }
+
+    /// The links marked `installed`.
+    pub fn installed_links(&self) -> LinkSet {
+        LinkSet::new(
+            (0..self.links.len() as u32)
+                .map(LinkId)
+                .filter(|&l| self.link(l).installed)
+                .collect(),
+        )
+    }
+
+    /// The arcs of a link set.
+    pub fn arcs(&self, set: &LinkSet) -> Vec<Arc> {
+        set.ids()
+            .iter()
+            .flat_map(|&l| self.link(l).arcs())
+            .collect()
+    }
+
+    /// Total cost of a link set, installed links counting 0.
+    pub fn cost(&self, set: &LinkSet) -> f64 {
+        0.0 + set
+            .ids()
+            .iter()
+            .map(|&l| self.link(l))
+            .filter(|l| !l.installed)
+            .map(|l| l.cost)
+            .sum::<f64>()
+    }
+}
+
+/// Loads and validates a problem file and every log it names.
+///
+/// # Errors
+/// An [`InputError`] naming the file and line for malformed TOML, unknown
+/// keys, out-of-range values, unknown or duplicate units, bad links, missing
+/// or malformed logs, and logs that do not overlap for a whole window.
+pub fn load(path: &Path) -> Result<Problem, InputError> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| InputError::whole(path, format!("cannot read the problem file: {e}")))?;
+    load_with(path, &text, &|p: &Path| std::fs::read_to_string(p))
+}
+
+/// Like [`load`], with the problem text given and logs read through `read`
+/// (paths are resolved against the problem file's folder first).
+///
+/// # Errors
+/// As [`load`].
+pub fn load_with(
+    path: &Path,
+    text: &str,
+    read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
+) -> Result<Problem, InputError> {
+    let raw: RawProblem = toml::from_str(text).map_err(|e| {
+        let line = e.span().map(|s| line_of(text, s.start)).unwrap_or(1);
+        InputError::at(
+            path,
+            line,
+            format!("malformed problem file: {}", e.message().trim()),
+        )
+    })?;
+    Validator { path, text }.problem(raw, read)
+}
+
+struct Validator<'a> {
+    path: &'a Path,
+    text: &'a str,
+}
+
+impl Validator<'_> {
+    fn err<T>(&self, at: &Spanned<T>, message: impl Into<String>) -> InputError {
+        InputError::at(self.path, line_of(self.text, at.span().start), message)
+    }
+
+    fn number(
+        &self,
+        v: &Spanned<f64>,
+        name: &str,
+        ok: impl Fn(f64) -> bool,
+        expected: &str,
+    ) -> Result<f64, InputError> {
+        let x = *v.get_ref();
+        if x.is_finite() && ok(x) {
+            Ok(x)
+        } else {
+            Err(self.err(v, format!("{name} = {x}: expected {expected}")))
+        }
+    }
+
+    fn optional(
+        &self,
+        v: &Option<Spanned<f64>>,
+        name: &str,
+        default: f64,
+        ok: impl Fn(f64) -> bool,
+        expected: &str,
+    ) -> Result<f64, InputError> {
+        v.as_ref()
+            .map_or(Ok(default), |v| self.number(v, name, ok, expected))
+    }
+
+    fn problem(
+        &self,
+        raw: RawProblem,
+        read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
+    ) -> Result<Problem, InputError> {
+        let net = &raw.network;
+        let p = *net.parameters.get_ref();
+        if !(1..=64).contains(&p) {
+            return Err(self.err(
+                &net.parameters,
+                format!("parameters = {p}: expected a whole number from 1 to 64"),
+            ));
+        }
+        let p = p as usize;
+        let positive = |x: f64| x > 0.0;
+        let non_negative = |x: f64| x >= 0.0;
+        let window = self.number(
+            &net.window,
+            "window",
+            positive,
+            "a positive number of seconds",
+        )?;
+        let window_kind = match &net.window_kind {
+            None => WindowKind::Time,
+            Some(k) => match k.get_ref().as_str() {
+                "time" => WindowKind::Time,
+                "hybrid" => WindowKind::Hybrid,
+                other => {
+                    return Err(self.err(
+                        k,
+                        format!("window_kind = \"{other}\": expected \"time\" or \"hybrid\""),
+                    ));
+                }
+            },
+        };
+        let stride = net
+            .stride
+            .as_ref()
+            .map(|s| self.number(s, "stride", positive, "a positive number of seconds"))
+            .transpose()?;
+        let min_excitation = net
+            .min_excitation
+            .as_ref()
+            .map(|s| self.number(s, "min_excitation", positive, "a positive number"))
+            .transpose()?;
+        let target_rate = net
+            .target_rate
+            .as_ref()
+            .map(|s| self.number(s, "target_rate", positive, "a positive rate in 1/s"))
+            .transpose()?;
+        let e = &raw.estimator;
+        let d = Gains::default();
+        let gains = Gains {
+            flow_gain: self.optional(
+                &e.flow_gain,
+                "flow_gain",
+                d.flow_gain,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            jump_gain: self.optional(
+                &e.jump_gain,
+                "jump_gain",
+                d.jump_gain,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            flow_coupling: self.optional(
+                &e.flow_coupling,
+                "flow_coupling",
+                d.flow_coupling,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            jump_coupling: self.optional(
+                &e.jump_coupling,
+                "jump_coupling",
+                d.jump_coupling,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            link_weight: self.optional(
+                &e.link_weight,
+                "link_weight",
+                d.link_weight,
+                positive,
+                "a positive number",
+            )?,
+        };
+
+        // Units.
+        if raw.nodes.is_empty() {
+            return Err(InputError::whole(
+                self.path,
+                "expected at least one [[node]]",
+            ));
+        }
+        let mut index: HashMap<&str, NodeId> = HashMap::new();
+        let mut positions = Vec::with_capacity(raw.nodes.len());
+        for (k, node) in raw.nodes.iter().enumerate() {
+            let id = node.id.get_ref().as_str();
+            if id.trim().is_empty() {
+                return Err(self.err(&node.id, "expected a non-empty unit id"));
+            }
+            if index.insert(id, NodeId(k as u32)).is_some() {
+                return Err(self.err(
+                    &node.id,
+                    format!("duplicate unit id \"{id}\"; expected every [[node]] id to be unique"),
+                ));
+            }
+            let position = match &node.position {
+                None => None,
+                Some(pos) => match pos.get_ref().as_slice() {
+                    &[x, y] if x.is_finite() && y.is_finite() => Some([x, y]),
+                    _ => {
+                        return Err(
+                            self.err(pos, "position: expected two finite numbers [x_km, y_km]")
+                        );
+                    }
+                },
+            };
+            positions.push(position);
+        }
+        let base = self.path.parent().unwrap_or(Path::new(""));
+        let logs: Vec<Result<Log, InputError>> = raw
+            .nodes
+            .par_iter()
+            .map(|node| {
+                let log_path = base.join(node.log.get_ref());
+                let text = read(&log_path).map_err(|e| {
+                    self.err(
+                        &node.log,
+                        format!("cannot read log file {}: {e}", log_path.display()),
+                    )
+                })?;
+                parse_log(&log_path, &text, p)
+            })
+            .collect();
+        let mut nodes = Vec::with_capacity(logs.len());
+        for ((node, log), position) in raw.nodes.iter().zip(logs).zip(positions) {
+            nodes.push(Node {
+                id: node.id.get_ref().clone(),
+                log: log?,
+                position,
+            });
+        }
+
+        // Links.
+        let mut links: Vec<Link> = Vec::new();
+        let mut ids: BTreeMap<String, usize> = BTreeMap::new();
+        for raw_link in &raw.links {
+            let link = self.link(raw_link, &index, gains.link_weight)?;
+            if let Some(&line) = ids.get(&link.id) {
+                return Err(self.err(raw_link, format!(
+                    "duplicate link id \"{}\" (also on line {line}); give one of them a distinct `id`",
+                    link.id
+                )));
+            }
+            ids.insert(link.id.clone(), line_of(self.text, raw_link.span().start));
+            links.push(link);
+        }
+        if let Some(c) = &raw.candidates {
+            let cand = c.get_ref();
+            let range = self.number(&cand.range, "range", positive, "a positive distance in km")?;
+            let fixed = self.number(&cand.fixed_cost, "fixed_cost", non_negative, "a cost ≥ 0")?;
+            let per_km =
+                self.number(&cand.cost_per_km, "cost_per_km", non_negative, "a cost ≥ 0")?;
+            if nodes.iter().all(|n| n.position.is_none()) {
+                return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` on the [[node]] entries"));
+            }
+            for a in 0..nodes.len() {
+                for b in a + 1..nodes.len() {
+                    let (Some(pa), Some(pb)) = (nodes[a].position, nodes[b].position) else {
+                        continue;
+                    };
+                    let dist = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
+                    if dist > range {
+                        continue;
+                    }
+                    let id = format!("{}<->{}", nodes[a].id, nodes[b].id);
+                    let reverse = format!("{}<->{}", nodes[b].id, nodes[a].id);
+                    if ids.contains_key(&id) || ids.contains_key(&reverse) {
+                        continue;
+                    }
+                    links.push(Link {
+                        id,
+                        ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+                        cost: fixed + per_km * dist,
+                        weight: gains.link_weight,
+                        installed: false,
+                        generated: true,
+                    });
+                }
+            }
+        }
+
+        let domain = TimeDomain::merge(nodes.iter().map(|n| &n.log)).ok_or_else(|| {
+            InputError::whole(self.path, "the unit logs do not overlap in time; expected a common horizon of positive length")
+        })?;
+        let windows = windows(&domain, window_kind, window, stride);
+        if windows.is_empty() {
+            return Err(self.err(&net.window, format!(
+                "window = {window}: no window fits in the common horizon [{}, {}] of the logs ({} s); expected a shorter window or longer logs",
+                domain.h0,
+                domain.h1,
+                domain.h1 - domain.h0
+            )));
+        }
+        Ok(Problem {
+            path: self.path.to_path_buf(),
+            name: raw.network.name,
+            parameters: p,
+            window,
+            window_kind,
+            stride,
+            min_excitation,
+            target_rate,
+            gains,
+            nodes,
+            links,
+            domain,
+            windows,
+        })
+    }
+
+    fn link(
+        &self,
+        raw: &Spanned<RawLink>,
+        index: &HashMap<&str, NodeId>,
+        default_weight: f64,
+    ) -> Result<Link, InputError> {
+        let l = raw.get_ref();
+        let node = |name: &Spanned<String>| -> Result<NodeId, InputError> {
+            index.get(name.get_ref().as_str()).copied().ok_or_else(|| {
+                self.err(
+                    name,
+                    format!(
+                        "unknown unit \"{}\"; expected the id of a [[node]]",
+                        name.get_ref()
+                    ),
+                )
+            })
+        };
+        let (ends, default_id) = match (&l.between, &l.from, &l.to) {
+            (Some(between), None, None) => {
+                let [a, b] = between.get_ref().as_slice() else {
+                    return Err(self.err(between, "between: expected exactly two unit ids"));
+                };
+                let (na, nb) = (node(a)?, node(b)?);
+                if na == nb {
+                    return Err(self.err(between, "between: expected two different units"));
+                }
+                (
+                    Ends::TwoWay(na, nb),
+                    format!("{}<->{}", a.get_ref(), b.get_ref()),
+                )
+            }
+            (None, Some(from), Some(to)) => {
+                let (nf, nt) = (node(from)?, node(to)?);
+                if nf == nt {
+                    return Err(self.err(to, "expected `from` and `to` to be different units"));
+                }
+                (
+                    Ends::OneWay { from: nf, to: nt },
+                    format!("{}->{}", from.get_ref(), to.get_ref()),
+                )
+            }
+            _ => return Err(self.err(
+                raw,
+                "expected either `between = [a, b]` (two-way) or both `from` and `to` (one-way)",
+            )),
+        };
+        let Some(cost) = &l.cost else {
+            return Err(self.err(raw, "missing `cost`; expected a cost ≥ 0"));
+        };
+        let cost = self.number(cost, "cost", |x| x >= 0.0, "a finite cost ≥ 0")?;
+        let weight = self.optional(
+            &l.weight,
+            "weight",
+            default_weight,
+            |x| x > 0.0,
+            "a positive number",
+        )?;
+        let id = match &l.id {
+            Some(id) if id.get_ref().trim().is_empty() => {
+                return Err(self.err(id, "expected a non-empty link id"));
+            }
+            Some(id) => id.get_ref().clone(),
+            None => default_id,
+        };
+        Ok(Link {
+            id,
+            ends,
+            cost,
+            weight,
+            installed: l.installed,
+            generated: false,
+        })
+    }
+}

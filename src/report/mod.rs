@@ -1,0 +1,11 @@
+//! Output writers: one module per format, all generic over `io::Write`.
+
+pub mod json;
+pub mod text;
+
+/// Cautions printed with every result.
+pub const CAUTIONS: [&str; 3] = [
+    "Verdicts and levels hold for the recorded logs and the estimator model only; a different operating period can excite the units differently.",
+    "Validate the chosen links in the field before relying on the estimates.",
+    "Radio links, masts and grid connections must follow local codes, spectrum licensing and licensed practice; exmesh does not replace them.",
+];

@@ -1,0 +1,145 @@
+//! Plain-text output for people.
+
+use super::CAUTIONS;
+use crate::analysis::{Check, ExcitationSummary};
+use std::io::{self, Write};
+
+fn direction(v: &[f64]) -> String {
+    let parts: Vec<String> = v
+        .iter()
+        .map(|x| format!("{:+.3}", if x.abs() < 5e-4 { 0.0 } else { *x }))
+        .collect();
+    format!("[{}]", parts.join(", "))
+}
+
+fn yes_no(b: bool) -> &'static str {
+    if b { "yes" } else { "no" }
+}
+
+fn threshold(out: &mut impl Write, value: f64, given: bool, windows: usize) -> io::Result<()> {
+    let origin = if given {
+        "from the problem file"
+    } else {
+        "default: 1e-6 × the largest window Gramian trace of any unit"
+    };
+    writeln!(
+        out,
+        "required excitation μ_req = {value:.4e} ({origin}); {windows} windows scanned"
+    )
+}
+
+fn cautions(out: &mut impl Write) -> io::Result<()> {
+    writeln!(out)?;
+    writeln!(out, "Cautions:")?;
+    for c in CAUTIONS {
+        writeln!(out, "  - {c}")?;
+    }
+    Ok(())
+}
+
+/// Writes the excitation summary as a table.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn excitation(s: &ExcitationSummary, out: &mut impl Write) -> io::Result<()> {
+    writeln!(
+        out,
+        "Excitation of {} (p = {}, window {} s, horizon {}–{} s)",
+        s.network, s.parameters, s.window, s.horizon[0], s.horizon[1]
+    )?;
+    threshold(out, s.min_excitation, s.min_excitation_given, s.windows)?;
+    writeln!(out)?;
+    let width = s
+        .units
+        .iter()
+        .map(|u| u.id.chars().count())
+        .max()
+        .unwrap_or(4)
+        .max(9);
+    writeln!(
+        out,
+        "{:<width$}  {:>11}  {:>7}  {:>4}  {:>5}  {:>5}  weakest direction (at t)",
+        "unit", "level", "excited", "rank", "flow", "jump"
+    )?;
+    for u in s.units.iter().chain(std::iter::once(&s.pooled)) {
+        writeln!(
+            out,
+            "{:<width$}  {:>11.4e}  {:>7}  {:>4}  {:>4.0}%  {:>4.0}%  {} (t = {})",
+            u.id,
+            u.excitation,
+            yes_no(u.excited),
+            u.rank,
+            100.0 * u.flow_share,
+            100.0 * u.jump_share,
+            direction(&u.weakest_direction),
+            u.weakest_window_start
+        )?;
+    }
+    let alone = s.units.iter().filter(|u| u.excited).count();
+    writeln!(out)?;
+    writeln!(
+        out,
+        "{alone} of {} units are excited alone; all units pooled: {}.",
+        s.units.len(),
+        if s.pooled.excited {
+            "excited"
+        } else {
+            "NOT excited — no link set can make the estimates converge"
+        }
+    )?;
+    cautions(out)
+}
+
+/// Writes the verdict of a link-set check.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
+    writeln!(
+        out,
+        "Check of {}: {} links, cost {:.2}",
+        c.network,
+        c.links.len(),
+        c.cost
+    )?;
+    threshold(out, c.min_excitation, c.min_excitation_given, c.windows)?;
+    writeln!(out)?;
+    for (k, sc) in c.source_components.iter().enumerate() {
+        writeln!(
+            out,
+            "source component {}: {} unit(s), level {:.4e}, excited: {}",
+            k + 1,
+            sc.nodes.len(),
+            sc.excitation,
+            yes_no(sc.excited)
+        )?;
+        writeln!(out, "  units:   {}", sc.nodes.join(", "))?;
+        if !sc.excited {
+            writeln!(
+                out,
+                "  weakest direction {} in the window from t = {}",
+                direction(&sc.weakest_direction),
+                sc.weakest_window_start
+            )?;
+        }
+        writeln!(out, "  drives:  {} unit(s)", sc.reaches.len())?;
+    }
+    writeln!(out)?;
+    if c.condition_holds {
+        writeln!(
+            out,
+            "Verdict: every source component is excited — every estimate converges (for these logs and this model)."
+        )?;
+    } else {
+        let bad = c.source_components.iter().filter(|s| !s.excited).count();
+        writeln!(
+            out,
+            "Verdict: {bad} source component(s) are not excited — the estimates they drive need not converge."
+        )?;
+        writeln!(
+            out,
+            "Fix: add a link into each such component from an excited part of the network, or give its units more excitation along the weakest direction."
+        )?;
+    }
+    cautions(out)
+}
