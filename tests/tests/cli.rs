@@ -1,0 +1,414 @@
+//! The real binary on files: verdicts, exit codes, JSON keys, determinism,
+//! and every kind of bad input (exit 2, file and line named, no panic).
+
+use super::fixtures::{Folder, SMALL_PROBLEM, constant_log, exmesh, log_text, small_problem};
+
+fn line_of(text: &str, needle: &str) -> usize {
+    text.lines()
+        .position(|l| l.contains(needle))
+        .expect("needle in text")
+        + 1
+}
+
+/// Runs `check --all` on the small problem after `edit`; expects exit 2 and
+/// a message that starts with `file:line:` and contains `words`.
+fn expect_bad(edit: impl FnOnce(&Folder), file: &str, line: Option<usize>, words: &str) {
+    let folder = Folder::new();
+    small_problem(&folder);
+    edit(&folder);
+    let run = exmesh(folder.dir.path(), &["check", "problem.toml", "--all"]);
+    assert_eq!(run.code, 2, "stderr: {}", run.stderr);
+    assert!(!run.stderr.contains("panicked"), "{}", run.stderr);
+    let place = match line {
+        Some(l) => format!("{file}:{l}:"),
+        None => format!("{file}:"),
+    };
+    assert!(
+        run.stderr.contains(&place),
+        "expected `{place}` in: {}",
+        run.stderr
+    );
+    assert!(
+        run.stderr.contains(words),
+        "expected `{words}` in: {}",
+        run.stderr
+    );
+    assert!(
+        run.stdout.is_empty(),
+        "no output on bad input: {}",
+        run.stdout
+    );
+}
+
+fn edit_problem(from: &str, to: &str) -> impl FnOnce(&Folder) {
+    let text = SMALL_PROBLEM.replacen(from, to, 1);
+    assert_ne!(text, SMALL_PROBLEM, "edit must change the problem");
+    move |f: &Folder| {
+        f.write("problem.toml", &text);
+    }
+}
+
+#[test]
+fn malformed_toml() {
+    expect_bad(
+        edit_problem("parameters = 2", "parameters = "),
+        "problem.toml",
+        Some(3),
+        "malformed",
+    );
+}
+
+#[test]
+fn unknown_key() {
+    expect_bad(
+        edit_problem("stride = 1.0", "stride = 1.0\ncolour = \"red\""),
+        "problem.toml",
+        Some(6),
+        "colour",
+    );
+}
+
+#[test]
+fn unknown_node_in_link() {
+    let line = line_of(SMALL_PROBLEM, "between");
+    expect_bad(
+        edit_problem("between = [\"a\", \"b\"]", "between = [\"a\", \"zz\"]"),
+        "problem.toml",
+        Some(line),
+        "unknown unit \"zz\"",
+    );
+}
+
+#[test]
+fn duplicate_node_ids() {
+    let line = line_of(SMALL_PROBLEM, "id = \"c\"");
+    expect_bad(
+        edit_problem("id = \"c\"", "id = \"a\""),
+        "problem.toml",
+        Some(line),
+        "duplicate unit id",
+    );
+}
+
+#[test]
+fn negative_cost() {
+    let line = line_of(SMALL_PROBLEM, "cost = 3.0");
+    expect_bad(
+        edit_problem("cost = 3.0", "cost = -3.0"),
+        "problem.toml",
+        Some(line),
+        "expected a finite cost ≥ 0",
+    );
+}
+
+#[test]
+fn non_finite_cost() {
+    let line = line_of(SMALL_PROBLEM, "cost = 3.0");
+    expect_bad(
+        edit_problem("cost = 3.0", "cost = nan"),
+        "problem.toml",
+        Some(line),
+        "finite cost",
+    );
+    expect_bad(
+        edit_problem("cost = 3.0", "cost = inf"),
+        "problem.toml",
+        Some(line),
+        "finite cost",
+    );
+}
+
+#[test]
+fn missing_log_file() {
+    let line = line_of(SMALL_PROBLEM, "logs/b.csv");
+    expect_bad(
+        edit_problem("logs/b.csv", "logs/missing.csv"),
+        "problem.toml",
+        Some(line),
+        "cannot read log file",
+    );
+}
+
+#[test]
+fn wrong_column_count() {
+    expect_bad(
+        |f| {
+            f.write("logs/a.csv", "t,j,psi1,psi2,y\n0,0,1,0,0\n1,0,1,0\n");
+        },
+        "logs/a.csv",
+        Some(3),
+        "expected 5 columns",
+    );
+}
+
+#[test]
+fn nan_and_inf_in_log() {
+    expect_bad(
+        |f| {
+            f.write("logs/a.csv", "t,j,psi1,psi2,y\n0,0,1,0,0\n1,0,NaN,0,0\n");
+        },
+        "logs/a.csv",
+        Some(3),
+        "finite number",
+    );
+    expect_bad(
+        |f| {
+            f.write(
+                "logs/b.csv",
+                "# header next\nt,j,psi1,psi2,y\n0,0,1,0,0\n1,0,1,-inf,0\n",
+            );
+        },
+        "logs/b.csv",
+        Some(4),
+        "finite number",
+    );
+}
+
+#[test]
+fn time_going_backwards() {
+    expect_bad(
+        |f| {
+            f.write(
+                "logs/a.csv",
+                "t,j,psi1,psi2,y\n0,0,1,0,0\n2,0,1,0,0\n1,0,1,0,0\n",
+            );
+        },
+        "logs/a.csv",
+        Some(4),
+        "time goes backwards",
+    );
+}
+
+#[test]
+fn jump_rows_disagree_on_t() {
+    expect_bad(
+        |f| {
+            f.write(
+                "logs/c.csv",
+                "t,j,psi1,psi2,y\n0,0,1,0,0\n5,0,1,0,0\n5.5,1,1,0,0\n10,1,1,0,0\n",
+            );
+        },
+        "logs/c.csv",
+        Some(4),
+        "a jump's two rows must share t",
+    );
+}
+
+#[test]
+fn parameter_dimension_mismatch() {
+    expect_bad(
+        |f| {
+            f.write(
+                "logs/b.csv",
+                "t,j,psi1,psi2,psi3,y\n0,0,1,0,0,0\n10,0,1,0,0,0\n",
+            );
+        },
+        "logs/b.csv",
+        Some(1),
+        "parameters = 2",
+    );
+}
+
+#[test]
+fn logs_too_short_for_the_window() {
+    let line = line_of(SMALL_PROBLEM, "window = 4.0");
+    expect_bad(
+        edit_problem("window = 4.0", "window = 40.0"),
+        "problem.toml",
+        Some(line),
+        "no window fits",
+    );
+}
+
+#[test]
+fn link_without_ends() {
+    expect_bad(
+        edit_problem("from = \"a\"\nto = \"c\"", "to = \"c\""),
+        "problem.toml",
+        Some(line_of(SMALL_PROBLEM, "from = \"a\"") - 1),
+        "expected either",
+    );
+}
+
+#[test]
+fn verdicts_and_exit_codes() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    // a<->b together excite both directions; c listens.
+    let all = exmesh(dir, &["check", "problem.toml", "--all"]);
+    assert_eq!(all.code, 0, "{}", all.stderr);
+    assert!(
+        all.stdout
+            .contains("Verdict: every source component is excited")
+    );
+    assert!(all.stdout.contains("Cautions"));
+    // Installed only: {a,b} excited, c alone is a source and not excited.
+    let installed = exmesh(dir, &["check", "problem.toml", "--installed", "--json"]);
+    assert_eq!(installed.code, 1);
+    let v: serde_json::Value = serde_json::from_str(&installed.stdout).unwrap();
+    assert_eq!(v["condition_holds"], false);
+    assert_eq!(v["min_excitation"], 0.5);
+    let comps = v["source_components"].as_array().unwrap();
+    assert_eq!(comps.len(), 2);
+    assert_eq!(comps[0]["nodes"], serde_json::json!(["a", "b"]));
+    assert_eq!(comps[0]["excited"], true);
+    assert_eq!(comps[1]["nodes"], serde_json::json!(["c"]));
+    assert_eq!(comps[1]["excited"], false);
+    assert_eq!(comps[1]["excitation"], 0.0);
+    assert_eq!(comps[1]["weakest_direction"].as_array().unwrap().len(), 2);
+    assert!(v["cautions"].as_array().unwrap().len() >= 3);
+    // Usage error: no link choice.
+    assert_eq!(exmesh(dir, &["check", "problem.toml"]).code, 2);
+}
+
+#[test]
+fn json_is_byte_identical_across_runs() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    for args in [
+        &["check", "problem.toml", "--all", "--json"][..],
+        &["excitation", "problem.toml", "--json"][..],
+    ] {
+        let a = exmesh(dir, args);
+        let b = exmesh(dir, args);
+        assert_eq!(a.code, b.code);
+        assert!(!a.stdout.is_empty());
+        assert_eq!(a.stdout, b.stdout);
+    }
+}
+
+#[test]
+fn excitation_reports_rank_and_shares() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    // Unit c: flows along e1, one jump along e2 at t = 5.
+    let rows = vec![
+        (0.0, 0, vec![1.0, 0.0]),
+        (5.0, 0, vec![0.0, 2.0]),
+        (5.0, 1, vec![1.0, 0.0]),
+        (10.0, 1, vec![1.0, 0.0]),
+    ];
+    folder.write("logs/c.csv", &log_text(2, &rows));
+    let run = exmesh(folder.dir.path(), &["excitation", "problem.toml", "--json"]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let c = &v["units"][2];
+    assert_eq!(c["id"], "c");
+    assert_eq!(c["rank"], 2);
+    // Flow trace 10 (|ψ|² = 1 for 10 s), jump trace 4/5.
+    let jump_share = c["jump_share"].as_f64().unwrap();
+    assert!((jump_share - 0.8 / 10.8).abs() < 1e-12, "{jump_share}");
+    assert_eq!(v["pooled"]["excited"], true);
+}
+
+#[test]
+fn plan_files_are_resolved_against_candidates() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    folder.write(
+        "plan.json",
+        "{\n  \"links\": [\n    {\"from\": \"b\", \"to\": \"a\", \"two_way\": true},\n    {\"from\": \"a\", \"to\": \"c\", \"two_way\": false, \"cost\": 4.0}\n  ]\n}\n",
+    );
+    let ok = exmesh(
+        dir,
+        &["check", "problem.toml", "--plan", "plan.json", "--json"],
+    );
+    assert_eq!(ok.code, 0, "{}", ok.stderr);
+    let v: serde_json::Value = serde_json::from_str(&ok.stdout).unwrap();
+    assert_eq!(v["links"], serde_json::json!(["a<->b", "a->c"]));
+    assert_eq!(v["cost"], 4.0);
+
+    folder.write("bad.json", "{\n  \"links\": [\n    {\"from\": \"a\", \"to\": \"b\", \"two_way\": true},\n    {\"from\": \"c\", \"to\": \"a\", \"two_way\": false}\n  ]\n}\n");
+    let run = exmesh(dir, &["check", "problem.toml", "--plan", "bad.json"]);
+    assert_eq!(run.code, 2);
+    assert!(
+        run.stderr.contains("bad.json:4:") && run.stderr.contains("not among the candidate links"),
+        "{}",
+        run.stderr
+    );
+
+    folder.write(
+        "who.json",
+        "{\"links\": [\n{\"from\": \"a\", \"to\": \"q\", \"two_way\": true}]}",
+    );
+    let run = exmesh(dir, &["check", "problem.toml", "--plan", "who.json"]);
+    assert_eq!(run.code, 2);
+    assert!(
+        run.stderr.contains("who.json:2:") && run.stderr.contains("unknown unit \"q\""),
+        "{}",
+        run.stderr
+    );
+
+    folder.write("broken.json", "{\"links\": [\n{\"from\": \"a\",,}]}");
+    let run = exmesh(dir, &["check", "problem.toml", "--plan", "broken.json"]);
+    assert_eq!(run.code, 2);
+    assert!(run.stderr.contains("broken.json:2:"), "{}", run.stderr);
+}
+
+#[test]
+fn generated_candidates_follow_positions() {
+    let folder = Folder::new();
+    folder.write("logs/a.csv", &constant_log(&[1.0]));
+    folder.write("logs/b.csv", &constant_log(&[0.0]));
+    folder.write("logs/c.csv", &constant_log(&[0.0]));
+    folder.write(
+        "problem.toml",
+        "[network]\nparameters = 1\nwindow = 2.0\n[candidates]\nrange = 1.5\nfixed_cost = 100.0\ncost_per_km = 10.0\n\
+         [[node]]\nid = \"a\"\nlog = \"logs/a.csv\"\nposition = [0.0, 0.0]\n\
+         [[node]]\nid = \"b\"\nlog = \"logs/b.csv\"\nposition = [1.0, 0.0]\n\
+         [[node]]\nid = \"c\"\nlog = \"logs/c.csv\"\nposition = [2.0, 0.0]\n",
+    );
+    let run = exmesh(
+        folder.dir.path(),
+        &["check", "problem.toml", "--all", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    // a–b and b–c are within 1.5 km, a–c (2 km) is not: 2 links at 110 each.
+    assert_eq!(v["links"], serde_json::json!(["a<->b", "b<->c"]));
+    assert_eq!(v["cost"], 220.0);
+}
+
+#[test]
+fn both_demos_run() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    for demo in [
+        "problems/plateau-masts/problem.toml",
+        "problems/delta-substations/problem.toml",
+    ] {
+        let all = exmesh(root, &["check", demo, "--all"]);
+        assert_eq!(all.code, 0, "{demo}: {}", all.stderr);
+        let ex = exmesh(root, &["excitation", demo, "--json"]);
+        assert_eq!(ex.code, 0, "{demo}: {}", ex.stderr);
+        let v: serde_json::Value = serde_json::from_str(&ex.stdout).unwrap();
+        let units = v["units"].as_array().unwrap();
+        let alone = units.iter().filter(|u| u["excited"] == true).count();
+        // Most units are not excited alone, so links matter.
+        assert!(
+            alone * 4 < units.len(),
+            "{demo}: {alone} of {} excited alone",
+            units.len()
+        );
+        let flow_only = units
+            .iter()
+            .filter(|u| u["jump_share"] == 0.0 && u["flow_share"] == 1.0)
+            .count();
+        let jump_only = units
+            .iter()
+            .filter(|u| u["flow_share"] == 0.0 && u["jump_share"] == 1.0)
+            .count();
+        let both = units
+            .iter()
+            .filter(|u| {
+                u["flow_share"].as_f64().unwrap() > 0.0 && u["jump_share"].as_f64().unwrap() > 0.0
+            })
+            .count();
+        assert!(
+            flow_only > 0 && jump_only > 0 && both > 0,
+            "{demo}: mix of flow-only, jump-only and both"
+        );
+    }
+}

@@ -1,0 +1,8 @@
+//! Integration tests: the real binary on files (cli), checks against outside
+//! sources (external), and property tests against independent methods
+//! (props).
+
+mod cli;
+mod external;
+mod fixtures;
+mod props;
