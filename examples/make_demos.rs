@@ -5,154 +5,24 @@
 //! noise-free: `y = ψᵀθ` with the true parameter vector stated in each
 //! problem file's header comment.
 
-use std::f64::consts::PI;
+use exmesh::synth::{Pattern, Rng, UnitSignal, basis, jump_times};
 use std::fmt::Write as _;
 use std::fs;
 use std::path::Path;
 
-/// splitmix64: a small, fixed pseudo-random generator (Steele, Lea & Flood,
-/// "Fast splittable pseudorandom number generators", OOPSLA 2014).
-struct Rng(u64);
-
-impl Rng {
-    fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-    fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-    fn range(&mut self, a: f64, b: f64) -> f64 {
-        a + (b - a) * self.uniform()
-    }
-    fn unit_vector(&mut self, p: usize) -> Vec<f64> {
-        loop {
-            let v: Vec<f64> = (0..p).map(|_| self.range(-1.0, 1.0)).collect();
-            let n = v.iter().map(|x| x * x).sum::<f64>().sqrt();
-            if n > 0.2 {
-                return v.into_iter().map(|x| x / n).collect();
-            }
-        }
-    }
-}
-
-/// How a unit's regressor behaves.
-#[derive(Clone)]
-struct Pattern {
-    /// Flow directions: ψ = Σ_k a_k(t) u_k with a_k sinusoids in quadrature.
-    flow: Vec<Vec<f64>>,
-    /// Jump directions, used in turn at the unit's jumps.
-    jump: Vec<Vec<f64>>,
-    omega: f64,
-    phase: f64,
-    amplitude: f64,
-}
-
-impl Pattern {
-    fn flow_psi(&self, t: f64, p: usize) -> Vec<f64> {
-        let mut psi = vec![0.0; p];
-        let m = self.flow.len();
-        for (k, u) in self.flow.iter().enumerate() {
-            // One direction: a positive ripple. Two: sine and cosine (rank 2).
-            // More: distinct frequencies, since sinusoids of one frequency
-            // span only two dimensions.
-            let kf = k as f64;
-            let a = match m {
-                1 => 1.0 + 0.5 * (self.omega * t + self.phase).sin(),
-                2 => (self.omega * t + self.phase + PI * kf / 2.0).sin(),
-                _ => (self.omega * (1.0 + 0.45 * kf) * t + self.phase + kf).sin(),
-            };
-            for (x, ui) in psi.iter_mut().zip(u) {
-                *x += self.amplitude * a * ui;
-            }
-        }
-        psi
-    }
-}
-
 struct Unit {
     id: String,
-    pattern: Pattern,
-    dt: f64,
-    start: f64,
-    end: f64,
-    jumps: Vec<f64>,
-    position: Option<[f64; 2]>,
-}
-
-fn fmt_num(x: f64) -> String {
-    let s = format!("{x:.6}");
-    if s == "-0.000000" {
-        "0.000000".to_string()
-    } else {
-        s
-    }
+    signal: UnitSignal,
+    position: [f64; 2],
 }
 
 fn write_log(path: &Path, unit: &Unit, p: usize, theta: &[f64]) {
-    let mut text = String::new();
-    writeln!(
-        text,
-        "# regressor log of unit {} (demo data, generated)",
-        unit.id
-    )
-    .unwrap();
-    let header: Vec<String> = (1..=p).map(|k| format!("psi{k}")).collect();
-    writeln!(text, "t,j,{},y", header.join(",")).unwrap();
-    let row = |text: &mut String, t: f64, j: u32, psi: &[f64]| {
-        let y: f64 = psi.iter().zip(theta).map(|(a, b)| a * b).sum();
-        let cols: Vec<String> = psi.iter().map(|&x| fmt_num(x)).collect();
-        writeln!(text, "{t:.3},{j},{},{}", cols.join(","), fmt_num(y)).unwrap();
-    };
-    let steps = ((unit.end - unit.start) / unit.dt).round() as u64;
-    let mut jumps = unit.jumps.iter().copied().peekable();
-    let mut j = 0u32;
-    for k in 0..=steps {
-        let t = unit.start + k as f64 * unit.dt;
-        while let Some(&tau) = jumps.peek() {
-            if tau > t + 1e-9 {
-                break;
-            }
-            jumps.next();
-            let dir = &unit.pattern.jump[j as usize % unit.pattern.jump.len()];
-            let pre: Vec<f64> = dir.iter().map(|x| 1.5 * x).collect();
-            row(&mut text, tau, j, &pre);
-            j += 1;
-            row(&mut text, tau, j, &unit.pattern.flow_psi(tau, p));
-        }
-        let last_tau_here = unit.jumps.iter().any(|&tau| (tau - t).abs() < 1e-9);
-        if !last_tau_here {
-            row(&mut text, t, j, &unit.pattern.flow_psi(t, p));
-        }
-    }
-    fs::write(path, text).unwrap();
-}
-
-fn basis(p: usize, k: usize) -> Vec<f64> {
-    (0..p).map(|r| if r == k { 1.0 } else { 0.0 }).collect()
+    let comment = format!("regressor log of unit {} (demo data, generated)", unit.id);
+    fs::write(path, unit.signal.csv(p, theta, &comment)).unwrap();
 }
 
 fn pattern(flow: Vec<Vec<f64>>, jump: Vec<Vec<f64>>, rng: &mut Rng) -> Pattern {
-    Pattern {
-        flow,
-        jump,
-        omega: rng.range(0.25, 0.8),
-        phase: rng.range(0.0, 2.0 * PI),
-        amplitude: rng.range(0.8, 1.2),
-    }
-}
-
-fn jump_times(rng: &mut Rng, shared: &[f64], own: usize, start: f64, end: f64) -> Vec<f64> {
-    let mut v: Vec<f64> = shared.to_vec();
-    for _ in 0..own {
-        v.push((rng.range(start + 1.0, end - 1.0) * 10.0).round() / 10.0);
-    }
-    v.sort_by(f64::total_cmp);
-    v.dedup();
-    v
+    Pattern::random(flow, jump, rng)
 }
 
 fn plateau(root: &Path) {
@@ -216,25 +86,25 @@ fn plateau(root: &Path) {
     for (k, (id, flow, jump, own, dt, pos)) in specs.into_iter().enumerate() {
         let has_jumps = !jump.is_empty();
         let start = if k % 3 == 1 { 0.5 } else { 0.0 };
+        let pattern = pattern(flow, jump, &mut rng);
+        let jumps = if has_jumps {
+            jump_times(&mut rng, &shared, own, start, 240.0)
+        } else {
+            vec![]
+        };
         let unit = Unit {
             id: id.to_string(),
-            pattern: pattern(
-                flow,
-                if has_jumps { jump } else { vec![vec![0.0; p]] },
-                &mut rng,
-            ),
-            dt,
-            start,
-            end: 240.0,
-            jumps: if has_jumps {
-                jump_times(&mut rng, &shared, own, start, 240.0)
-            } else {
-                vec![]
+            signal: UnitSignal {
+                pattern,
+                dt,
+                start,
+                end: 240.0,
+                jumps,
             },
-            position: Some(pos),
+            position: pos,
         };
         write_log(&dir.join(format!("logs/{id}.csv")), &unit, p, &theta);
-        let pos = unit.position.unwrap();
+        let pos = unit.position;
         writeln!(
             toml,
             "[[node]]\nid = \"{id}\"\nlog = \"logs/{id}.csv\"\nposition = [{:.2}, {:.2}]\n",
@@ -342,26 +212,25 @@ fn delta(root: &Path) {
         let has_jumps = !jump.is_empty();
         let start = [0.0, 0.25, 0.5][k % 3];
         let silent = flow.is_empty() && !has_jumps;
-        let mut pat = pattern(
-            if silent { vec![vec![0.0; p]] } else { flow },
-            if has_jumps { jump } else { vec![vec![0.0; p]] },
-            &mut rng,
-        );
+        let mut pat = pattern(flow, jump, &mut rng);
         if silent {
             pat.amplitude = 0.0;
         }
+        let jumps = if has_jumps {
+            jump_times(&mut rng, &shared, own, start, 240.0)
+        } else {
+            vec![]
+        };
         let unit = Unit {
             id: id.clone(),
-            pattern: pat,
-            dt: if k % 2 == 0 { 0.5 } else { 0.4 },
-            start,
-            end: 240.0,
-            jumps: if has_jumps {
-                jump_times(&mut rng, &shared, own, start, 240.0)
-            } else {
-                vec![]
+            signal: UnitSignal {
+                pattern: pat,
+                dt: if k % 2 == 0 { 0.5 } else { 0.4 },
+                start,
+                end: 240.0,
+                jumps,
             },
-            position: Some(pos),
+            position: pos,
         };
         write_log(&dir.join(format!("logs/{id}.csv")), &unit, p, &theta);
         writeln!(

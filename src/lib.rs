@@ -48,6 +48,7 @@ pub mod excitation;
 pub mod problem;
 pub mod report;
 pub mod signal;
+pub mod synth;
 pub mod topology;
 
 pub use error::InputError;

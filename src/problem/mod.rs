@@ -155,6 +155,28 @@ impl LinkSet {
     }
 }
 
+/// The scalar settings of a problem (the `[network]` and `[estimator]`
+/// tables), for building a [`Problem`] in memory with [`Problem::from_parts`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct Settings {
+    /// Network name.
+    pub name: String,
+    /// Parameter dimension p.
+    pub parameters: usize,
+    /// Excitation window length T.
+    pub window: f64,
+    /// How window length is measured.
+    pub window_kind: WindowKind,
+    /// Stride between window starts.
+    pub stride: Option<f64>,
+    /// Required excitation μ_req.
+    pub min_excitation: Option<f64>,
+    /// Required convergence rate.
+    pub target_rate: Option<f64>,
+    /// Estimator gains.
+    pub gains: Gains,
+}
+
 /// A validated planning problem.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Problem {
@@ -187,6 +209,42 @@ pub struct Problem {
 }
 
 impl Problem {
+    /// Builds a problem in memory (for synthetic studies). Returns `None`
+    /// when the logs share no horizon or no window fits in it. Nodes and
+    /// links are taken as given: they must already be valid.
+    pub fn from_parts(
+        path: PathBuf,
+        settings: Settings,
+        nodes: Vec<Node>,
+        links: Vec<Link>,
+    ) -> Option<Problem> {
+        let domain = TimeDomain::merge(nodes.iter().map(|n| &n.log))?;
+        let windows = windows(
+            &domain,
+            settings.window_kind,
+            settings.window,
+            settings.stride,
+        );
+        if windows.is_empty() {
+            return None;
+        }
+        Some(Problem {
+            path,
+            name: settings.name,
+            parameters: settings.parameters,
+            window: settings.window,
+            window_kind: settings.window_kind,
+            stride: settings.stride,
+            min_excitation: settings.min_excitation,
+            target_rate: settings.target_rate,
+            gains: settings.gains,
+            nodes,
+            links,
+            domain,
+            windows,
+        })
+    }
+
     /// Number of units.
     pub fn n(&self) -> usize {
         self.nodes.len()

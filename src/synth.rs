@@ -1,0 +1,349 @@
+//! Seeded synthetic networks: the demo problems' logs and the planning
+//! benchmark instances. Everything here is invented data for demos,
+//! benchmarks and tests of internal consistency, never a reference.
+
+use crate::problem::{Ends, Gains, Link, Node, NodeId, Problem, Settings};
+use crate::signal::{Log, WindowKind};
+use std::f64::consts::PI;
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+/// splitmix64, a small fixed pseudo-random generator.
+///
+/// # References
+/// Steele, Lea & Flood, "Fast splittable pseudorandom number generators",
+/// OOPSLA 2014.
+#[derive(Debug, Clone)]
+pub struct Rng(pub u64);
+
+impl Rng {
+    /// Next 64 random bits.
+    pub fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+
+    /// Uniform in [0, 1).
+    pub fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
+    }
+
+    /// Uniform in [a, b).
+    pub fn range(&mut self, a: f64, b: f64) -> f64 {
+        a + (b - a) * self.uniform()
+    }
+
+    /// Uniform index below `n`.
+    pub fn below(&mut self, n: usize) -> usize {
+        (self.uniform() * n as f64) as usize % n.max(1)
+    }
+
+    /// A random unit vector in R^p.
+    pub fn unit_vector(&mut self, p: usize) -> Vec<f64> {
+        loop {
+            let v: Vec<f64> = (0..p).map(|_| self.range(-1.0, 1.0)).collect();
+            let n = v.iter().map(|x| x * x).sum::<f64>().sqrt();
+            if n > 0.2 {
+                return v.into_iter().map(|x| x / n).collect();
+            }
+        }
+    }
+}
+
+/// The i-th standard basis vector of R^p.
+pub fn basis(p: usize, i: usize) -> Vec<f64> {
+    (0..p).map(|r| if r == i { 1.0 } else { 0.0 }).collect()
+}
+
+/// How a unit's regressor behaves: flows along `flow` directions with
+/// sinusoidal amplitudes, jumps along `jump` directions in turn.
+#[derive(Debug, Clone)]
+pub struct Pattern {
+    /// Flow directions (empty: ψ = 0 during flows).
+    pub flow: Vec<Vec<f64>>,
+    /// Jump directions, used in turn (empty: the unit does not jump).
+    pub jump: Vec<Vec<f64>>,
+    /// Base angular frequency, rad/s.
+    pub omega: f64,
+    /// Phase, rad.
+    pub phase: f64,
+    /// Amplitude of flows; jumps use 1.5 times the unit jump direction.
+    pub amplitude: f64,
+}
+
+impl Pattern {
+    /// A pattern with random frequency, phase and amplitude.
+    pub fn random(flow: Vec<Vec<f64>>, jump: Vec<Vec<f64>>, rng: &mut Rng) -> Self {
+        Pattern {
+            flow,
+            jump,
+            omega: rng.range(0.25, 0.8),
+            phase: rng.range(0.0, 2.0 * PI),
+            amplitude: rng.range(0.8, 1.2),
+        }
+    }
+
+    /// Regressor during flows at time t.
+    pub fn flow_psi(&self, t: f64, p: usize) -> Vec<f64> {
+        let mut psi = vec![0.0; p];
+        let m = self.flow.len();
+        for (k, u) in self.flow.iter().enumerate() {
+            // One direction: a positive ripple. Two: sine and cosine (rank 2).
+            // More: distinct frequencies, since sinusoids of one frequency
+            // span only two dimensions.
+            let kf = k as f64;
+            let a = match m {
+                1 => 1.0 + 0.5 * (self.omega * t + self.phase).sin(),
+                2 => (self.omega * t + self.phase + PI * kf / 2.0).sin(),
+                _ => (self.omega * (1.0 + 0.45 * kf) * t + self.phase + kf).sin(),
+            };
+            for (x, ui) in psi.iter_mut().zip(u) {
+                *x += self.amplitude * a * ui;
+            }
+        }
+        psi
+    }
+
+    /// Pre-jump regressor of the unit's k-th jump.
+    pub fn jump_psi(&self, k: usize, p: usize) -> Vec<f64> {
+        match self.jump.get(k % self.jump.len().max(1)) {
+            Some(d) => d.iter().map(|x| 1.5 * x).collect(),
+            None => vec![0.0; p],
+        }
+    }
+}
+
+/// A unit's signal: pattern, sampling and jump instants.
+#[derive(Debug, Clone)]
+pub struct UnitSignal {
+    /// Regressor behaviour.
+    pub pattern: Pattern,
+    /// Sample step, s.
+    pub dt: f64,
+    /// First sample time.
+    pub start: f64,
+    /// Last sample time.
+    pub end: f64,
+    /// Jump instants, sorted, multiples of 1 ms.
+    pub jumps: Vec<f64>,
+}
+
+impl UnitSignal {
+    /// The rows (t, j, ψ) of the sampled signal. Times are rounded to 1 ms
+    /// so that the CSV text and the in-memory log agree exactly.
+    pub fn rows(&self, p: usize) -> Vec<(f64, u32, Vec<f64>)> {
+        let ms = |t: f64| (t * 1000.0).round() / 1000.0;
+        let steps = ((self.end - self.start) / self.dt).round() as u64;
+        let mut out = Vec::with_capacity(steps as usize + 2 * self.jumps.len() + 1);
+        let mut next_jump = 0;
+        let mut j = 0u32;
+        for k in 0..=steps {
+            let t = ms(self.start + k as f64 * self.dt);
+            while next_jump < self.jumps.len() && self.jumps[next_jump] <= t + 1e-9 {
+                let tau = ms(self.jumps[next_jump]);
+                out.push((tau, j, self.pattern.jump_psi(j as usize, p)));
+                j += 1;
+                out.push((tau, j, self.pattern.flow_psi(tau, p)));
+                next_jump += 1;
+            }
+            if out.last().is_none_or(|r: &(f64, u32, Vec<f64>)| r.0 < t) {
+                out.push((t, j, self.pattern.flow_psi(t, p)));
+            }
+        }
+        out
+    }
+
+    /// The signal as a CSV log with a `y = ψᵀθ` column; numbers are written
+    /// with 6 decimals, and `log` below parses the same text.
+    pub fn csv(&self, p: usize, theta: &[f64], comment: &str) -> String {
+        let mut text = String::new();
+        for line in comment.lines() {
+            writeln!(text, "# {line}").unwrap();
+        }
+        let header: Vec<String> = (1..=p).map(|k| format!("psi{k}")).collect();
+        writeln!(text, "t,j,{},y", header.join(",")).unwrap();
+        let num = |x: f64| {
+            let s = format!("{x:.6}");
+            if s == "-0.000000" {
+                "0.000000".to_string()
+            } else {
+                s
+            }
+        };
+        for (t, j, psi) in self.rows(p) {
+            let y: f64 = psi.iter().zip(theta).map(|(a, b)| a * b).sum();
+            let cols: Vec<String> = psi.iter().map(|&x| num(x)).collect();
+            writeln!(text, "{t:.3},{j},{},{}", cols.join(","), num(y)).unwrap();
+        }
+        text
+    }
+
+    /// The signal as an in-memory log (full precision).
+    pub fn log(&self, p: usize, theta: &[f64], path: PathBuf) -> Log {
+        let rows = self.rows(p);
+        let mut log = Log {
+            path,
+            p,
+            t: Vec::with_capacity(rows.len()),
+            j: Vec::with_capacity(rows.len()),
+            psi: Vec::with_capacity(rows.len() * p),
+            y: Some(Vec::with_capacity(rows.len())),
+        };
+        for (t, j, psi) in rows {
+            log.t.push(t);
+            log.j.push(j);
+            log.y
+                .as_mut()
+                .unwrap()
+                .push(psi.iter().zip(theta).map(|(a, b)| a * b).sum());
+            log.psi.extend(psi);
+        }
+        log
+    }
+}
+
+/// Shared jump instants plus `own` random ones in (start, end), rounded to
+/// 0.1 s, sorted and distinct.
+pub fn jump_times(rng: &mut Rng, shared: &[f64], own: usize, start: f64, end: f64) -> Vec<f64> {
+    let mut v: Vec<f64> = shared.to_vec();
+    for _ in 0..own {
+        v.push((rng.range(start + 1.0, end - 1.0) * 10.0).round() / 10.0);
+    }
+    v.sort_by(f64::total_cmp);
+    v.dedup();
+    v
+}
+
+/// Excitation class of a benchmark unit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Class {
+    /// No excitation at all.
+    None,
+    /// One direction.
+    Rank1,
+    /// Two directions.
+    Rank2,
+    /// Every direction.
+    Full,
+}
+
+/// The planning benchmark instance: `n` units uniform in a square of side
+/// √n km, two-way candidates within the radius √(8/π) km (mean degree about
+/// 8) at cost 500 + 300·km, p = 4, 200 s logs sampled every 0.1 s with jumps
+/// shared every 10 s and a few own ones, classes drawn about 30 % rank 1,
+/// 40 % rank 2, 10 % full rank, 20 % none, a 20 s window, and μ_req set to
+/// `mu_fraction` times the median level of the full-rank units.
+///
+/// # Panics
+/// Never for n ≥ 1.
+pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
+    let p = 4;
+    let mut rng = Rng(seed);
+    let theta = [1.0, -0.5, 0.25, 2.0];
+    let side = (n as f64).sqrt();
+    let shared: Vec<f64> = (1..20).map(|k| 10.0 * k as f64).collect();
+    let mut nodes = Vec::with_capacity(n);
+    let mut classes = Vec::with_capacity(n);
+    for k in 0..n {
+        let pos = [rng.range(0.0, side), rng.range(0.0, side)];
+        let draw = rng.uniform();
+        let class = match draw {
+            x if x < 0.3 => Class::Rank1,
+            x if x < 0.7 => Class::Rank2,
+            x if x < 0.8 => Class::Full,
+            _ => Class::None,
+        };
+        let style = rng.below(3);
+        let (flow, jump, own) = match class {
+            Class::None => (vec![], vec![], 0),
+            Class::Rank1 => {
+                let u = rng.unit_vector(p);
+                if style == 0 {
+                    (vec![], vec![u], 3)
+                } else {
+                    (vec![u], vec![], 0)
+                }
+            }
+            Class::Rank2 => {
+                let (u, v) = (rng.unit_vector(p), rng.unit_vector(p));
+                match style {
+                    0 => (vec![u, v], vec![], 0),
+                    1 => (vec![u], vec![v], 4),
+                    _ => (vec![], vec![u, v], 6),
+                }
+            }
+            Class::Full => ((0..p).map(|r| basis(p, r)).collect(), vec![], 0),
+        };
+        let mut pattern = Pattern::random(flow, jump, &mut rng);
+        if class == Class::None {
+            pattern.amplitude = 0.0;
+        }
+        let jumps = if pattern.jump.is_empty() {
+            vec![]
+        } else {
+            jump_times(&mut rng, &shared, own, 0.0, 200.0)
+        };
+        let signal = UnitSignal {
+            pattern,
+            dt: 0.1,
+            start: 0.0,
+            end: 200.0,
+            jumps,
+        };
+        let id = format!("u{k:03}");
+        nodes.push(Node {
+            log: signal.log(p, &theta, PathBuf::from(format!("{id}.csv"))),
+            id,
+            position: Some(pos),
+        });
+        classes.push(class);
+    }
+    let radius = (8.0 / PI).sqrt();
+    let mut links = Vec::new();
+    for a in 0..n {
+        for b in a + 1..n {
+            let (pa, pb) = (nodes[a].position.unwrap(), nodes[b].position.unwrap());
+            let d = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
+            if d <= radius {
+                links.push(Link {
+                    id: format!("{}<->{}", nodes[a].id, nodes[b].id),
+                    ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+                    cost: (500.0 + 300.0 * d).round(),
+                    weight: 1.0,
+                    installed: false,
+                    generated: true,
+                });
+            }
+        }
+    }
+    let mut settings = Settings {
+        name: format!("benchmark n={n} seed={seed}"),
+        parameters: p,
+        window: 20.0,
+        window_kind: WindowKind::Time,
+        stride: None,
+        min_excitation: None,
+        target_rate: None,
+        gains: Gains::default(),
+    };
+    let probe = Problem::from_parts(
+        PathBuf::from("bench.toml"),
+        settings.clone(),
+        nodes.clone(),
+        vec![],
+    )
+    .expect("benchmark logs overlap");
+    let table = crate::ExcitationTable::build(&probe);
+    let mut full: Vec<f64> = (0..n)
+        .filter(|&k| classes[k] == Class::Full)
+        .map(|k| table.level(&[NodeId(k as u32)]).value)
+        .collect();
+    full.sort_by(f64::total_cmp);
+    let reference = full.get(full.len() / 2).copied().unwrap_or(1.0);
+    settings.min_excitation = Some(mu_fraction * reference);
+    Problem::from_parts(PathBuf::from("bench.toml"), settings, nodes, links)
+        .expect("benchmark logs overlap")
+}
