@@ -47,6 +47,7 @@ pub mod error;
 pub mod excitation;
 pub mod problem;
 pub mod report;
+pub mod search;
 pub mod signal;
 pub mod synth;
 pub mod topology;

@@ -2,16 +2,19 @@
 //! prints.
 //!
 //! Exit codes:
-//! - 0: done; for `check`, every source component is excited.
-//! - 1: the condition does not hold (some source component is not excited).
+//! - 0: done; for `check`, every source component is excited; for `plan`, a
+//!   plan was found (optimal, or with its gap at the time limit).
+//! - 1: the condition does not hold (`check`), or no link set can satisfy it
+//!   (`plan`, infeasible; no plan file is written).
 //! - 2: bad input (problem file, log, plan file) or bad command line.
 //! - 3: any other failure (for example, writing the output failed).
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
-use exmesh::{ExcitationTable, InputError, LinkSet, analysis, problem, report};
+use exmesh::{ExcitationTable, InputError, LinkSet, analysis, problem, report, search};
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
+use std::time::Duration;
 use std::process::ExitCode;
 
 #[derive(Parser)]
@@ -31,6 +34,20 @@ enum Command {
     Excitation {
         /// Problem file (TOML).
         problem: PathBuf,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Cheapest link set that makes every source component excited, with a proven lower bound.
+    Plan {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Write the plan (JSON) to this file.
+        #[arg(long, value_name = "PLAN.json")]
+        out: Option<PathBuf>,
+        /// Stop after this many seconds and return the best plan with its gap.
+        #[arg(long, value_name = "SECONDS")]
+        time_limit: Option<f64>,
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
@@ -93,6 +110,38 @@ fn run() -> anyhow::Result<ExitCode> {
             .context("writing the excitation summary")?;
             ExitCode::SUCCESS
         }
+        Command::Plan {
+            problem,
+            out: plan_path,
+            time_limit,
+            json,
+        } => {
+            let time_limit = match time_limit {
+                Some(t) if t.is_finite() && t > 0.0 => Some(Duration::from_secs_f64(t)),
+                Some(t) => {
+                    eprintln!("exmesh: error: --time-limit {t}: expected a positive number of seconds");
+                    return Ok(ExitCode::from(2));
+                }
+                None => None,
+            };
+            let problem = problem::load(&problem)?;
+            let table = ExcitationTable::build(&problem);
+            let options = search::Options { time_limit, progress: true };
+            let plan = search::plan(&problem, &table, &options);
+            let feasible = plan.status != search::PlanStatus::Infeasible;
+            if let (Some(path), true) = (plan_path, feasible) {
+                let mut bytes = Vec::new();
+                report::json::write(&plan, &mut bytes)?;
+                write_atomically(&path, &bytes).with_context(|| format!("writing the plan to {}", path.display()))?;
+            }
+            if json {
+                report::json::write(&plan, &mut out)
+            } else {
+                report::text::plan(&plan, &mut out)
+            }
+            .context("writing the plan")?;
+            if feasible { ExitCode::SUCCESS } else { ExitCode::from(1) }
+        }
         Command::Check {
             problem,
             links,
@@ -122,4 +171,17 @@ fn run() -> anyhow::Result<ExitCode> {
     };
     out.flush().context("writing to standard output")?;
     Ok(code)
+}
+
+/// Writes `bytes` to a temporary file beside `path`, then renames it, so a
+/// failed run never leaves a half-written file.
+fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let dir = path.parent().filter(|d| !d.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = std::fs::write(&tmp, bytes).and_then(|()| std::fs::rename(&tmp, path));
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
 }

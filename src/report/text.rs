@@ -2,6 +2,7 @@
 
 use super::CAUTIONS;
 use crate::analysis::{Check, ExcitationSummary};
+use crate::search::{Plan, PlanStatus};
 use std::io::{self, Write};
 
 fn direction(v: &[f64]) -> String {
@@ -141,5 +142,77 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
             "Fix: add a link into each such component from an excited part of the network, or give its units more excitation along the weakest direction."
         )?;
     }
+    cautions(out)
+}
+
+/// Writes a plan: status, cost and bound, the chosen links, the source
+/// components, search figures and stage times.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
+    let status = match p.status {
+        PlanStatus::Optimal => "optimal",
+        PlanStatus::Feasible => "feasible (not proven optimal)",
+        PlanStatus::Infeasible => "INFEASIBLE",
+        PlanStatus::TimeLimit => "stopped at the time limit",
+    };
+    writeln!(out, "Plan for {}: {status}", p.network)?;
+    threshold(out, p.min_excitation, p.min_excitation_given, p.windows)?;
+    if p.status == PlanStatus::Infeasible {
+        writeln!(out)?;
+        writeln!(out, "Even with every candidate link, {} group(s) of units form a source component that is not excited:", p.shortfalls.len())?;
+        for s in &p.shortfalls {
+            writeln!(out, "  units: {}", s.nodes.join(", "))?;
+            writeln!(out, "    level {:.4e}, weakest direction {} (window from t = {})", s.excitation, direction(&s.weakest_direction), s.weakest_window_start)?;
+            writeln!(out, "    fix: {}", s.remedy)?;
+        }
+        return cautions(out);
+    }
+    let (cost, lower, gap) = (p.cost.unwrap_or(0.0), p.lower_bound.unwrap_or(0.0), p.gap.unwrap_or(0.0));
+    writeln!(out, "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %", 100.0 * gap)?;
+    writeln!(out)?;
+    let ends: Vec<String> = p
+        .links
+        .iter()
+        .map(|l| format!("{} {} {}", l.from, if l.two_way { "<->" } else { "->" }, l.to))
+        .collect();
+    let width = ends.iter().map(|e| e.chars().count()).max().unwrap_or(4);
+    writeln!(out, "{} link(s):", p.links.len())?;
+    for (l, e) in p.links.iter().zip(&ends) {
+        let note = if l.installed { "  (installed)" } else { "" };
+        writeln!(out, "  {e:<width$}  {:>10.2}{note}", l.cost)?;
+    }
+    writeln!(out)?;
+    for (k, sc) in p.source_components.iter().enumerate() {
+        writeln!(
+            out,
+            "source component {}: {} unit(s), level {:.4e}, excited: {}, drives {} unit(s)",
+            k + 1,
+            sc.nodes.len(),
+            sc.excitation,
+            yes_no(sc.excited),
+            sc.reaches.len()
+        )?;
+        writeln!(out, "  units: {}", sc.nodes.join(", "))?;
+    }
+    let s = &p.stats;
+    let t = &p.timings;
+    writeln!(out)?;
+    writeln!(
+        out,
+        "search: greedy {:.2}, root LP bound {:.2}, {} rounds, {} rows, {} nodes, {} LP solves, {} excitation queries ({} full scans)",
+        s.greedy_cost, s.root_lp_bound, s.rounds, s.cuts, s.nodes, s.lp_solves, s.excitation_queries, s.excitation_scans
+    )?;
+    writeln!(
+        out,
+        "time: greedy {:.3} s, branch and cut {:.3} s (LP {:.3} s, separation {:.3} s, excitation checks {:.3} s, heuristics {:.3} s)",
+        t.greedy.as_secs_f64(),
+        t.search.as_secs_f64(),
+        t.solver.as_secs_f64(),
+        t.separation.as_secs_f64(),
+        t.excitation.as_secs_f64(),
+        t.heuristics.as_secs_f64()
+    )?;
     cautions(out)
 }

@@ -1,0 +1,478 @@
+//! Branch and cut on the covering model, with microlp's incremental LP
+//! (dual simplex after adding rows or fixing variables).
+
+use super::cuts::{Pool, Row, enumerate_separate, grow_separate, grown_rows, separate};
+use super::heuristics::repair;
+use super::instance::Instance;
+use microlp::{ComparisonOp, OptimizationDirection, SolveOutcome, Solution, Variable};
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
+use std::io::IsTerminal;
+use std::time::{Duration, Instant};
+
+/// Counters and timings of a search.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct SearchStats {
+    pub lp_solves: u64,
+    pub rounds: u64,
+    pub nodes: u64,
+    pub cuts: u64,
+    pub root_bound: f64,
+    pub lp_time: Duration,
+    pub separation_time: Duration,
+    pub heuristic_time: Duration,
+}
+
+/// Result of the search.
+pub(crate) struct SearchResult {
+    pub best: Vec<bool>,
+    pub lower_bound: f64,
+    pub timed_out: bool,
+    pub stats: SearchStats,
+}
+
+const THRESHOLDS: [f64; 4] = [0.999, 0.5, 0.2, 1e-6];
+const INT_TOL: f64 = 1e-6;
+
+struct Lp {
+    sol: Solution,
+    vars: Vec<Variable>,
+    /// Pool rows present in this LP.
+    has: Vec<bool>,
+}
+
+impl Lp {
+    fn values(&self) -> Vec<f64> {
+        self.vars.iter().map(|&v| self.sol.var_value_raw(v)).collect()
+    }
+
+    fn objective(&self) -> f64 {
+        self.sol.objective()
+    }
+
+    /// Adds a row; `false` when the LP became infeasible (the LP is gone).
+    fn add(mut self, index: usize, row: &Row) -> Option<Self> {
+        let expr: Vec<(Variable, f64)> = row.links.iter().map(|&k| (self.vars[k as usize], 1.0)).collect();
+        if self.has.len() <= index {
+            self.has.resize(index + 1, false);
+        }
+        self.has[index] = true;
+        match self.sol.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64) {
+            Ok(SolveOutcome::Solution(sol)) => {
+                self.sol = sol;
+                Some(self)
+            }
+            _ => None,
+        }
+    }
+
+    fn fix(mut self, k: usize, value: bool) -> Option<Self> {
+        match self.sol.fix_var(self.vars[k], if value { 1.0 } else { 0.0 }) {
+            Ok(SolveOutcome::Solution(sol)) => {
+                self.sol = sol;
+                Some(self)
+            }
+            _ => None,
+        }
+    }
+
+    fn has(&self, index: usize) -> bool {
+        self.has.get(index).copied().unwrap_or(false)
+    }
+}
+
+#[derive(Debug, Clone)]
+struct Node {
+    bound: f64,
+    depth: u32,
+    fixings: Vec<(u32, bool)>,
+}
+
+impl PartialEq for Node {
+    fn eq(&self, other: &Self) -> bool {
+        self.cmp(other) == Ordering::Equal
+    }
+}
+impl Eq for Node {}
+impl PartialOrd for Node {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Node {
+    // BinaryHeap pops the greatest: smallest bound first, then deepest.
+    fn cmp(&self, other: &Self) -> Ordering {
+        other
+            .bound
+            .total_cmp(&self.bound)
+            .then(self.depth.cmp(&other.depth))
+            .then_with(|| other.fixings.cmp(&self.fixings))
+    }
+}
+
+struct Search<'a, 'b> {
+    inst: &'a Instance<'b>,
+    pool: Pool,
+    best: Vec<bool>,
+    best_cost: f64,
+    stats: SearchStats,
+    start: Instant,
+    deadline: Option<Instant>,
+    progress: bool,
+    last_progress: Instant,
+    /// Objective of the last LP looked at by the cut loop.
+    last_objective: f64,
+}
+
+impl Search<'_, '_> {
+    fn timed_out(&self) -> bool {
+        self.deadline.is_some_and(|d| Instant::now() >= d)
+    }
+
+    /// Bound at or above which a node cannot improve the incumbent.
+    fn cutoff(&self) -> f64 {
+        if self.inst.integral_costs {
+            self.best_cost - 1.0 + 1e-6
+        } else {
+            self.best_cost - 1e-9 * self.best_cost.abs().max(1.0)
+        }
+    }
+
+    fn offer(&mut self, chosen: Vec<bool>) {
+        let cost = self.inst.cost(&chosen);
+        if cost < self.best_cost - 1e-9 {
+            self.best_cost = cost;
+            self.best = chosen;
+        }
+    }
+
+    fn heuristic(&mut self, y: &[f64]) {
+        let t = Instant::now();
+        if let Some(chosen) = repair(self.inst, y) {
+            self.offer(chosen);
+        }
+        self.stats.heuristic_time += t.elapsed();
+    }
+
+    /// Adds rows to the pool; returns the indices of the new ones.
+    fn pool_add(&mut self, rows: Vec<Row>) -> Vec<usize> {
+        let added: Vec<usize> = rows.into_iter().filter_map(|r| self.pool.add(r)).collect();
+        self.stats.cuts = self.pool.rows.len() as u64;
+        added
+    }
+
+    /// Rows violated by `y` that the LP lacks: first from the pool, then by
+    /// separation.
+    fn violated(&mut self, lp: &Lp, y: &[f64]) -> Vec<usize> {
+        let t = Instant::now();
+        let mut found: Vec<(f64, usize)> = self
+            .pool
+            .rows
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| !lp.has(*i))
+            .map(|(i, r)| (r.violation(y), i))
+            .filter(|(v, _)| *v > 1e-6)
+            .collect();
+        if found.is_empty() {
+            let mut rows = Vec::new();
+            separate(self.inst, y, &THRESHOLDS, &mut rows);
+            if rows.is_empty() {
+                grow_separate(self.inst, y, 8, &mut rows);
+            }
+            if rows.is_empty() && self.inst.n <= 200 {
+                enumerate_separate(self.inst, y, 3, &mut rows);
+            }
+            let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
+            if integral {
+                let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
+                for c in self.inst.violations(&chosen) {
+                    grown_rows(self.inst, &c, &mut rows);
+                }
+            }
+            let added = self.pool_add(rows);
+            found = added
+                .into_iter()
+                .map(|i| (self.pool.rows[i].violation(y), i))
+                .filter(|(v, _)| *v > 1e-6)
+                .collect();
+        }
+        self.stats.separation_time += t.elapsed();
+        // Most violated first; at most 60 rows per round.
+        found.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        found.truncate(60);
+        found.into_iter().map(|(_, i)| i).collect()
+    }
+
+    /// Cuts the node's LP until no violated row is found or the bound passes
+    /// the cutoff. Returns the LP (None: infeasible or pruned) and its point.
+    fn cut_loop(&mut self, mut lp: Lp, max_rounds: u32) -> Option<(Lp, Vec<f64>)> {
+        let mut rounds = 0;
+        loop {
+            self.last_objective = lp.objective();
+            if lp.objective() >= self.cutoff() {
+                return None;
+            }
+            let y = lp.values();
+            let rows = self.violated(&lp, &y);
+            self.stats.rounds += 1;
+            // An integral point with violated rows must be cut further: it
+            // is never returned as if it were feasible, unless time is up.
+            let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
+            if rows.is_empty() || (rounds >= max_rounds && !integral) || self.timed_out() {
+                return Some((lp, y));
+            }
+            let t = Instant::now();
+            for i in rows {
+                let row = self.pool.rows[i].clone();
+                lp = lp.add(i, &row)?;
+                self.stats.lp_solves += 1;
+            }
+            self.stats.lp_time += t.elapsed();
+            rounds += 1;
+            if rounds % 5 == 0 {
+                let y = lp.values();
+                self.heuristic(&y);
+            }
+            self.report(None);
+        }
+    }
+
+    fn report(&mut self, bound: Option<f64>) {
+        if !self.progress || self.last_progress.elapsed() < Duration::from_millis(500) {
+            return;
+        }
+        self.last_progress = Instant::now();
+        let b = bound.unwrap_or(self.stats.root_bound);
+        eprint!(
+            "\r  {:>6.1} s  nodes {:>6}  rounds {:>6}  rows {:>6}  best {:>12.2}  bound {:>12.2}   ",
+            self.start.elapsed().as_secs_f64(),
+            self.stats.nodes,
+            self.stats.rounds,
+            self.stats.cuts,
+            self.best_cost,
+            b
+        );
+    }
+
+    fn sync_master(&mut self, mut master: Lp) -> Option<Lp> {
+        let t = Instant::now();
+        for i in 0..self.pool.rows.len() {
+            if !master.has(i) {
+                let row = self.pool.rows[i].clone();
+                master = master.add(i, &row)?;
+                self.stats.lp_solves += 1;
+            }
+        }
+        self.stats.lp_time += t.elapsed();
+        Some(master)
+    }
+}
+
+fn branch_variable(inst: &Instance, y: &[f64]) -> Option<usize> {
+    let mut best: Option<(f64, usize)> = None;
+    for (k, &v) in y.iter().enumerate() {
+        let f = v.min(1.0 - v);
+        if f > INT_TOL {
+            let score = f * (inst.links[k].cost + 1.0);
+            if best.is_none_or(|(s, _)| score > s) {
+                best = Some((score, k));
+            }
+        }
+    }
+    best.map(|(_, k)| k)
+}
+
+fn bound_of(inst: &Instance, obj: f64) -> f64 {
+    if inst.integral_costs { (obj - 1e-6).ceil() } else { obj }
+}
+
+/// Runs branch and cut from the incumbent `start` (which satisfies the
+/// condition), until optimality is proven or the deadline passes.
+pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant>, progress: bool) -> SearchResult {
+    let now = Instant::now();
+    let mut s = Search {
+        inst,
+        pool: Pool::default(),
+        best_cost: inst.cost(&start),
+        best: start,
+        stats: SearchStats::default(),
+        start: now,
+        deadline,
+        progress: progress && std::io::stderr().is_terminal(),
+        last_progress: now,
+        last_objective: f64::NEG_INFINITY,
+    };
+    // Seed rows: the cut of every unit that is not excited alone, and the
+    // rows around the incumbent's components.
+    let mut seed = Vec::new();
+    let mut part_of = Vec::new();
+    for v in 0..inst.n as u32 {
+        if !inst.oracle.excited(&[v]) {
+            if let Some(r) = super::cuts::cover_row(inst, &[v], &mut part_of) {
+                seed.push(r);
+            }
+        }
+    }
+    s.pool_add(seed);
+
+    // Root LP.
+    let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
+    let vars: Vec<Variable> = inst
+        .links
+        .iter()
+        .map(|l| problem.add_var(l.cost, (if l.installed { 1.0 } else { 0.0 }, 1.0)))
+        .collect();
+    for row in &s.pool.rows {
+        let expr: Vec<(Variable, f64)> = row.links.iter().map(|&k| (vars[k as usize], 1.0)).collect();
+        problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64);
+    }
+    let t = Instant::now();
+    let root = match problem.solve() {
+        Ok(SolveOutcome::Solution(sol)) => Lp {
+            has: vec![true; s.pool.rows.len()],
+            sol,
+            vars,
+        },
+        _ => {
+            // The seed rows are valid, so this only happens on numerical trouble.
+            return finish(s, f64::NEG_INFINITY, true);
+        }
+    };
+    s.stats.lp_time += t.elapsed();
+    s.stats.lp_solves += 1;
+
+    let mut lower = f64::NEG_INFINITY;
+    let Some((root, y)) = s.cut_loop(root, u32::MAX) else {
+        // Root pruned: the incumbent is optimal.
+        s.stats.root_bound = s.last_objective;
+        let lb = s.best_cost;
+        return finish(s, lb, false);
+    };
+    s.stats.root_bound = root.objective();
+    lower = lower.max(bound_of(inst, root.objective()));
+    s.heuristic(&y);
+    if s.timed_out() {
+        return finish(s, lower, true);
+    }
+    let mut master = match s.sync_master(root) {
+        Some(m) => m,
+        None => {
+            let lb = s.best_cost;
+            return finish(s, lb, false);
+        }
+    };
+
+    let mut heap = BinaryHeap::new();
+    heap.push(Node {
+        bound: lower,
+        depth: 0,
+        fixings: Vec::new(),
+    });
+    let mut timed_out = false;
+    while let Some(node) = heap.pop() {
+        if node.bound >= s.cutoff() {
+            continue;
+        }
+        if s.timed_out() {
+            heap.push(node);
+            timed_out = true;
+            break;
+        }
+        let global = node.bound.max(lower);
+        s.report(Some(global));
+        // Rebuild the node's LP from the master (which holds every pool row).
+        master = match s.sync_master(master) {
+            Some(m) => m,
+            None => break,
+        };
+        let t = Instant::now();
+        let mut lp = Some(Lp {
+            sol: master.sol.clone(),
+            vars: master.vars.clone(),
+            has: master.has.clone(),
+        });
+        for &(k, v) in &node.fixings {
+            lp = lp.and_then(|lp| lp.fix(k as usize, v));
+            s.stats.lp_solves += 1;
+        }
+        s.stats.lp_time += t.elapsed();
+        let Some(mut current) = lp else { continue };
+        let mut fixings = node.fixings;
+        let mut depth = node.depth;
+        // Dive: process, branch, continue with the y = 1 child.
+        loop {
+            s.stats.nodes += 1;
+            let Some((lp, y)) = s.cut_loop(current, 8) else { break };
+            let obj = lp.objective();
+            match branch_variable(inst, &y) {
+                None => {
+                    // Integral and no violated row: feasible.
+                    let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
+                    if inst.holds(&chosen) {
+                        s.offer(chosen);
+                    } else {
+                        // Cutting stopped on the deadline: keep the node open.
+                        heap.push(Node {
+                            bound: bound_of(inst, obj),
+                            depth,
+                            fixings: fixings.clone(),
+                        });
+                        timed_out = true;
+                    }
+                    break;
+                }
+                Some(k) => {
+                    if s.stats.nodes % 20 == 0 {
+                        s.heuristic(&y);
+                    }
+                    let b = bound_of(inst, obj);
+                    let mut zero = fixings.clone();
+                    zero.push((k as u32, false));
+                    heap.push(Node {
+                        bound: b,
+                        depth: depth + 1,
+                        fixings: zero,
+                    });
+                    fixings.push((k as u32, true));
+                    depth += 1;
+                    let t = Instant::now();
+                    let next = lp.fix(k, true);
+                    s.stats.lp_time += t.elapsed();
+                    s.stats.lp_solves += 1;
+                    match next {
+                        Some(next) => current = next,
+                        None => break,
+                    }
+                    if s.timed_out() {
+                        heap.push(Node {
+                            bound: b,
+                            depth,
+                            fixings: fixings.clone(),
+                        });
+                        timed_out = true;
+                        break;
+                    }
+                }
+            }
+        }
+        if timed_out {
+            break;
+        }
+    }
+    let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
+    let lb = if timed_out { open_bound.max(lower).min(s.best_cost) } else { s.best_cost };
+    finish(s, lb, timed_out)
+}
+
+fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
+    if s.progress {
+        eprintln!();
+    }
+    SearchResult {
+        best: s.best,
+        lower_bound: lower_bound.min(s.best_cost),
+        timed_out,
+        stats: s.stats,
+    }
+}

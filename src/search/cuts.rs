@@ -1,0 +1,407 @@
+//! Valid inequalities of the covering model and their separation.
+//!
+//! One family covers everything. Let `parts` be disjoint unit sets and `rest`
+//! the units in none of them. Count the chosen links that have an arc
+//! between two different classes (parts and rest) whose head is not in the
+//! rest (when the rest is empty, every crossing arc). Contract every class:
+//! a component of the contracted graph avoiding the rest has no entering arc,
+//! so it holds a source component and is excited. Hence
+//!
+//!   Σ_{counted links} y ≥ k − ν(parts),
+//!
+//! with k the number of parts and ν(parts) an upper bound on the number of
+//! disjoint excited unions of parts. One non-excited part gives the cut
+//! `y(δ^in(U)) ≥ 1`; the singletons of S give the partition inequality
+//! `y(links with a head in S) ≥ |S| − ν(S)`.
+
+use super::instance::Instance;
+use std::collections::HashSet;
+
+/// A row `Σ_{k ∈ links} y_k ≥ rhs` over links that are not installed.
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+pub(crate) struct Row {
+    pub links: Vec<u32>,
+    pub rhs: u32,
+}
+
+impl Row {
+    pub fn activity(&self, y: &[f64]) -> f64 {
+        self.links.iter().map(|&k| y[k as usize]).sum()
+    }
+
+    pub fn violation(&self, y: &[f64]) -> f64 {
+        self.rhs as f64 - self.activity(y)
+    }
+}
+
+const REST: u32 = u32::MAX;
+
+/// The row for `parts` (see the module notes), or `None` when installed
+/// links already satisfy it.
+pub(crate) fn partition_row(inst: &Instance, parts: &[Vec<u32>], part_of: &mut Vec<u32>) -> Option<Row> {
+    if parts.is_empty() {
+        return None;
+    }
+    part_of.clear();
+    part_of.resize(inst.n, REST);
+    let mut covered = 0;
+    for (j, part) in parts.iter().enumerate() {
+        for &v in part {
+            part_of[v as usize] = j as u32;
+            covered += 1;
+        }
+    }
+    let rest_empty = covered == inst.n;
+    let slices: Vec<&[u32]> = parts.iter().map(|p| p.as_slice()).collect();
+    let nu = if parts.len() == 1 {
+        usize::from(inst.oracle.excited(&parts[0]))
+    } else {
+        let mut union: Vec<u32> = parts.iter().flatten().copied().collect();
+        union.sort_unstable();
+        if inst.oracle.excited(&union) {
+            inst.oracle.parts_bound(&slices, parts.len()).max(1)
+        } else {
+            0
+        }
+    };
+    let mut rhs = parts.len().saturating_sub(nu) as i64;
+    if rhs <= 0 {
+        return None;
+    }
+    let mut links: Vec<u32> = Vec::new();
+    for part in parts {
+        for &b in part {
+            for &k in &inst.heads[b as usize] {
+                let crosses = inst.links[k].arcs.iter().any(|&(from, to)| {
+                    to == b && part_of[from as usize] != part_of[b as usize]
+                });
+                if crosses {
+                    links.push(k as u32);
+                }
+            }
+        }
+    }
+    debug_assert!(rest_empty || parts.iter().flatten().all(|&v| part_of[v as usize] != REST));
+    links.sort_unstable();
+    links.dedup();
+    links.retain(|&k| {
+        if inst.links[k as usize].installed {
+            rhs -= 1;
+            false
+        } else {
+            true
+        }
+    });
+    (rhs > 0).then(|| Row { links, rhs: rhs as u32 })
+}
+
+/// The cut `y(δ^in(U)) ≥ 1` of a non-excited set.
+pub(crate) fn cover_row(inst: &Instance, set: &[u32], part_of: &mut Vec<u32>) -> Option<Row> {
+    partition_row(inst, &[set.to_vec()], part_of)
+}
+
+/// The partition row over the singletons of `set`.
+pub(crate) fn singleton_row(inst: &Instance, set: &[u32], part_of: &mut Vec<u32>) -> Option<Row> {
+    let parts: Vec<Vec<u32>> = set.iter().map(|&v| vec![v]).collect();
+    partition_row(inst, &parts, part_of)
+}
+
+/// The pool of rows found so far, with de-duplication.
+#[derive(Default)]
+pub(crate) struct Pool {
+    pub rows: Vec<Row>,
+    seen: HashSet<Row>,
+}
+
+impl Pool {
+    /// Adds a row; returns its index when it is new.
+    pub fn add(&mut self, row: Row) -> Option<usize> {
+        if self.seen.contains(&row) {
+            return None;
+        }
+        self.seen.insert(row.clone());
+        self.rows.push(row);
+        Some(self.rows.len() - 1)
+    }
+}
+
+/// Finds rows violated by `y` (fractional or integer) from the source
+/// components of the link sets `{y ≥ t}` for several thresholds: the cut and
+/// the singleton-partition row of every non-excited source component, the
+/// singleton-partition row of excited ones, the partition into all
+/// components, and for non-excited components their growth by cheapest
+/// neighbours and unions with each other while they stay non-excited.
+pub(crate) fn separate(inst: &Instance, y: &[f64], thresholds: &[f64], out: &mut Vec<Row>) {
+    let mut part_of = Vec::new();
+    let mut seen: HashSet<Vec<u32>> = HashSet::new();
+    let push = |row: Option<Row>, out: &mut Vec<Row>| {
+        if let Some(r) = row {
+            if r.violation(y) > 1e-6 && !out.contains(&r) {
+                out.push(r);
+            }
+        }
+    };
+    for &t in thresholds {
+        let chosen: Vec<bool> = inst.links.iter().zip(y).map(|(l, &v)| l.installed || v >= t).collect();
+        let sources = inst.source_components(&chosen);
+        let mut bad: Vec<Vec<u32>> = Vec::new();
+        for c in &sources {
+            if !seen.insert(c.clone()) {
+                continue;
+            }
+            if inst.oracle.excited(c) {
+                if c.len() > 1 {
+                    push(singleton_row(inst, c, &mut part_of), out);
+                }
+            } else {
+                push(cover_row(inst, c, &mut part_of), out);
+                if c.len() > 1 {
+                    push(singleton_row(inst, c, &mut part_of), out);
+                }
+                bad.push(c.clone());
+            }
+        }
+        // All components of {y ≥ t} as one partition.
+        let all = components_partition(inst, &chosen);
+        if all.len() > 1 {
+            push(partition_row(inst, &all, &mut part_of), out);
+        }
+        // Unions of non-excited components that stay non-excited.
+        for a in 0..bad.len() {
+            for b in a + 1..bad.len() {
+                let mut u: Vec<u32> = bad[a].iter().chain(&bad[b]).copied().collect();
+                u.sort_unstable();
+                if !inst.oracle.excited(&u) {
+                    push(cover_row(inst, &u, &mut part_of), out);
+                }
+            }
+        }
+    }
+}
+
+/// Greedy growth on the LP point: from every unit as a seed, add the
+/// neighbour that most lowers the slack of the singleton-partition row
+/// (`activity − (|S| − ν(S))`), and separately of the cut row while the set
+/// stays non-excited; keep the rows of sets whose slack is negative.
+pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
+    let n = inst.n;
+    // y-weight of the arcs into each unit, per link.
+    let mut in_y = vec![0.0; n];
+    for (b, links) in inst.heads.iter().enumerate() {
+        in_y[b] = links.iter().map(|&k| if inst.links[k].installed { 1.0 } else { y[k] }).sum();
+    }
+    let yk = |k: usize| if inst.links[k].installed { 1.0 } else { y[k] };
+    let mut part_of = Vec::new();
+    let mut inside = vec![false; n];
+    let mut found: HashSet<Vec<u32>> = HashSet::new();
+    for seed in 0..n as u32 {
+        // Partition growth.
+        let mut set = vec![seed];
+        inside[seed as usize] = true;
+        let mut activity = in_y[seed as usize];
+        loop {
+            let nu = if inst.oracle.excited(&sorted(&set)) {
+                inst.oracle.rank_bound(&sorted(&set), set.len()).max(1)
+            } else {
+                0
+            };
+            let violation = set.len() as f64 - nu as f64 - activity;
+            if violation > 1e-6 && found.insert(sorted(&set)) {
+                if let Some(r) = singleton_row(inst, &sorted(&set), &mut part_of) {
+                    out.push(r);
+                }
+            }
+            if set.len() >= max_size {
+                break;
+            }
+            // Candidate: neighbour u maximising 1 − Δactivity(u).
+            let mut best: Option<(f64, u32)> = None;
+            for &v in &set {
+                for &k in inst.heads[v as usize].iter() {
+                    for &(from, to) in &inst.links[k].arcs {
+                        if to != v || inside[from as usize] {
+                            continue;
+                        }
+                        let u = from;
+                        // Links with a head at u that are already counted
+                        // (they also have a head in the set).
+                        let counted: f64 = inst.heads[u as usize]
+                            .iter()
+                            .filter(|&&l| inst.links[l].arcs.iter().any(|&(_, t)| inside[t as usize]))
+                            .map(|&l| yk(l))
+                            .sum();
+                        let gain = 1.0 - (in_y[u as usize] - counted);
+                        if best.is_none_or(|(g, bu)| gain > g + 1e-12 || ((gain - g).abs() <= 1e-12 && u < bu)) {
+                            best = Some((gain, u));
+                        }
+                    }
+                }
+            }
+            let Some((_, u)) = best else { break };
+            let counted: f64 = inst.heads[u as usize]
+                .iter()
+                .filter(|&&l| inst.links[l].arcs.iter().any(|&(_, t)| inside[t as usize]))
+                .map(|&l| yk(l))
+                .sum();
+            activity += in_y[u as usize] - counted;
+            set.push(u);
+            inside[u as usize] = true;
+        }
+        for &v in &set {
+            inside[v as usize] = false;
+        }
+        // Cut growth: keep the set non-excited, lower y(δ^in(S)).
+        let mut set = vec![seed];
+        inside[seed as usize] = true;
+        while set.len() < max_size {
+            let s = sorted(&set);
+            if inst.oracle.excited(&s) {
+                break;
+            }
+            if let Some(r) = cover_row(inst, &s, &mut part_of) {
+                if r.violation(y) > 1e-6 && found.insert(s.clone()) {
+                    out.push(r);
+                }
+            }
+            // Add the outside unit with the most y on arcs into the set.
+            let mut weight: Vec<(u32, f64)> = Vec::new();
+            for &v in &set {
+                for &k in &inst.heads[v as usize] {
+                    for &(from, to) in &inst.links[k].arcs {
+                        if to == v && !inside[from as usize] {
+                            match weight.iter_mut().find(|(u, _)| *u == from) {
+                                Some(w) => w.1 += yk(k),
+                                None => weight.push((from, yk(k))),
+                            }
+                        }
+                    }
+                }
+            }
+            let Some(&(u, _)) = weight.iter().max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0))) else { break };
+            set.push(u);
+            inside[u as usize] = true;
+        }
+        for &v in &set {
+            inside[v as usize] = false;
+        }
+    }
+}
+
+fn sorted(set: &[u32]) -> Vec<u32> {
+    let mut s = set.to_vec();
+    s.sort_unstable();
+    s
+}
+
+/// Rows for a non-excited set grown by its cheapest entering neighbour while
+/// it stays non-excited (valid cuts that need not be violated now).
+pub(crate) fn grown_rows(inst: &Instance, set: &[u32], out: &mut Vec<Row>) {
+    let mut part_of = Vec::new();
+    let mut s: Vec<u32> = set.to_vec();
+    let mut inside = vec![false; inst.n];
+    for &v in &s {
+        inside[v as usize] = true;
+    }
+    loop {
+        // Cheapest link entering s from outside.
+        let mut best: Option<(f64, u32)> = None;
+        for &b in &s {
+            for &k in &inst.heads[b as usize] {
+                for &(from, to) in &inst.links[k].arcs {
+                    if to == b && !inside[from as usize] {
+                        let c = inst.links[k].cost;
+                        if best.is_none_or(|(bc, bv)| c < bc || (c == bc && from < bv)) {
+                            best = Some((c, from));
+                        }
+                    }
+                }
+            }
+        }
+        let Some((_, v)) = best else { return };
+        s.push(v);
+        s.sort_unstable();
+        inside[v as usize] = true;
+        if inst.oracle.excited(&s) {
+            return;
+        }
+        if let Some(r) = cover_row(inst, &s, &mut part_of) {
+            out.push(r);
+        }
+        if let Some(r) = singleton_row(inst, &s, &mut part_of) {
+            out.push(r);
+        }
+    }
+}
+
+/// The strongly connected components of the chosen links as a partition of
+/// all units.
+fn components_partition(inst: &Instance, chosen: &[bool]) -> Vec<Vec<u32>> {
+    let mut adj: Vec<Vec<u32>> = vec![Vec::new(); inst.n];
+    for (l, _) in inst.links.iter().zip(chosen).filter(|(_, c)| **c) {
+        for &(a, b) in &l.arcs {
+            adj[a as usize].push(b);
+        }
+    }
+    let comp = super::instance::scc(&adj);
+    let count = comp.iter().copied().max().map_or(0, |m| m + 1);
+    let mut parts = vec![Vec::new(); count];
+    for (v, &c) in comp.iter().enumerate() {
+        parts[c].push(v as u32);
+    }
+    parts.sort();
+    parts
+}
+
+/// Every connected unit set of the candidate graph up to `max_size` units:
+/// the cut and singleton-partition rows violated by `y` (used on networks
+/// small enough for the enumeration to be cheap).
+pub(crate) fn enumerate_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
+    let n = inst.n;
+    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
+    for l in &inst.links {
+        for &(a, b) in &l.arcs {
+            nbrs[a as usize].push(b);
+            nbrs[b as usize].push(a);
+        }
+    }
+    for v in nbrs.iter_mut() {
+        v.sort_unstable();
+        v.dedup();
+    }
+    let mut seen: HashSet<Vec<u32>> = HashSet::new();
+    let mut frontier: Vec<Vec<u32>> = (0..n as u32).map(|v| vec![v]).collect();
+    let mut part_of = Vec::new();
+    for _size in 1..=max_size {
+        let mut next = Vec::new();
+        for s in frontier {
+            if !seen.insert(s.clone()) {
+                continue;
+            }
+            if let Some(r) = singleton_row(inst, &s, &mut part_of) {
+                if r.violation(y) > 1e-6 {
+                    out.push(r);
+                }
+            }
+            if !inst.oracle.excited(&s) {
+                if let Some(r) = cover_row(inst, &s, &mut part_of) {
+                    if r.violation(y) > 1e-6 {
+                        out.push(r);
+                    }
+                }
+            }
+            for &v in &s {
+                for &u in &nbrs[v as usize] {
+                    if !s.contains(&u) {
+                        let mut t = s.clone();
+                        t.push(u);
+                        t.sort_unstable();
+                        next.push(t);
+                    }
+                }
+            }
+        }
+        next.sort();
+        next.dedup();
+        frontier = next;
+    }
+}

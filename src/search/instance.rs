@@ -1,0 +1,288 @@
+//! The planner's view of a problem: links as arc lists with costs, the
+//! excitation oracle with its cache and rank table, and the condition check
+//! of a link set.
+
+use crate::excitation::{ExcitationTable, eigenvalues};
+use crate::problem::{NodeId, Problem};
+use rayon::prelude::*;
+use std::cell::RefCell;
+use std::collections::HashMap;
+use std::time::{Duration, Instant};
+
+/// A candidate link as the planner sees it.
+#[derive(Debug, Clone)]
+pub(crate) struct PlanLink {
+    /// Arcs (from, to) of the link: one or two.
+    pub arcs: Vec<(u32, u32)>,
+    /// Cost in the objective (0 for installed links).
+    pub cost: f64,
+    /// Already in place: always chosen.
+    pub installed: bool,
+}
+
+/// Counters of the oracle's work.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct OracleStats {
+    pub queries: u64,
+    pub scans: u64,
+    pub time: Duration,
+}
+
+/// Answers "is this unit set excited?" with a cache, a rank-sum pre-test and
+/// an upper bound on the number of disjoint excited subsets.
+pub(crate) struct Oracle<'a> {
+    table: &'a ExcitationTable,
+    /// r_i(w): eigenvalues of G_i^w at least μ_req/n, index `i * W + w`.
+    ranks: Vec<u8>,
+    windows: usize,
+    p: usize,
+    cache: RefCell<HashMap<Vec<u32>, bool>>,
+    pub stats: RefCell<OracleStats>,
+}
+
+impl<'a> Oracle<'a> {
+    pub fn new(table: &'a ExcitationTable) -> Self {
+        let (n, w, p) = (table.n(), table.windows().len(), table.p());
+        let threshold = table.min_excitation() / n as f64;
+        let ranks: Vec<u8> = (0..n)
+            .into_par_iter()
+            .flat_map_iter(|i| {
+                (0..w).map(move |k| {
+                    eigenvalues(p, table.gramian(k, NodeId(i as u32)))
+                        .iter()
+                        .filter(|&&l| l >= threshold)
+                        .count() as u8
+                })
+            })
+            .collect();
+        Oracle {
+            table,
+            ranks,
+            windows: w,
+            p,
+            cache: RefCell::new(HashMap::new()),
+            stats: RefCell::new(OracleStats::default()),
+        }
+    }
+
+    /// Is the (sorted) set excited?
+    pub fn excited(&self, set: &[u32]) -> bool {
+        if set.is_empty() {
+            return false;
+        }
+        let mut stats = self.stats.borrow_mut();
+        stats.queries += 1;
+        if let Some(&v) = self.cache.borrow().get(set) {
+            return v;
+        }
+        let start = Instant::now();
+        let v = self.rank_bound(set, usize::MAX) >= 1 && {
+            stats.scans += 1;
+            let nodes: Vec<NodeId> = set.iter().map(|&i| NodeId(i)).collect();
+            self.table.is_excited(&nodes)
+        };
+        stats.time += start.elapsed();
+        self.cache.borrow_mut().insert(set.to_vec(), v);
+        v
+    }
+
+    /// min over windows of ⌊Σ_{parts} min(Σ_{i∈part} r_i(w), p) / p⌋, capped
+    /// at `cap`: an upper bound on the number of disjoint excited unions of
+    /// parts (Weyl: a group whose ranks sum below p has λ_min below μ_req).
+    pub fn parts_bound(&self, parts: &[&[u32]], cap: usize) -> usize {
+        let mut best = cap.min(parts.len());
+        for w in 0..self.windows {
+            let total: usize = parts
+                .iter()
+                .map(|part| {
+                    part.iter()
+                        .map(|&i| self.ranks[i as usize * self.windows + w] as usize)
+                        .sum::<usize>()
+                        .min(self.p)
+                })
+                .sum();
+            best = best.min(total / self.p);
+            if best == 0 {
+                break;
+            }
+        }
+        best
+    }
+
+    /// Upper bound on the number of disjoint excited subsets of `set`.
+    pub fn rank_bound(&self, set: &[u32], cap: usize) -> usize {
+        let singles: Vec<&[u32]> = set.chunks(1).collect();
+        self.parts_bound(&singles, cap)
+    }
+}
+
+/// The planning instance.
+pub(crate) struct Instance<'a> {
+    pub n: usize,
+    pub links: Vec<PlanLink>,
+    /// For each unit, the links with an arc into it.
+    pub heads: Vec<Vec<usize>>,
+    pub oracle: Oracle<'a>,
+    /// Every link cost is a whole number (bounds can be rounded up).
+    pub integral_costs: bool,
+}
+
+impl<'a> Instance<'a> {
+    pub fn new(problem: &Problem, table: &'a ExcitationTable) -> Self {
+        let n = problem.n();
+        let links: Vec<PlanLink> = problem
+            .links
+            .iter()
+            .map(|l| PlanLink {
+                arcs: l.arcs().map(|a| (a.from.0, a.to.0)).collect(),
+                cost: if l.installed { 0.0 } else { l.cost },
+                installed: l.installed,
+            })
+            .collect();
+        Self::from_links(n, links, table)
+    }
+
+    pub fn from_links(n: usize, links: Vec<PlanLink>, table: &'a ExcitationTable) -> Self {
+        let mut heads = vec![Vec::new(); n];
+        for (k, l) in links.iter().enumerate() {
+            for &(_, to) in &l.arcs {
+                if heads[to as usize].last() != Some(&k) {
+                    heads[to as usize].push(k);
+                }
+            }
+        }
+        let integral_costs = links.iter().all(|l| l.cost.fract() == 0.0 && l.cost.abs() < 1e15);
+        Instance {
+            n,
+            links,
+            heads,
+            oracle: Oracle::new(table),
+            integral_costs,
+        }
+    }
+
+    pub fn cost(&self, chosen: &[bool]) -> f64 {
+        0.0 + self.links.iter().zip(chosen).filter(|(_, c)| **c).map(|(l, _)| l.cost).sum::<f64>()
+    }
+
+    /// Source components of the digraph of the links with `chosen[k]`, each
+    /// sorted, ordered by smallest unit.
+    pub fn source_components(&self, chosen: &[bool]) -> Vec<Vec<u32>> {
+        let mut adj: Vec<Vec<u32>> = vec![Vec::new(); self.n];
+        for (l, _) in self.links.iter().zip(chosen).filter(|(_, c)| **c) {
+            for &(a, b) in &l.arcs {
+                adj[a as usize].push(b);
+            }
+        }
+        let comp = scc(&adj);
+        let count = comp.iter().copied().max().map_or(0, |m| m + 1);
+        let mut entered = vec![false; count];
+        for (a, outs) in adj.iter().enumerate() {
+            for &b in outs {
+                if comp[a] != comp[b as usize] {
+                    entered[comp[b as usize]] = true;
+                }
+            }
+        }
+        let mut sets: Vec<Vec<u32>> = vec![Vec::new(); count];
+        for (v, &c) in comp.iter().enumerate() {
+            if !entered[c] {
+                sets[c].push(v as u32);
+            }
+        }
+        let mut out: Vec<Vec<u32>> = sets.into_iter().filter(|s| !s.is_empty()).collect();
+        out.sort();
+        out
+    }
+
+    /// Non-excited source components of a link set (empty: condition holds).
+    pub fn violations(&self, chosen: &[bool]) -> Vec<Vec<u32>> {
+        self.source_components(chosen)
+            .into_iter()
+            .filter(|c| !self.oracle.excited(c))
+            .collect()
+    }
+
+    pub fn holds(&self, chosen: &[bool]) -> bool {
+        self.source_components(chosen).iter().all(|c| self.oracle.excited(c))
+    }
+}
+
+/// Strongly connected components (iterative Tarjan); returns the component
+/// index of each vertex.
+///
+/// # References
+/// Tarjan, "Depth-first search and linear graph algorithms", SIAM J.
+/// Computing 1(2), 1972.
+pub(crate) fn scc(adj: &[Vec<u32>]) -> Vec<usize> {
+    let n = adj.len();
+    const NONE: usize = usize::MAX;
+    let mut index = vec![NONE; n];
+    let mut low = vec![0; n];
+    let mut on_stack = vec![false; n];
+    let mut comp = vec![NONE; n];
+    let mut stack = Vec::new();
+    let mut next = 0;
+    let mut count = 0;
+    let mut call: Vec<(usize, usize)> = Vec::new();
+    for root in 0..n {
+        if index[root] != NONE {
+            continue;
+        }
+        call.push((root, 0));
+        index[root] = next;
+        low[root] = next;
+        next += 1;
+        stack.push(root);
+        on_stack[root] = true;
+        while let Some(&mut (v, ref mut k)) = call.last_mut() {
+            if *k < adj[v].len() {
+                let w = adj[v][*k] as usize;
+                *k += 1;
+                if index[w] == NONE {
+                    index[w] = next;
+                    low[w] = next;
+                    next += 1;
+                    stack.push(w);
+                    on_stack[w] = true;
+                    call.push((w, 0));
+                } else if on_stack[w] {
+                    low[v] = low[v].min(index[w]);
+                }
+            } else {
+                call.pop();
+                if let Some(&(u, _)) = call.last() {
+                    low[u] = low[u].min(low[v]);
+                }
+                if low[v] == index[v] {
+                    loop {
+                        let w = stack.pop().expect("Tarjan stack");
+                        on_stack[w] = false;
+                        comp[w] = count;
+                        if w == v {
+                            break;
+                        }
+                    }
+                    count += 1;
+                }
+            }
+        }
+    }
+    comp
+}
+
+#[cfg(test)]
+mod tests {
+    use super::scc;
+
+    #[test]
+    fn scc_of_two_cycles_and_a_tail() {
+        let adj = vec![vec![1], vec![0, 2], vec![3], vec![2], vec![]];
+        let c = scc(&adj);
+        assert_eq!(c[0], c[1]);
+        assert_eq!(c[2], c[3]);
+        assert_ne!(c[0], c[2]);
+        assert_ne!(c[4], c[0]);
+        assert_ne!(c[4], c[2]);
+    }
+}

@@ -1,0 +1,310 @@
+//! The planning engine: the cheapest link set such that every source
+//! component of the chosen digraph is excited, with a proven lower bound.
+//!
+//! Stages: feasibility of the all-candidates graph; greedy incumbent by
+//! reverse-delete; branch and cut on the covering model (cuts and partition
+//! inequalities separated lazily, see [`cuts`](self)); final irreducibility.
+
+mod bnc;
+mod cuts;
+mod heuristics;
+mod instance;
+
+use crate::analysis::{self, SourceComponent};
+use crate::excitation::ExcitationTable;
+use crate::problem::{Ends, LinkId, LinkSet, Problem};
+use instance::Instance;
+use serde::Serialize;
+use std::time::{Duration, Instant};
+
+/// Search options.
+#[derive(Debug, Clone, Default)]
+pub struct Options {
+    /// Stop after this long and return the best plan with its gap.
+    pub time_limit: Option<Duration>,
+    /// Print a progress line on stderr (only when stderr is a terminal).
+    pub progress: bool,
+}
+
+/// How the search ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PlanStatus {
+    /// The plan's cost equals the proven lower bound.
+    Optimal,
+    /// A valid plan whose optimality is not proven (see the gap).
+    Feasible,
+    /// Even every candidate link leaves a source component not excited.
+    Infeasible,
+    /// The time limit stopped the search; the plan is valid, see the gap.
+    TimeLimit,
+}
+
+/// A chosen link in a plan.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ChosenLink {
+    /// Link id.
+    pub id: String,
+    /// Talking end (first end for a two-way link).
+    pub from: String,
+    /// Listening end (second end for a two-way link).
+    pub to: String,
+    /// Both ends listen.
+    pub two_way: bool,
+    /// Cost counted in the plan (0 for installed links).
+    pub cost: f64,
+    /// Already in place.
+    pub installed: bool,
+}
+
+/// A group of units that no candidate set can excite, and what would help.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Shortfall {
+    /// Units of the non-excited source component of the all-candidates graph.
+    pub nodes: Vec<String>,
+    /// Its excitation level.
+    pub excitation: f64,
+    /// Its weakest direction.
+    pub weakest_direction: Vec<f64>,
+    /// Start of the weakest window.
+    pub weakest_window_start: f64,
+    /// What would fix it.
+    pub remedy: String,
+}
+
+/// Search figures (deterministic: no timings).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PlanStats {
+    /// Cost of the reverse-delete incumbent.
+    pub greedy_cost: f64,
+    /// LP bound at the root after cutting.
+    pub root_lp_bound: f64,
+    /// Separation rounds.
+    pub rounds: u64,
+    /// Rows generated (cuts and partition inequalities).
+    pub cuts: u64,
+    /// Branch-and-bound nodes.
+    pub nodes: u64,
+    /// LP (re-)solves.
+    pub lp_solves: u64,
+    /// Excitation queries, and full window scans among them.
+    pub excitation_queries: u64,
+    /// Full window scans (queries not answered by cache or rank pre-test).
+    pub excitation_scans: u64,
+}
+
+/// Wall-clock time per stage (reported in text, never in JSON).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Timings {
+    /// Feasibility check and greedy incumbent.
+    pub greedy: Duration,
+    /// Whole branch and cut.
+    pub search: Duration,
+    /// Excitation checks (inside all stages).
+    pub excitation: Duration,
+    /// Row separation, excitation checks excluded.
+    pub separation: Duration,
+    /// LP solves.
+    pub solver: Duration,
+    /// Primal heuristics.
+    pub heuristics: Duration,
+}
+
+/// The planner's answer.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Plan {
+    /// Network name.
+    pub network: String,
+    /// How the search ended.
+    pub status: PlanStatus,
+    /// Total cost of the chosen links (installed links count 0); null when
+    /// infeasible.
+    pub cost: Option<f64>,
+    /// Proven lower bound on the cost of any valid plan; null when infeasible.
+    pub lower_bound: Option<f64>,
+    /// (cost − lower_bound) / cost; null when infeasible.
+    pub gap: Option<f64>,
+    /// μ_req in use.
+    pub min_excitation: f64,
+    /// True when μ_req was given in the problem file.
+    pub min_excitation_given: bool,
+    /// Number of windows scanned.
+    pub windows: usize,
+    /// The chosen links, in candidate order.
+    pub links: Vec<ChosenLink>,
+    /// Source components of the plan's digraph.
+    pub source_components: Vec<SourceComponent>,
+    /// When infeasible: the groups no candidate set can excite.
+    pub shortfalls: Vec<Shortfall>,
+    /// Search figures.
+    pub stats: PlanStats,
+    /// Stage timings (text output only).
+    #[serde(skip)]
+    pub timings: Timings,
+}
+
+/// Plans the cheapest link set for which every source component is excited.
+///
+/// # Complexity
+/// Exponential in the worst case (the problem contains minimum-cost
+/// arborescence and set-cover-like structure); the time limit bounds it and
+/// the result then carries its proven gap.
+///
+/// # References
+/// Edmonds, "Optimum branchings", J. Res. NBS 71B, 1967 (the one-root,
+/// one-way special case); Chopra, "On the spanning tree polyhedron",
+/// Oper. Res. Letters 8, 1989 (partition inequalities).
+pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Plan {
+    let started = Instant::now();
+    let deadline = options.time_limit.map(|d| started + d);
+    let inst = Instance::new(problem, table);
+    let all = vec![true; inst.links.len()];
+    let bad = inst.violations(&all);
+    if !bad.is_empty() {
+        let shortfalls = bad.iter().map(|c| shortfall(problem, table, c)).collect();
+        let check = analysis::check(problem, table, &problem.all_links());
+        return Plan {
+            network: problem.name.clone(),
+            status: PlanStatus::Infeasible,
+            cost: None,
+            lower_bound: None,
+            gap: None,
+            min_excitation: table.min_excitation(),
+            min_excitation_given: table.min_excitation_given(),
+            windows: table.windows().len(),
+            links: Vec::new(),
+            source_components: check.source_components,
+            shortfalls,
+            stats: stats(&inst, None, f64::NAN),
+            timings: Timings {
+                greedy: started.elapsed(),
+                excitation: inst.oracle.stats.borrow().time,
+                ..Timings::default()
+            },
+        };
+    }
+    let greedy = heuristics::reverse_delete(&inst, &all);
+    let greedy_cost = inst.cost(&greedy);
+    let greedy_time = started.elapsed();
+    let result = bnc::search(&inst, greedy, deadline, options.progress);
+    let search_time = started.elapsed() - greedy_time;
+    // Final irreducibility: drop any link whose removal keeps the condition.
+    let best = heuristics::reverse_delete(&inst, &result.best);
+    let cost = inst.cost(&best);
+    let lower = result.lower_bound.min(cost);
+    let gap = if cost > 0.0 { ((cost - lower) / cost).max(0.0) } else { 0.0 };
+    let status = if gap <= 1e-9 {
+        PlanStatus::Optimal
+    } else if result.timed_out {
+        PlanStatus::TimeLimit
+    } else {
+        PlanStatus::Feasible
+    };
+    let set = LinkSet::new(
+        best.iter()
+            .enumerate()
+            .filter(|(_, c)| **c)
+            .map(|(k, _)| LinkId(k as u32))
+            .collect(),
+    );
+    let check = analysis::check(problem, table, &set);
+    let s = &result.stats;
+    Plan {
+        network: problem.name.clone(),
+        status,
+        cost: Some(cost),
+        lower_bound: Some(lower),
+        gap: Some(gap),
+        min_excitation: table.min_excitation(),
+        min_excitation_given: table.min_excitation_given(),
+        windows: table.windows().len(),
+        links: chosen_links(problem, &set),
+        source_components: check.source_components,
+        shortfalls: Vec::new(),
+        stats: stats(&inst, Some(s), greedy_cost),
+        timings: Timings {
+            greedy: greedy_time,
+            search: search_time,
+            excitation: inst.oracle.stats.borrow().time,
+            separation: s.separation_time.saturating_sub(inst.oracle.stats.borrow().time),
+            solver: s.lp_time,
+            heuristics: s.heuristic_time,
+        },
+    }
+}
+
+fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> PlanStats {
+    let o = *inst.oracle.stats.borrow();
+    PlanStats {
+        greedy_cost,
+        root_lp_bound: s.map_or(f64::NAN, |s| s.root_bound),
+        rounds: s.map_or(0, |s| s.rounds),
+        cuts: s.map_or(0, |s| s.cuts),
+        nodes: s.map_or(0, |s| s.nodes),
+        lp_solves: s.map_or(0, |s| s.lp_solves),
+        excitation_queries: o.queries,
+        excitation_scans: o.scans,
+    }
+}
+
+/// The plan's links as output records.
+pub fn chosen_links(problem: &Problem, set: &LinkSet) -> Vec<ChosenLink> {
+    set.ids()
+        .iter()
+        .map(|&l| {
+            let link = problem.link(l);
+            let (a, b, two_way) = match link.ends {
+                Ends::TwoWay(a, b) => (a, b, true),
+                Ends::OneWay { from, to } => (from, to, false),
+            };
+            ChosenLink {
+                id: link.id.clone(),
+                from: problem.node_name(a).to_string(),
+                to: problem.node_name(b).to_string(),
+                two_way,
+                cost: if link.installed { 0.0 } else { link.cost },
+                installed: link.installed,
+            }
+        })
+        .collect()
+}
+
+fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {
+    let nodes: Vec<crate::problem::NodeId> = set.iter().map(|&v| crate::problem::NodeId(v)).collect();
+    let level = table.level(&nodes);
+    let names: Vec<String> = nodes.iter().map(|&v| problem.node_name(v).to_string()).collect();
+    // The nearest unit outside the group, when positions are known.
+    let nearest = nodes
+        .iter()
+        .filter_map(|&v| problem.nodes[v.index()].position.map(|p| (v, p)))
+        .flat_map(|(_, p)| {
+            problem
+                .nodes
+                .iter()
+                .enumerate()
+                .filter(|(k, n)| !set.contains(&(*k as u32)) && n.position.is_some())
+                .map(move |(k, n)| {
+                    let q = n.position.unwrap_or_default();
+                    ((p[0] - q[0]).hypot(p[1] - q[1]), k)
+                })
+        })
+        .min_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    let link_hint = match nearest {
+        Some((d, k)) => format!(
+            "add a candidate link into it, e.g. from {} ({d:.2} km away)",
+            problem.nodes[k].id
+        ),
+        None => "add a candidate link into it from a unit outside it".to_string(),
+    };
+    let dir: Vec<String> = level.direction.iter().map(|x| format!("{x:+.3}")).collect();
+    Shortfall {
+        remedy: format!(
+            "no candidate link enters this group: {link_hint}, or give its units more excitation along [{}]",
+            dir.join(", ")
+        ),
+        nodes: names,
+        excitation: level.value,
+        weakest_direction: level.direction,
+        weakest_window_start: table.windows().get(level.window).map_or(problem.domain.h0, |w| w.start),
+    }
+}
