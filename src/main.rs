@@ -14,8 +14,8 @@ use clap::{Args, Parser, Subcommand};
 use exmesh::{ExcitationTable, InputError, LinkSet, analysis, problem, report, search};
 use std::io::Write;
 use std::path::{Path, PathBuf};
-use std::time::Duration;
 use std::process::ExitCode;
+use std::time::Duration;
 
 #[derive(Parser)]
 #[command(
@@ -119,20 +119,26 @@ fn run() -> anyhow::Result<ExitCode> {
             let time_limit = match time_limit {
                 Some(t) if t.is_finite() && t > 0.0 => Some(Duration::from_secs_f64(t)),
                 Some(t) => {
-                    eprintln!("exmesh: error: --time-limit {t}: expected a positive number of seconds");
+                    eprintln!(
+                        "exmesh: error: --time-limit {t}: expected a positive number of seconds"
+                    );
                     return Ok(ExitCode::from(2));
                 }
                 None => None,
             };
             let problem = problem::load(&problem)?;
             let table = ExcitationTable::build(&problem);
-            let options = search::Options { time_limit, progress: true };
+            let options = search::Options {
+                time_limit,
+                progress: true,
+            };
             let plan = search::plan(&problem, &table, &options);
             let feasible = plan.status != search::PlanStatus::Infeasible;
             if let (Some(path), true) = (plan_path, feasible) {
                 let mut bytes = Vec::new();
                 report::json::write(&plan, &mut bytes)?;
-                write_atomically(&path, &bytes).with_context(|| format!("writing the plan to {}", path.display()))?;
+                write_atomically(&path, &bytes)
+                    .with_context(|| format!("writing the plan to {}", path.display()))?;
             }
             if json {
                 report::json::write(&plan, &mut out)
@@ -140,7 +146,11 @@ fn run() -> anyhow::Result<ExitCode> {
                 report::text::plan(&plan, &mut out)
             }
             .context("writing the plan")?;
-            if feasible { ExitCode::SUCCESS } else { ExitCode::from(1) }
+            if feasible {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(1)
+            }
         }
         Command::Check {
             problem,
@@ -176,8 +186,14 @@ fn run() -> anyhow::Result<ExitCode> {
 /// Writes `bytes` to a temporary file beside `path`, then renames it, so a
 /// failed run never leaves a half-written file.
 fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
-    let dir = path.parent().filter(|d| !d.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let dir = path
+        .parent()
+        .filter(|d| !d.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
     let result = std::fs::write(&tmp, bytes).and_then(|()| std::fs::rename(&tmp, path));
     if result.is_err() {

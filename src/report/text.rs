@@ -161,21 +161,46 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     threshold(out, p.min_excitation, p.min_excitation_given, p.windows)?;
     if p.status == PlanStatus::Infeasible {
         writeln!(out)?;
-        writeln!(out, "Even with every candidate link, {} group(s) of units form a source component that is not excited:", p.shortfalls.len())?;
+        writeln!(
+            out,
+            "Even with every candidate link, {} group(s) of units form a source component that is not excited:",
+            p.shortfalls.len()
+        )?;
         for s in &p.shortfalls {
             writeln!(out, "  units: {}", s.nodes.join(", "))?;
-            writeln!(out, "    level {:.4e}, weakest direction {} (window from t = {})", s.excitation, direction(&s.weakest_direction), s.weakest_window_start)?;
+            writeln!(
+                out,
+                "    level {:.4e}, weakest direction {} (window from t = {})",
+                s.excitation,
+                direction(&s.weakest_direction),
+                s.weakest_window_start
+            )?;
             writeln!(out, "    fix: {}", s.remedy)?;
         }
         return cautions(out);
     }
-    let (cost, lower, gap) = (p.cost.unwrap_or(0.0), p.lower_bound.unwrap_or(0.0), p.gap.unwrap_or(0.0));
-    writeln!(out, "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %", 100.0 * gap)?;
+    let (cost, lower, gap) = (
+        p.cost.unwrap_or(0.0),
+        p.lower_bound.unwrap_or(0.0),
+        p.gap.unwrap_or(0.0),
+    );
+    writeln!(
+        out,
+        "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %",
+        100.0 * gap
+    )?;
     writeln!(out)?;
     let ends: Vec<String> = p
         .links
         .iter()
-        .map(|l| format!("{} {} {}", l.from, if l.two_way { "<->" } else { "->" }, l.to))
+        .map(|l| {
+            format!(
+                "{} {} {}",
+                l.from,
+                if l.two_way { "<->" } else { "->" },
+                l.to
+            )
+        })
         .collect();
     let width = ends.iter().map(|e| e.chars().count()).max().unwrap_or(4);
     writeln!(out, "{} link(s):", p.links.len())?;
@@ -202,7 +227,14 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     writeln!(
         out,
         "search: greedy {:.2}, root LP bound {:.2}, {} rounds, {} rows, {} nodes, {} LP solves, {} excitation queries ({} full scans)",
-        s.greedy_cost, s.root_lp_bound, s.rounds, s.cuts, s.nodes, s.lp_solves, s.excitation_queries, s.excitation_scans
+        s.greedy_cost,
+        s.root_lp_bound,
+        s.rounds,
+        s.cuts,
+        s.nodes,
+        s.lp_solves,
+        s.excitation_queries,
+        s.excitation_scans
     )?;
     writeln!(
         out,

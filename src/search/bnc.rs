@@ -4,7 +4,7 @@
 use super::cuts::{Pool, Row, enumerate_separate, grow_separate, grown_rows, separate};
 use super::heuristics::repair;
 use super::instance::Instance;
-use microlp::{ComparisonOp, OptimizationDirection, SolveOutcome, Solution, Variable};
+use microlp::{ComparisonOp, OptimizationDirection, Solution, SolveOutcome, Variable};
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
 use std::io::IsTerminal;
@@ -43,7 +43,10 @@ struct Lp {
 
 impl Lp {
     fn values(&self) -> Vec<f64> {
-        self.vars.iter().map(|&v| self.sol.var_value_raw(v)).collect()
+        self.vars
+            .iter()
+            .map(|&v| self.sol.var_value_raw(v))
+            .collect()
     }
 
     fn objective(&self) -> f64 {
@@ -52,12 +55,19 @@ impl Lp {
 
     /// Adds a row; `false` when the LP became infeasible (the LP is gone).
     fn add(mut self, index: usize, row: &Row) -> Option<Self> {
-        let expr: Vec<(Variable, f64)> = row.links.iter().map(|&k| (self.vars[k as usize], 1.0)).collect();
+        let expr: Vec<(Variable, f64)> = row
+            .links
+            .iter()
+            .map(|&k| (self.vars[k as usize], 1.0))
+            .collect();
         if self.has.len() <= index {
             self.has.resize(index + 1, false);
         }
         self.has[index] = true;
-        match self.sol.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64) {
+        match self
+            .sol
+            .add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64)
+        {
             Ok(SolveOutcome::Solution(sol)) => {
                 self.sol = sol;
                 Some(self)
@@ -67,7 +77,10 @@ impl Lp {
     }
 
     fn fix(mut self, k: usize, value: bool) -> Option<Self> {
-        match self.sol.fix_var(self.vars[k], if value { 1.0 } else { 0.0 }) {
+        match self
+            .sol
+            .fix_var(self.vars[k], if value { 1.0 } else { 0.0 })
+        {
             Ok(SolveOutcome::Solution(sol)) => {
                 self.sol = sol;
                 Some(self)
@@ -284,12 +297,21 @@ fn branch_variable(inst: &Instance, y: &[f64]) -> Option<usize> {
 }
 
 fn bound_of(inst: &Instance, obj: f64) -> f64 {
-    if inst.integral_costs { (obj - 1e-6).ceil() } else { obj }
+    if inst.integral_costs {
+        (obj - 1e-6).ceil()
+    } else {
+        obj
+    }
 }
 
 /// Runs branch and cut from the incumbent `start` (which satisfies the
 /// condition), until optimality is proven or the deadline passes.
-pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant>, progress: bool) -> SearchResult {
+pub(crate) fn search(
+    inst: &Instance,
+    start: Vec<bool>,
+    deadline: Option<Instant>,
+    progress: bool,
+) -> SearchResult {
     let now = Instant::now();
     let mut s = Search {
         inst,
@@ -308,10 +330,10 @@ pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant
     let mut seed = Vec::new();
     let mut part_of = Vec::new();
     for v in 0..inst.n as u32 {
-        if !inst.oracle.excited(&[v]) {
-            if let Some(r) = super::cuts::cover_row(inst, &[v], &mut part_of) {
-                seed.push(r);
-            }
+        if !inst.oracle.excited(&[v])
+            && let Some(r) = super::cuts::cover_row(inst, &[v], &mut part_of)
+        {
+            seed.push(r);
         }
     }
     s.pool_add(seed);
@@ -324,7 +346,8 @@ pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant
         .map(|l| problem.add_var(l.cost, (if l.installed { 1.0 } else { 0.0 }, 1.0)))
         .collect();
     for row in &s.pool.rows {
-        let expr: Vec<(Variable, f64)> = row.links.iter().map(|&k| (vars[k as usize], 1.0)).collect();
+        let expr: Vec<(Variable, f64)> =
+            row.links.iter().map(|&k| (vars[k as usize], 1.0)).collect();
         problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64);
     }
     let t = Instant::now();
@@ -403,7 +426,9 @@ pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant
         // Dive: process, branch, continue with the y = 1 child.
         loop {
             s.stats.nodes += 1;
-            let Some((lp, y)) = s.cut_loop(current, 8) else { break };
+            let Some((lp, y)) = s.cut_loop(current, 8) else {
+                break;
+            };
             let obj = lp.objective();
             match branch_variable(inst, &y) {
                 None => {
@@ -423,7 +448,7 @@ pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant
                     break;
                 }
                 Some(k) => {
-                    if s.stats.nodes % 20 == 0 {
+                    if s.stats.nodes.is_multiple_of(20) {
                         s.heuristic(&y);
                     }
                     let b = bound_of(inst, obj);
@@ -461,7 +486,11 @@ pub(crate) fn search(inst: &Instance, start: Vec<bool>, deadline: Option<Instant
         }
     }
     let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
-    let lb = if timed_out { open_bound.max(lower).min(s.best_cost) } else { s.best_cost };
+    let lb = if timed_out {
+        open_bound.max(lower).min(s.best_cost)
+    } else {
+        s.best_cost
+    };
     finish(s, lb, timed_out)
 }
 

@@ -38,7 +38,11 @@ const REST: u32 = u32::MAX;
 
 /// The row for `parts` (see the module notes), or `None` when installed
 /// links already satisfy it.
-pub(crate) fn partition_row(inst: &Instance, parts: &[Vec<u32>], part_of: &mut Vec<u32>) -> Option<Row> {
+pub(crate) fn partition_row(
+    inst: &Instance,
+    parts: &[Vec<u32>],
+    part_of: &mut Vec<u32>,
+) -> Option<Row> {
     if parts.is_empty() {
         return None;
     }
@@ -72,9 +76,10 @@ pub(crate) fn partition_row(inst: &Instance, parts: &[Vec<u32>], part_of: &mut V
     for part in parts {
         for &b in part {
             for &k in &inst.heads[b as usize] {
-                let crosses = inst.links[k].arcs.iter().any(|&(from, to)| {
-                    to == b && part_of[from as usize] != part_of[b as usize]
-                });
+                let crosses = inst.links[k]
+                    .arcs
+                    .iter()
+                    .any(|&(from, to)| to == b && part_of[from as usize] != part_of[b as usize]);
                 if crosses {
                     links.push(k as u32);
                 }
@@ -92,7 +97,10 @@ pub(crate) fn partition_row(inst: &Instance, parts: &[Vec<u32>], part_of: &mut V
             true
         }
     });
-    (rhs > 0).then(|| Row { links, rhs: rhs as u32 })
+    (rhs > 0).then_some(Row {
+        links,
+        rhs: rhs as u32,
+    })
 }
 
 /// The cut `y(δ^in(U)) ≥ 1` of a non-excited set.
@@ -135,14 +143,20 @@ pub(crate) fn separate(inst: &Instance, y: &[f64], thresholds: &[f64], out: &mut
     let mut part_of = Vec::new();
     let mut seen: HashSet<Vec<u32>> = HashSet::new();
     let push = |row: Option<Row>, out: &mut Vec<Row>| {
-        if let Some(r) = row {
-            if r.violation(y) > 1e-6 && !out.contains(&r) {
-                out.push(r);
-            }
+        if let Some(r) = row
+            && r.violation(y) > 1e-6
+            && !out.contains(&r)
+        {
+            out.push(r);
         }
     };
     for &t in thresholds {
-        let chosen: Vec<bool> = inst.links.iter().zip(y).map(|(l, &v)| l.installed || v >= t).collect();
+        let chosen: Vec<bool> = inst
+            .links
+            .iter()
+            .zip(y)
+            .map(|(l, &v)| l.installed || v >= t)
+            .collect();
         let sources = inst.source_components(&chosen);
         let mut bad: Vec<Vec<u32>> = Vec::new();
         for c in &sources {
@@ -188,7 +202,10 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
     // y-weight of the arcs into each unit, per link.
     let mut in_y = vec![0.0; n];
     for (b, links) in inst.heads.iter().enumerate() {
-        in_y[b] = links.iter().map(|&k| if inst.links[k].installed { 1.0 } else { y[k] }).sum();
+        in_y[b] = links
+            .iter()
+            .map(|&k| if inst.links[k].installed { 1.0 } else { y[k] })
+            .sum();
     }
     let yk = |k: usize| if inst.links[k].installed { 1.0 } else { y[k] };
     let mut part_of = Vec::new();
@@ -206,10 +223,11 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
                 0
             };
             let violation = set.len() as f64 - nu as f64 - activity;
-            if violation > 1e-6 && found.insert(sorted(&set)) {
-                if let Some(r) = singleton_row(inst, &sorted(&set), &mut part_of) {
-                    out.push(r);
-                }
+            if violation > 1e-6
+                && found.insert(sorted(&set))
+                && let Some(r) = singleton_row(inst, &sorted(&set), &mut part_of)
+            {
+                out.push(r);
             }
             if set.len() >= max_size {
                 break;
@@ -227,11 +245,15 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
                         // (they also have a head in the set).
                         let counted: f64 = inst.heads[u as usize]
                             .iter()
-                            .filter(|&&l| inst.links[l].arcs.iter().any(|&(_, t)| inside[t as usize]))
+                            .filter(|&&l| {
+                                inst.links[l].arcs.iter().any(|&(_, t)| inside[t as usize])
+                            })
                             .map(|&l| yk(l))
                             .sum();
                         let gain = 1.0 - (in_y[u as usize] - counted);
-                        if best.is_none_or(|(g, bu)| gain > g + 1e-12 || ((gain - g).abs() <= 1e-12 && u < bu)) {
+                        if best.is_none_or(|(g, bu)| {
+                            gain > g + 1e-12 || ((gain - g).abs() <= 1e-12 && u < bu)
+                        }) {
                             best = Some((gain, u));
                         }
                     }
@@ -258,10 +280,11 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
             if inst.oracle.excited(&s) {
                 break;
             }
-            if let Some(r) = cover_row(inst, &s, &mut part_of) {
-                if r.violation(y) > 1e-6 && found.insert(s.clone()) {
-                    out.push(r);
-                }
+            if let Some(r) = cover_row(inst, &s, &mut part_of)
+                && r.violation(y) > 1e-6
+                && found.insert(s.clone())
+            {
+                out.push(r);
             }
             // Add the outside unit with the most y on arcs into the set.
             let mut weight: Vec<(u32, f64)> = Vec::new();
@@ -277,7 +300,12 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
                     }
                 }
             }
-            let Some(&(u, _)) = weight.iter().max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0))) else { break };
+            let Some(&(u, _)) = weight
+                .iter()
+                .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0)))
+            else {
+                break;
+            };
             set.push(u);
             inside[u as usize] = true;
         }
@@ -377,17 +405,16 @@ pub(crate) fn enumerate_separate(inst: &Instance, y: &[f64], max_size: usize, ou
             if !seen.insert(s.clone()) {
                 continue;
             }
-            if let Some(r) = singleton_row(inst, &s, &mut part_of) {
-                if r.violation(y) > 1e-6 {
-                    out.push(r);
-                }
+            if let Some(r) = singleton_row(inst, &s, &mut part_of)
+                && r.violation(y) > 1e-6
+            {
+                out.push(r);
             }
-            if !inst.oracle.excited(&s) {
-                if let Some(r) = cover_row(inst, &s, &mut part_of) {
-                    if r.violation(y) > 1e-6 {
-                        out.push(r);
-                    }
-                }
+            if !inst.oracle.excited(&s)
+                && let Some(r) = cover_row(inst, &s, &mut part_of)
+                && r.violation(y) > 1e-6
+            {
+                out.push(r);
             }
             for &v in &s {
                 for &u in &nbrs[v as usize] {

@@ -13,7 +13,12 @@ pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
     let mut order: Vec<usize> = (0..inst.links.len())
         .filter(|&k| chosen[k] && !inst.links[k].installed)
         .collect();
-    order.sort_by(|&a, &b| inst.links[b].cost.total_cmp(&inst.links[a].cost).then(b.cmp(&a)));
+    order.sort_by(|&a, &b| {
+        inst.links[b]
+            .cost
+            .total_cmp(&inst.links[a].cost)
+            .then(b.cmp(&a))
+    });
     for k in order {
         chosen[k] = false;
         if !inst.holds(&chosen) {
@@ -28,7 +33,12 @@ pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
 /// with the least cost·(1 − y) (ties: cheaper, then lower index); finally
 /// reverse-delete. Returns `None` when even all candidates fail.
 pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
-    let mut chosen: Vec<bool> = inst.links.iter().zip(y).map(|(l, &v)| l.installed || v >= 0.5).collect();
+    let mut chosen: Vec<bool> = inst
+        .links
+        .iter()
+        .zip(y)
+        .map(|(l, &v)| l.installed || v >= 0.5)
+        .collect();
     loop {
         let bad = inst.violations(&chosen);
         if bad.is_empty() {
@@ -44,12 +54,17 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
                     if chosen[k] {
                         continue;
                     }
-                    let enters = inst.links[k].arcs.iter().any(|&(f, t)| t == b && !inside[f as usize]);
+                    let enters = inst.links[k]
+                        .arcs
+                        .iter()
+                        .any(|&(f, t)| t == b && !inside[f as usize]);
                     if enters {
                         let cost = inst.links[k].cost;
                         let score = cost * (1.0 - y[k].clamp(0.0, 1.0)) + 1e-9 * cost;
                         let key = (score, cost, k);
-                        if best.is_none_or(|b| key.0 < b.0 || (key.0 == b.0 && (key.1, key.2) < (b.1, b.2))) {
+                        if best.is_none_or(|b| {
+                            key.0 < b.0 || (key.0 == b.0 && (key.1, key.2) < (b.1, b.2))
+                        }) {
                             best = Some(key);
                         }
                     }

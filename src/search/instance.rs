@@ -151,7 +151,9 @@ impl<'a> Instance<'a> {
                 }
             }
         }
-        let integral_costs = links.iter().all(|l| l.cost.fract() == 0.0 && l.cost.abs() < 1e15);
+        let integral_costs = links
+            .iter()
+            .all(|l| l.cost.fract() == 0.0 && l.cost.abs() < 1e15);
         Instance {
             n,
             links,
@@ -162,7 +164,13 @@ impl<'a> Instance<'a> {
     }
 
     pub fn cost(&self, chosen: &[bool]) -> f64 {
-        0.0 + self.links.iter().zip(chosen).filter(|(_, c)| **c).map(|(l, _)| l.cost).sum::<f64>()
+        0.0 + self
+            .links
+            .iter()
+            .zip(chosen)
+            .filter(|(_, c)| **c)
+            .map(|(l, _)| l.cost)
+            .sum::<f64>()
     }
 
     /// Source components of the digraph of the links with `chosen[k]`, each
@@ -204,7 +212,9 @@ impl<'a> Instance<'a> {
     }
 
     pub fn holds(&self, chosen: &[bool]) -> bool {
-        self.source_components(chosen).iter().all(|c| self.oracle.excited(c))
+        self.source_components(chosen)
+            .iter()
+            .all(|c| self.oracle.excited(c))
     }
 }
 

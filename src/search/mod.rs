@@ -192,7 +192,11 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     let best = heuristics::reverse_delete(&inst, &result.best);
     let cost = inst.cost(&best);
     let lower = result.lower_bound.min(cost);
-    let gap = if cost > 0.0 { ((cost - lower) / cost).max(0.0) } else { 0.0 };
+    let gap = if cost > 0.0 {
+        ((cost - lower) / cost).max(0.0)
+    } else {
+        0.0
+    };
     let status = if gap <= 1e-9 {
         PlanStatus::Optimal
     } else if result.timed_out {
@@ -226,7 +230,9 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             greedy: greedy_time,
             search: search_time,
             excitation: inst.oracle.stats.borrow().time,
-            separation: s.separation_time.saturating_sub(inst.oracle.stats.borrow().time),
+            separation: s
+                .separation_time
+                .saturating_sub(inst.oracle.stats.borrow().time),
             solver: s.lp_time,
             heuristics: s.heuristic_time,
         },
@@ -270,9 +276,13 @@ pub fn chosen_links(problem: &Problem, set: &LinkSet) -> Vec<ChosenLink> {
 }
 
 fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {
-    let nodes: Vec<crate::problem::NodeId> = set.iter().map(|&v| crate::problem::NodeId(v)).collect();
+    let nodes: Vec<crate::problem::NodeId> =
+        set.iter().map(|&v| crate::problem::NodeId(v)).collect();
     let level = table.level(&nodes);
-    let names: Vec<String> = nodes.iter().map(|&v| problem.node_name(v).to_string()).collect();
+    let names: Vec<String> = nodes
+        .iter()
+        .map(|&v| problem.node_name(v).to_string())
+        .collect();
     // The nearest unit outside the group, when positions are known.
     let nearest = nodes
         .iter()
@@ -305,6 +315,9 @@ fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfa
         nodes: names,
         excitation: level.value,
         weakest_direction: level.direction,
-        weakest_window_start: table.windows().get(level.window).map_or(problem.domain.h0, |w| w.start),
+        weakest_window_start: table
+            .windows()
+            .get(level.window)
+            .map_or(problem.domain.h0, |w| w.start),
     }
 }

@@ -112,3 +112,82 @@ from = "a"
 to = "c"
 cost = 4.0
 "#;
+
+use exmesh::ExcitationTable;
+use exmesh::problem::{Ends, Gains, Link, Node, NodeId, Problem, Settings};
+use exmesh::signal::{Log, Window, WindowKind};
+
+/// A link for [`synthetic`]: (a, b, cost, two_way).
+pub type Edge = (usize, usize, f64, bool);
+
+/// A problem on `n` units with the given links, whose excitation comes from
+/// `gram` (packed p×p per window and unit, index `(w * n + i) * q`), not from
+/// the (silent) logs. μ_req is `mu`.
+pub fn synthetic(
+    n: usize,
+    p: usize,
+    edges: &[Edge],
+    windows: usize,
+    gram: Vec<f64>,
+    mu: f64,
+) -> (Problem, ExcitationTable) {
+    let nodes: Vec<Node> = (0..n)
+        .map(|i| Node {
+            id: format!("n{i}"),
+            position: None,
+            log: Log {
+                path: PathBuf::from(format!("n{i}.csv")),
+                p,
+                t: vec![0.0, windows as f64],
+                j: vec![0, 0],
+                psi: vec![0.0; 2 * p],
+                y: None,
+            },
+        })
+        .collect();
+    let links: Vec<Link> = edges
+        .iter()
+        .enumerate()
+        .map(|(k, &(a, b, cost, two_way))| Link {
+            id: format!("l{k}"),
+            ends: if two_way {
+                Ends::TwoWay(NodeId(a as u32), NodeId(b as u32))
+            } else {
+                Ends::OneWay {
+                    from: NodeId(a as u32),
+                    to: NodeId(b as u32),
+                }
+            },
+            cost,
+            weight: 1.0,
+            installed: false,
+            generated: false,
+        })
+        .collect();
+    let settings = Settings {
+        name: "synthetic".into(),
+        parameters: p,
+        window: 1.0,
+        window_kind: WindowKind::Time,
+        stride: Some(1.0),
+        min_excitation: Some(mu),
+        target_rate: None,
+        gains: Gains::default(),
+    };
+    let problem = Problem::from_parts(PathBuf::from("synthetic.toml"), settings, nodes, links)
+        .expect("valid synthetic problem");
+    let ws: Vec<Window> = (0..windows)
+        .map(|k| Window {
+            start: k as f64,
+            end: k as f64 + 1.0,
+            jumps_through_end: false,
+        })
+        .collect();
+    let table = ExcitationTable::from_gramians(n, p, ws, gram, Some(mu));
+    (problem, table)
+}
+
+/// Gramians for p = 1, one window: unit `root` has 1, the others 0.
+pub fn one_root(n: usize, root: usize) -> Vec<f64> {
+    (0..n).map(|i| if i == root { 1.0 } else { 0.0 }).collect()
+}

@@ -5,4 +5,5 @@
 mod cli;
 mod external;
 mod fixtures;
+mod planning;
 mod props;

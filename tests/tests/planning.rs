@@ -1,0 +1,354 @@
+//! The planner against outside references: textbook minimum spanning tree
+//! and minimum arborescence, petgraph's Kruskal, and brute force.
+
+use super::fixtures::{Edge, Folder, exmesh, one_root, small_problem, synthetic};
+use exmesh::problem::{LinkId, LinkSet, NodeId};
+use exmesh::search::{self, Options, PlanStatus};
+use exmesh::topology::Topology;
+use exmesh::{ExcitationTable, Problem};
+use proptest::prelude::*;
+
+fn plan(problem: &Problem, table: &ExcitationTable) -> search::Plan {
+    search::plan(problem, table, &Options::default())
+}
+
+/// Cormen, Leiserson, Rivest & Stein, "Introduction to Algorithms", 3rd ed.,
+/// 2009, Fig. 23.1: the 9-vertex graph whose minimum spanning tree costs 37.
+/// Two-way links with symmetric costs and one excited unit reduce the plan
+/// to the minimum spanning tree.
+#[test]
+fn clrs_figure_23_1_minimum_spanning_tree() {
+    let idx = |c: char| (c as u8 - b'a') as usize;
+    let edges: Vec<Edge> = [
+        ("ab", 4.0),
+        ("ah", 8.0),
+        ("bc", 8.0),
+        ("bh", 11.0),
+        ("cd", 7.0),
+        ("cf", 4.0),
+        ("ci", 2.0),
+        ("de", 9.0),
+        ("df", 14.0),
+        ("ef", 10.0),
+        ("fg", 2.0),
+        ("gh", 1.0),
+        ("gi", 6.0),
+        ("hi", 7.0),
+    ]
+    .iter()
+    .map(|(e, c)| {
+        let mut ch = e.chars();
+        (idx(ch.next().unwrap()), idx(ch.next().unwrap()), *c, true)
+    })
+    .collect();
+    for root in 0..9 {
+        let (problem, table) = synthetic(9, 1, &edges, 1, one_root(9, root), 0.5);
+        let p = plan(&problem, &table);
+        assert_eq!(p.status, PlanStatus::Optimal);
+        assert_eq!(p.cost, Some(37.0), "root {root}");
+        assert_eq!(p.lower_bound, Some(37.0));
+        assert_eq!(p.links.len(), 8);
+    }
+}
+
+/// Edmonds, "Optimum branchings", J. Res. NBS 71B, 1967: the 9-node example
+/// as reproduced in NetworkX's branching tests (networkx/algorithms/tree/
+/// tests/test_branchings.py); the minimum spanning arborescence rooted at 3
+/// costs 96. One-way links and one excited root reduce the plan to it.
+#[test]
+fn edmonds_optimum_branching_example() {
+    let arcs = [
+        (0, 2, 12.0),
+        (0, 4, 12.0),
+        (1, 0, 4.0),
+        (1, 5, 13.0),
+        (2, 1, 17.0),
+        (2, 3, 21.0),
+        (2, 5, 12.0),
+        (3, 0, 5.0),
+        (3, 4, 17.0),
+        (3, 6, 18.0),
+        (4, 7, 12.0),
+        (5, 6, 14.0),
+        (5, 8, 12.0),
+        (6, 2, 21.0),
+        (6, 8, 15.0),
+        (7, 3, 19.0),
+        (7, 6, 15.0),
+        (8, 7, 18.0),
+    ];
+    let edges: Vec<Edge> = arcs.iter().map(|&(a, b, c)| (a, b, c, false)).collect();
+    let (problem, table) = synthetic(9, 1, &edges, 1, one_root(9, 3), 0.5);
+    let p = plan(&problem, &table);
+    assert_eq!(p.status, PlanStatus::Optimal);
+    assert_eq!(p.cost, Some(96.0));
+    assert_eq!(p.links.len(), 8);
+    // Every unit but the root listens to exactly one link.
+    for v in (0..9).filter(|&v| v != 3) {
+        assert_eq!(
+            p.links.iter().filter(|l| l.to == format!("n{v}")).count(),
+            1
+        );
+    }
+}
+
+/// Independent condition check: petgraph's condensation and an eigenvalue
+/// scan per source component.
+fn holds(problem: &Problem, table: &ExcitationTable, chosen: &[usize]) -> bool {
+    let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
+    let topo = Topology::analyse(problem.n(), &problem.arcs(&set));
+    topo.sources()
+        .all(|c| table.level(&c.nodes).value >= table.min_excitation())
+}
+
+fn brute_force(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
+    let m = problem.links.len();
+    let mut best: Option<f64> = None;
+    for mask in 0u32..(1 << m) {
+        let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
+        let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
+        if best.is_some_and(|b| cost >= b) {
+            continue;
+        }
+        if holds(problem, table, &chosen) {
+            best = Some(cost);
+        }
+    }
+    best
+}
+
+fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
+    p.links
+        .iter()
+        .map(|l| problem.links.iter().position(|c| c.id == l.id).unwrap())
+        .collect()
+}
+
+fn instance_strategy() -> impl Strategy<Value = (usize, usize, Vec<Edge>, Vec<f64>)> {
+    (3usize..=7, 2usize..=3).prop_flat_map(|(n, p)| {
+        // A two-way spanning path (so most instances are feasible), then
+        // random extra links of either kind, at most 12 links in all.
+        let path = prop::collection::vec(1u32..20, n - 1);
+        let edge =
+            (0..n, 0..n, 1u32..20, any::<bool>()).prop_map(|(a, b, c, t)| (a, b, c as f64, t));
+        let extra = prop::collection::vec(edge, 0..=(13 - n));
+        let edges = (path, extra).prop_map(move |(path, extra)| {
+            let mut v: Vec<Edge> = path
+                .iter()
+                .enumerate()
+                .map(|(k, &c)| (k, k + 1, c as f64, true))
+                .collect();
+            v.extend(extra.into_iter().filter(|e| e.0 != e.1));
+            v
+        });
+        // Each unit on each of two windows: a rank-1 Gramian v vᵀ (or zero).
+        let vectors = prop::collection::vec(-1.0f64..1.0, 2 * n * p);
+        let present = prop::collection::vec(prop::bool::weighted(0.8), 2 * n);
+        (
+            Just(n),
+            Just(p),
+            edges,
+            (vectors, present).prop_map(move |(v, on)| {
+                let q = p * (p + 1) / 2;
+                let mut g = Vec::with_capacity(2 * n * q);
+                for k in 0..2 * n {
+                    let u = &v[k * p..(k + 1) * p];
+                    let s = if on[k] { 1.0 } else { 0.0 };
+                    for r in 0..p {
+                        for c in r..p {
+                            g.push(s * u[r] * u[c]);
+                        }
+                    }
+                }
+                g
+            }),
+        )
+    })
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 48, ..ProptestConfig::default() })]
+
+    /// Against brute force over all link subsets: same optimal cost (or both
+    /// infeasible); the plan satisfies the condition and is irreducible.
+    #[test]
+    fn plan_matches_brute_force((n, p, edges, gram) in instance_strategy()) {
+        let (problem, table) = synthetic(n, p, &edges, 2, gram, 0.05);
+        let got = plan(&problem, &table);
+        let want = brute_force(&problem, &table);
+        match want {
+            None => prop_assert_eq!(got.status, PlanStatus::Infeasible),
+            Some(best) => {
+                prop_assert_eq!(got.status, PlanStatus::Optimal);
+                let cost = got.cost.unwrap();
+                prop_assert!((cost - best).abs() < 1e-9, "plan {} vs brute force {}", cost, best);
+                let chosen = chosen_indices(&problem, &got);
+                prop_assert!(holds(&problem, &table, &chosen));
+                for k in 0..chosen.len() {
+                    let mut less = chosen.clone();
+                    less.remove(k);
+                    prop_assert!(!holds(&problem, &table, &less), "link {} can be dropped", chosen[k]);
+                }
+            }
+        }
+    }
+
+    /// One excited unit, two-way links: the plan costs what petgraph's
+    /// Kruskal minimum spanning tree costs on random connected graphs.
+    #[test]
+    fn plan_matches_kruskal(n in 2usize..9, extra in prop::collection::vec((0usize..9, 0usize..9, 1u32..50), 0..16), tree_costs in prop::collection::vec(1u32..50, 8), root in 0usize..9) {
+        let root = root % n;
+        // A random spanning path makes the graph connected, then extra edges.
+        let mut edges: Vec<Edge> = (1..n).map(|v| (v - 1, v, tree_costs[v - 1] as f64, true)).collect();
+        edges.extend(extra.iter().filter(|e| e.0 < n && e.1 < n && e.0 != e.1).map(|&(a, b, c)| (a, b, c as f64, true)));
+        let (problem, table) = synthetic(n, 1, &edges, 1, one_root(n, root), 0.5);
+        let got = plan(&problem, &table);
+        let mut g = petgraph::graph::UnGraph::<(), f64>::new_undirected();
+        let ids: Vec<_> = (0..n).map(|_| g.add_node(())).collect();
+        for &(a, b, c, _) in &edges {
+            g.add_edge(ids[a], ids[b], c);
+        }
+        let mst: f64 = petgraph::algo::min_spanning_tree(&g)
+            .filter_map(|e| match e {
+                petgraph::data::Element::Edge { weight, .. } => Some(weight),
+                _ => None,
+            })
+            .sum();
+        prop_assert_eq!(got.status, PlanStatus::Optimal);
+        prop_assert!((got.cost.unwrap() - mst).abs() < 1e-9, "plan {:?} vs Kruskal {}", got.cost, mst);
+    }
+}
+
+#[test]
+fn installed_links_are_kept_at_no_cost() {
+    // Path 0-1-2, root 0 excited; link 1-2 installed: plan adds 0-1 only.
+    let edges: Vec<Edge> = vec![(0, 1, 5.0, true), (1, 2, 7.0, true), (0, 2, 6.0, true)];
+    let (mut problem, table) = synthetic(3, 1, &edges, 1, one_root(3, 0), 0.5);
+    problem.links[1].installed = true;
+    let p = plan(&problem, &table);
+    assert_eq!(p.cost, Some(5.0));
+    assert_eq!(p.links.len(), 2);
+    assert!(p.links.iter().any(|l| l.installed && l.cost == 0.0));
+}
+
+#[test]
+fn infeasible_networks_are_explained() {
+    // Units 0 and 1 excite e1 only; 2 excites e2 but no link reaches 2 from
+    // outside, and {0, 1} can never see e2.
+    let edges: Vec<Edge> = vec![(0, 1, 1.0, true), (2, 1, 1.0, false)];
+    let gram = vec![1.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 1.0];
+    let (problem, table) = synthetic(3, 2, &edges, 1, gram, 0.5);
+    let p = plan(&problem, &table);
+    assert_eq!(p.status, PlanStatus::Infeasible);
+    assert_eq!(p.shortfalls.len(), 1);
+    assert_eq!(p.shortfalls[0].nodes, vec!["n2"]);
+    assert!(p.shortfalls[0].remedy.contains("no candidate link enters"));
+    let _ = NodeId(0);
+}
+
+#[test]
+fn plan_command_writes_a_plan_that_check_accepts() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &["plan", "problem.toml", "--out", "plan.json", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    for key in [
+        "status",
+        "cost",
+        "lower_bound",
+        "links",
+        "source_components",
+    ] {
+        assert!(v.get(key).is_some(), "missing key {key}");
+    }
+    assert_eq!(v["status"], "optimal");
+    // a<->b installed (0), then the cheaper of b->c (3) and a->c (4).
+    assert_eq!(v["cost"], 3.0);
+    assert_eq!(v["lower_bound"], 3.0);
+    let link = &v["links"][1];
+    assert_eq!(
+        (
+            link["from"].as_str(),
+            link["to"].as_str(),
+            link["two_way"].as_bool(),
+            link["cost"].as_f64()
+        ),
+        (Some("b"), Some("c"), Some(false), Some(3.0))
+    );
+    let file = std::fs::read_to_string(folder.path("plan.json")).unwrap();
+    assert_eq!(file, run.stdout, "the plan file is the JSON output");
+    let check = exmesh(dir, &["check", "problem.toml", "--plan", "plan.json"]);
+    assert_eq!(check.code, 0, "{}", check.stderr);
+    // Same input, same bytes.
+    let again = exmesh(dir, &["plan", "problem.toml", "--json"]);
+    assert_eq!(again.stdout, run.stdout);
+    // No temporary files left behind.
+    let names: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert!(names.iter().all(|n| !n.ends_with(".tmp")), "{names:?}");
+}
+
+#[test]
+fn infeasible_plan_exits_1_and_writes_nothing() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    // Without a->c and b->c, unit c (no excitation) can never be reached.
+    let text = super::fixtures::SMALL_PROBLEM
+        .replace("[[link]]\nfrom = \"b\"\nto = \"c\"\ncost = 3.0\n", "")
+        .replace("[[link]]\nfrom = \"a\"\nto = \"c\"\ncost = 4.0\n", "");
+    folder.write("problem.toml", &text);
+    let run = exmesh(
+        folder.dir.path(),
+        &["plan", "problem.toml", "--out", "plan.json"],
+    );
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    assert!(
+        run.stdout.contains("INFEASIBLE") && run.stdout.contains("units: c"),
+        "{}",
+        run.stdout
+    );
+    assert!(!folder.path("plan.json").exists());
+}
+
+#[test]
+fn plan_runs_on_both_demos() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let run = exmesh(
+        root,
+        &["plan", "problems/plateau-masts/problem.toml", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["status"], "optimal");
+    let run = exmesh(
+        root,
+        &[
+            "plan",
+            "problems/delta-substations/problem.toml",
+            "--time-limit",
+            "3",
+            "--json",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let (cost, lower) = (
+        v["cost"].as_f64().unwrap(),
+        v["lower_bound"].as_f64().unwrap(),
+    );
+    assert!(lower <= cost && lower > 0.0);
+    assert!(
+        v["source_components"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|c| c["excited"] == true)
+    );
+}
