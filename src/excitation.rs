@@ -369,11 +369,24 @@ impl ExcitationTable {
     /// # Complexity
     /// O(W (|S| p² + p³)) at worst.
     pub fn is_excited(&self, nodes: &[NodeId]) -> bool {
+        self.first_weak_window(nodes, 0..self.windows.len())
+            .is_none()
+    }
+
+    /// The first window, in the given order, where the set's pooled Gramian
+    /// has λ_min below μ_req (`None`: the set is excited on all of them).
+    /// Callers that keep the windows that failed recently at the front make
+    /// rejections cheap.
+    pub fn first_weak_window(
+        &self,
+        nodes: &[NodeId],
+        order: impl IntoIterator<Item = usize>,
+    ) -> Option<usize> {
         let mut sum = vec![0.0; packed_len(self.p)];
         let mut work = vec![0.0; self.p * self.p];
-        (0..self.windows.len()).all(|w| {
+        order.into_iter().find(|&w| {
             self.pool_into(w, nodes, &mut sum);
-            at_least(self.p, &sum, self.min_excitation, &mut work)
+            !at_least(self.p, &sum, self.min_excitation, &mut work)
         })
     }
 }

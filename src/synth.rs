@@ -319,6 +319,49 @@ pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
             }
         }
     }
+    // Join the pieces of the radius graph (an isolated unit could never be
+    // excited): link the closest pair between the first piece and the rest
+    // until the candidate graph is connected.
+    loop {
+        let mut piece: Vec<usize> = (0..n).collect();
+        fn find(piece: &mut [usize], v: usize) -> usize {
+            let mut r = v;
+            while piece[r] != r {
+                r = piece[r];
+            }
+            piece[v] = r;
+            r
+        }
+        for l in &links {
+            if let Ends::TwoWay(a, b) = l.ends {
+                let (ra, rb) = (find(&mut piece, a.index()), find(&mut piece, b.index()));
+                piece[ra.max(rb)] = ra.min(rb);
+            }
+        }
+        let roots: Vec<usize> = (0..n).map(|v| find(&mut piece, v)).collect();
+        if roots.iter().all(|&r| r == roots[0]) {
+            break;
+        }
+        let mut best: Option<(f64, usize, usize)> = None;
+        for a in (0..n).filter(|&a| roots[a] == roots[0]) {
+            for b in (0..n).filter(|&b| roots[b] != roots[0]) {
+                let (pa, pb) = (nodes[a].position.unwrap(), nodes[b].position.unwrap());
+                let d = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
+                if best.is_none_or(|(bd, _, _)| d < bd) {
+                    best = Some((d, a.min(b), a.max(b)));
+                }
+            }
+        }
+        let (d, a, b) = best.expect("two pieces have a closest pair");
+        links.push(Link {
+            id: format!("{}<->{}", nodes[a].id, nodes[b].id),
+            ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+            cost: (500.0 + 300.0 * d).round(),
+            weight: 1.0,
+            installed: false,
+            generated: true,
+        });
+    }
     let mut settings = Settings {
         name: format!("benchmark n={n} seed={seed}"),
         parameters: p,

@@ -1,8 +1,8 @@
 //! Branch and cut on the covering model, with microlp's incremental LP
 //! (dual simplex after adding rows or fixing variables).
 
-use super::cuts::{Pool, Row, enumerate_separate, grow_separate, grown_rows, separate};
-use super::heuristics::repair;
+use super::cuts::{Pool, Row, enumerate_rows, grow_separate, grown_rows, separate};
+use super::heuristics::{exchange, repair};
 use super::instance::Instance;
 use microlp::{ComparisonOp, OptimizationDirection, Solution, SolveOutcome, Variable};
 use std::cmp::Ordering;
@@ -89,17 +89,32 @@ impl Lp {
         }
     }
 
+    fn duplicate(&self) -> Self {
+        Lp {
+            sol: self.sol.clone(),
+            vars: self.vars.clone(),
+            has: self.has.clone(),
+        }
+    }
+
     fn has(&self, index: usize) -> bool {
         self.has.get(index).copied().unwrap_or(false)
     }
 }
 
-#[derive(Debug, Clone)]
+/// An open node: its fixings, the bound inherited from its parent, and
+/// (while memory allows) the parent's LP, to which only the last fixing is
+/// still to be applied.
 struct Node {
     bound: f64,
     depth: u32,
     fixings: Vec<(u32, bool)>,
+    lp: Option<Lp>,
 }
+
+/// Open nodes that keep an LP of their own; beyond this, nodes are rebuilt
+/// from the master LP and their fixings.
+const STORED_LPS: usize = 4000;
 
 impl PartialEq for Node {
     fn eq(&self, other: &Self) -> bool {
@@ -151,7 +166,15 @@ impl Search<'_, '_> {
         }
     }
 
+    /// Offers a feasible link set as incumbent, after link exchange when it
+    /// is within 3 % of the incumbent.
     fn offer(&mut self, chosen: Vec<bool>) {
+        let raw = self.inst.cost(&chosen);
+        let chosen = if raw < 1.03 * self.best_cost {
+            exchange(self.inst, &chosen, self.deadline)
+        } else {
+            chosen
+        };
         let cost = self.inst.cost(&chosen);
         if cost < self.best_cost - 1e-9 {
             self.best_cost = cost;
@@ -176,7 +199,7 @@ impl Search<'_, '_> {
 
     /// Rows violated by `y` that the LP lacks: first from the pool, then by
     /// separation.
-    fn violated(&mut self, lp: &Lp, y: &[f64]) -> Vec<usize> {
+    fn violated(&mut self, lp: &Lp, y: &[f64], deep: bool) -> Vec<usize> {
         let t = Instant::now();
         let mut found: Vec<(f64, usize)> = self
             .pool
@@ -190,11 +213,8 @@ impl Search<'_, '_> {
         if found.is_empty() {
             let mut rows = Vec::new();
             separate(self.inst, y, &THRESHOLDS, &mut rows);
-            if rows.is_empty() {
+            if rows.is_empty() && deep {
                 grow_separate(self.inst, y, 8, &mut rows);
-            }
-            if rows.is_empty() && self.inst.n <= 200 {
-                enumerate_separate(self.inst, y, 3, &mut rows);
             }
             let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
             if integral {
@@ -214,12 +234,15 @@ impl Search<'_, '_> {
         // Most violated first; at most 60 rows per round.
         found.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
         found.truncate(60);
+        for &(_, i) in &found {
+            self.pool.used[i] = true;
+        }
         found.into_iter().map(|(_, i)| i).collect()
     }
 
     /// Cuts the node's LP until no violated row is found or the bound passes
     /// the cutoff. Returns the LP (None: infeasible or pruned) and its point.
-    fn cut_loop(&mut self, mut lp: Lp, max_rounds: u32) -> Option<(Lp, Vec<f64>)> {
+    fn cut_loop(&mut self, mut lp: Lp, max_rounds: u32, deep: bool) -> Option<(Lp, Vec<f64>)> {
         let mut rounds = 0;
         loop {
             self.last_objective = lp.objective();
@@ -227,7 +250,7 @@ impl Search<'_, '_> {
                 return None;
             }
             let y = lp.values();
-            let rows = self.violated(&lp, &y);
+            let rows = self.violated(&lp, &y, deep);
             self.stats.rounds += 1;
             // An integral point with violated rows must be cut further: it
             // is never returned as if it were feasible, unless time is up.
@@ -271,7 +294,7 @@ impl Search<'_, '_> {
     fn sync_master(&mut self, mut master: Lp) -> Option<Lp> {
         let t = Instant::now();
         for i in 0..self.pool.rows.len() {
-            if !master.has(i) {
+            if self.pool.used[i] && !master.has(i) {
                 let row = self.pool.rows[i].clone();
                 master = master.add(i, &row)?;
                 self.stats.lp_solves += 1;
@@ -336,7 +359,16 @@ pub(crate) fn search(
             seed.push(r);
         }
     }
-    s.pool_add(seed);
+    for i in s.pool_add(seed) {
+        s.pool.used[i] = true;
+    }
+    // Small networks: every connected set of up to 3 units, kept in the pool
+    // until violated.
+    if inst.n <= 200 {
+        let mut rows = Vec::new();
+        enumerate_rows(inst, 3, &mut rows);
+        s.pool_add(rows);
+    }
 
     // Root LP.
     let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
@@ -345,7 +377,14 @@ pub(crate) fn search(
         .iter()
         .map(|l| problem.add_var(l.cost, (if l.installed { 1.0 } else { 0.0 }, 1.0)))
         .collect();
-    for row in &s.pool.rows {
+    for row in s
+        .pool
+        .rows
+        .iter()
+        .zip(&s.pool.used)
+        .filter(|(_, u)| **u)
+        .map(|(r, _)| r)
+    {
         let expr: Vec<(Variable, f64)> =
             row.links.iter().map(|&k| (vars[k as usize], 1.0)).collect();
         problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64);
@@ -353,7 +392,7 @@ pub(crate) fn search(
     let t = Instant::now();
     let root = match problem.solve() {
         Ok(SolveOutcome::Solution(sol)) => Lp {
-            has: vec![true; s.pool.rows.len()],
+            has: s.pool.used.clone(),
             sol,
             vars,
         },
@@ -366,7 +405,7 @@ pub(crate) fn search(
     s.stats.lp_solves += 1;
 
     let mut lower = f64::NEG_INFINITY;
-    let Some((root, y)) = s.cut_loop(root, u32::MAX) else {
+    let Some((root, y)) = s.cut_loop(root, u32::MAX, true) else {
         // Root pruned: the incumbent is optimal.
         s.stats.root_bound = s.last_objective;
         let lb = s.best_cost;
@@ -391,6 +430,7 @@ pub(crate) fn search(
         bound: lower,
         depth: 0,
         fixings: Vec::new(),
+        lp: None,
     });
     let mut timed_out = false;
     while let Some(node) = heap.pop() {
@@ -404,21 +444,28 @@ pub(crate) fn search(
         }
         let global = node.bound.max(lower);
         s.report(Some(global));
-        // Rebuild the node's LP from the master (which holds every pool row).
-        master = match s.sync_master(master) {
-            Some(m) => m,
-            None => break,
-        };
         let t = Instant::now();
-        let mut lp = Some(Lp {
-            sol: master.sol.clone(),
-            vars: master.vars.clone(),
-            has: master.has.clone(),
-        });
-        for &(k, v) in &node.fixings {
-            lp = lp.and_then(|lp| lp.fix(k as usize, v));
-            s.stats.lp_solves += 1;
-        }
+        let lp = match node.lp {
+            // The parent's LP: apply the last fixing.
+            Some(lp) => node
+                .fixings
+                .last()
+                .and_then(|&(k, v)| lp.fix(k as usize, v)),
+            // Rebuild from the master (which holds every used pool row).
+            None => {
+                master = match s.sync_master(master) {
+                    Some(m) => m,
+                    None => break,
+                };
+                let mut lp = Some(master.duplicate());
+                for &(k, v) in &node.fixings {
+                    lp = lp.and_then(|lp| lp.fix(k as usize, v));
+                    s.stats.lp_solves += 1;
+                }
+                lp
+            }
+        };
+        s.stats.lp_solves += 1;
         s.stats.lp_time += t.elapsed();
         let Some(mut current) = lp else { continue };
         let mut fixings = node.fixings;
@@ -426,7 +473,7 @@ pub(crate) fn search(
         // Dive: process, branch, continue with the y = 1 child.
         loop {
             s.stats.nodes += 1;
-            let Some((lp, y)) = s.cut_loop(current, 8) else {
+            let Some((lp, y)) = s.cut_loop(current, 8, false) else {
                 break;
             };
             let obj = lp.objective();
@@ -435,13 +482,16 @@ pub(crate) fn search(
                     // Integral and no violated row: feasible.
                     let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
                     if inst.holds(&chosen) {
+                        let t = Instant::now();
                         s.offer(chosen);
+                        s.stats.heuristic_time += t.elapsed();
                     } else {
                         // Cutting stopped on the deadline: keep the node open.
                         heap.push(Node {
                             bound: bound_of(inst, obj),
                             depth,
                             fixings: fixings.clone(),
+                            lp: None,
                         });
                         timed_out = true;
                     }
@@ -454,10 +504,12 @@ pub(crate) fn search(
                     let b = bound_of(inst, obj);
                     let mut zero = fixings.clone();
                     zero.push((k as u32, false));
+                    let stored = (heap.len() < STORED_LPS).then(|| lp.duplicate());
                     heap.push(Node {
                         bound: b,
                         depth: depth + 1,
                         fixings: zero,
+                        lp: stored,
                     });
                     fixings.push((k as u32, true));
                     depth += 1;
@@ -474,6 +526,7 @@ pub(crate) fn search(
                             bound: b,
                             depth,
                             fixings: fixings.clone(),
+                            lp: None,
                         });
                         timed_out = true;
                         break;

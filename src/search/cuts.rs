@@ -114,10 +114,12 @@ pub(crate) fn singleton_row(inst: &Instance, set: &[u32], part_of: &mut Vec<u32>
     partition_row(inst, &parts, part_of)
 }
 
-/// The pool of rows found so far, with de-duplication.
+/// The pool of rows found so far, with de-duplication. A row is `used` once
+/// some LP point violated it; only used rows go into the master LP.
 #[derive(Default)]
 pub(crate) struct Pool {
     pub rows: Vec<Row>,
+    pub used: Vec<bool>,
     seen: HashSet<Row>,
 }
 
@@ -129,6 +131,7 @@ impl Pool {
         }
         self.seen.insert(row.clone());
         self.rows.push(row);
+        self.used.push(false);
         Some(self.rows.len() - 1)
     }
 }
@@ -180,9 +183,23 @@ pub(crate) fn separate(inst: &Instance, y: &[f64], thresholds: &[f64], out: &mut
         if all.len() > 1 {
             push(partition_row(inst, &all, &mut part_of), out);
         }
-        // Unions of non-excited components that stay non-excited.
-        for a in 0..bad.len() {
-            for b in a + 1..bad.len() {
+        // Unions of adjacent non-excited components that stay non-excited.
+        let mut which = vec![usize::MAX; inst.n];
+        for (k, c) in bad.iter().enumerate() {
+            c.iter().for_each(|&v| which[v as usize] = k);
+        }
+        let mut pairs: Vec<(usize, usize)> = inst
+            .links
+            .iter()
+            .flat_map(|l| l.arcs.iter())
+            .map(|&(f, t)| (which[f as usize], which[t as usize]))
+            .filter(|&(a, b)| a != usize::MAX && b != usize::MAX && a != b)
+            .map(|(a, b)| (a.min(b), a.max(b)))
+            .collect();
+        pairs.sort_unstable();
+        pairs.dedup();
+        for (a, b) in pairs {
+            {
                 let mut u: Vec<u32> = bad[a].iter().chain(&bad[b]).copied().collect();
                 u.sort_unstable();
                 if !inst.oracle.excited(&u) {
@@ -381,9 +398,10 @@ fn components_partition(inst: &Instance, chosen: &[bool]) -> Vec<Vec<u32>> {
 }
 
 /// Every connected unit set of the candidate graph up to `max_size` units:
-/// the cut and singleton-partition rows violated by `y` (used on networks
-/// small enough for the enumeration to be cheap).
-pub(crate) fn enumerate_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
+/// its cut row (when not excited) and singleton-partition row. Used on
+/// networks small enough for the enumeration to be cheap; the rows wait in
+/// the pool until a point violates them.
+pub(crate) fn enumerate_rows(inst: &Instance, max_size: usize, out: &mut Vec<Row>) {
     let n = inst.n;
     let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
     for l in &inst.links {
@@ -405,14 +423,12 @@ pub(crate) fn enumerate_separate(inst: &Instance, y: &[f64], max_size: usize, ou
             if !seen.insert(s.clone()) {
                 continue;
             }
-            if let Some(r) = singleton_row(inst, &s, &mut part_of)
-                && r.violation(y) > 1e-6
-            {
+            if let Some(r) = singleton_row(inst, &s, &mut part_of) {
                 out.push(r);
             }
-            if !inst.oracle.excited(&s)
+            if s.len() > 1
+                && !inst.oracle.excited(&s)
                 && let Some(r) = cover_row(inst, &s, &mut part_of)
-                && r.violation(y) > 1e-6
             {
                 out.push(r);
             }

@@ -1,6 +1,7 @@
 //! Primal heuristics: reverse-delete and LP-guided repair.
 
 use super::instance::Instance;
+use std::time::Instant;
 
 /// Drops links by decreasing cost (larger index first on a tie) while the
 /// condition holds; the result is irreducible (no link can be dropped).
@@ -81,4 +82,126 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
         }
     }
     Some(reverse_delete(inst, &chosen))
+}
+
+/// Link exchange: for each chosen link (dearest first), drop it and look
+/// for the cheapest cheaper link that restores the condition; after each
+/// pass reverse-delete, and repeat until a pass changes nothing.
+/// `start` must satisfy the condition; stops early at the deadline.
+///
+/// # Complexity
+/// Each pass O(|X| · d · (n + m)) condition checks for X chosen links and
+/// d candidate links around the broken components.
+pub(crate) fn exchange(inst: &Instance, start: &[bool], deadline: Option<Instant>) -> Vec<bool> {
+    let mut chosen = start.to_vec();
+    let mut improved = true;
+    while improved && deadline.is_none_or(|d| Instant::now() < d) {
+        improved = false;
+        chosen = reverse_delete(inst, &chosen);
+        let mut order: Vec<usize> = (0..inst.links.len())
+            .filter(|&k| chosen[k] && !inst.links[k].installed)
+            .collect();
+        order.sort_by(|&a, &b| {
+            inst.links[b]
+                .cost
+                .total_cmp(&inst.links[a].cost)
+                .then(a.cmp(&b))
+        });
+        for e in order {
+            if !chosen[e] || deadline.is_some_and(|d| Instant::now() >= d) {
+                continue;
+            }
+            chosen[e] = false;
+            let bad = inst.violations(&chosen);
+            if bad.is_empty() {
+                improved = true;
+                continue;
+            }
+            // Candidate links entering a broken component.
+            let mut inside = vec![false; inst.n];
+            let mut candidates: Vec<usize> = Vec::new();
+            for c in &bad {
+                c.iter().for_each(|&v| inside[v as usize] = true);
+                for &b in c {
+                    for &k in &inst.heads[b as usize] {
+                        if k != e
+                            && !chosen[k]
+                            && inst.links[k].cost < inst.links[e].cost
+                            && inst.links[k]
+                                .arcs
+                                .iter()
+                                .any(|&(f, t)| t == b && !inside[f as usize])
+                        {
+                            candidates.push(k);
+                        }
+                    }
+                }
+                c.iter().for_each(|&v| inside[v as usize] = false);
+            }
+            candidates.sort_by(|&a, &b| {
+                inst.links[a]
+                    .cost
+                    .total_cmp(&inst.links[b].cost)
+                    .then(a.cmp(&b))
+            });
+            candidates.dedup();
+            let mut swapped = false;
+            for f in candidates {
+                chosen[f] = true;
+                if inst.holds(&chosen) {
+                    swapped = true;
+                    break;
+                }
+                chosen[f] = false;
+            }
+            if swapped {
+                improved = true;
+            } else {
+                chosen[e] = true;
+            }
+        }
+    }
+    chosen
+}
+
+/// Forward greedy: take links by increasing cost (lower index on a tie) and
+/// keep a link when one of its arcs enters a source component that is not
+/// excited; stop when the condition holds, then reverse-delete. The
+/// constrained-forest greedy of Imielinska, Kalantari & Khachiyan ("A greedy
+/// heuristic for a minimum-weight forest problem", Oper. Res. Letters 14,
+/// 1993) generalised to directed links. Returns `None` when even all
+/// candidates fail.
+pub(crate) fn forward_greedy(inst: &Instance) -> Option<Vec<bool>> {
+    let mut chosen: Vec<bool> = inst.links.iter().map(|l| l.installed).collect();
+    let mut order: Vec<usize> = (0..inst.links.len()).filter(|&k| !chosen[k]).collect();
+    order.sort_by(|&a, &b| {
+        inst.links[a]
+            .cost
+            .total_cmp(&inst.links[b].cost)
+            .then(a.cmp(&b))
+    });
+    let mut bad_of = vec![usize::MAX; inst.n];
+    let refresh = |chosen: &[bool], bad_of: &mut Vec<usize>| {
+        bad_of.iter_mut().for_each(|b| *b = usize::MAX);
+        let bad = inst.violations(chosen);
+        for (k, c) in bad.iter().enumerate() {
+            c.iter().for_each(|&v| bad_of[v as usize] = k);
+        }
+        bad.is_empty()
+    };
+    if refresh(&chosen, &mut bad_of) {
+        return Some(chosen);
+    }
+    for k in order {
+        let useful = inst.links[k].arcs.iter().any(|&(f, t)| {
+            bad_of[t as usize] != usize::MAX && bad_of[f as usize] != bad_of[t as usize]
+        });
+        if useful {
+            chosen[k] = true;
+            if refresh(&chosen, &mut bad_of) {
+                return Some(reverse_delete(inst, &chosen));
+            }
+        }
+    }
+    None
 }

@@ -37,8 +37,17 @@ pub(crate) struct Oracle<'a> {
     windows: usize,
     p: usize,
     cache: RefCell<HashMap<Vec<u32>, bool>>,
+    /// Windows in scan order: those that rejected a set recently move to
+    /// the front.
+    order: RefCell<Vec<usize>>,
+    /// Small excited sets seen, indexed by their smallest unit: a set that
+    /// contains one of them is excited (monotonicity).
+    small_excited: RefCell<Vec<Vec<Vec<u32>>>>,
     pub stats: RefCell<OracleStats>,
 }
+
+/// Largest excited set remembered for containment tests.
+const SMALL: usize = 4;
 
 impl<'a> Oracle<'a> {
     pub fn new(table: &'a ExcitationTable) -> Self {
@@ -61,6 +70,8 @@ impl<'a> Oracle<'a> {
             windows: w,
             p,
             cache: RefCell::new(HashMap::new()),
+            order: RefCell::new((0..w).collect()),
+            small_excited: RefCell::new(vec![Vec::new(); n]),
             stats: RefCell::new(OracleStats::default()),
         }
     }
@@ -76,14 +87,37 @@ impl<'a> Oracle<'a> {
             return v;
         }
         let start = Instant::now();
-        let v = self.rank_bound(set, usize::MAX) >= 1 && {
-            stats.scans += 1;
-            let nodes: Vec<NodeId> = set.iter().map(|&i| NodeId(i)).collect();
-            self.table.is_excited(&nodes)
-        };
+        let v = self.contains_small_excited(set)
+            || (self.rank_bound(set, usize::MAX) >= 1 && {
+                stats.scans += 1;
+                let nodes: Vec<NodeId> = set.iter().map(|&i| NodeId(i)).collect();
+                let mut order = self.order.borrow_mut();
+                match self.table.first_weak_window(&nodes, order.iter().copied()) {
+                    Some(w) => {
+                        // Move the rejecting window to the front.
+                        let pos = order.iter().position(|&x| x == w).expect("window in order");
+                        order[..=pos].rotate_right(1);
+                        false
+                    }
+                    None => true,
+                }
+            });
         stats.time += start.elapsed();
+        if v && set.len() <= SMALL {
+            self.small_excited.borrow_mut()[set[0] as usize].push(set.to_vec());
+        }
         self.cache.borrow_mut().insert(set.to_vec(), v);
         v
+    }
+
+    /// True when a remembered small excited set lies inside `set` (sorted).
+    fn contains_small_excited(&self, set: &[u32]) -> bool {
+        let small = self.small_excited.borrow();
+        set.iter().any(|&v| {
+            small[v as usize]
+                .iter()
+                .any(|e| e.iter().all(|x| set.binary_search(x).is_ok()))
+        })
     }
 
     /// min over windows of ⌊Σ_{parts} min(Σ_{i∈part} r_i(w), p) / p⌋, capped

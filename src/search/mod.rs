@@ -183,7 +183,12 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             },
         };
     }
-    let greedy = heuristics::reverse_delete(&inst, &all);
+    let reverse = heuristics::reverse_delete(&inst, &all);
+    let greedy = match heuristics::forward_greedy(&inst) {
+        Some(forward) if inst.cost(&forward) < inst.cost(&reverse) => forward,
+        _ => reverse,
+    };
+    let greedy = heuristics::exchange(&inst, &greedy, deadline);
     let greedy_cost = inst.cost(&greedy);
     let greedy_time = started.elapsed();
     let result = bnc::search(&inst, greedy, deadline, options.progress);
