@@ -110,6 +110,75 @@ struct Node {
     depth: u32,
     fixings: Vec<(u32, bool)>,
     lp: Option<Lp>,
+    /// The branching that made this node: variable, direction, parent LP
+    /// objective and the distance moved (for pseudocosts).
+    origin: Option<Origin>,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Origin {
+    var: usize,
+    up: bool,
+    parent_objective: f64,
+    distance: f64,
+}
+
+/// Pseudocosts: average objective gain per unit of distance, per variable
+/// and direction (down, up).
+struct Pseudocosts {
+    sum: Vec<[f64; 2]>,
+    count: Vec<[u32; 2]>,
+}
+
+impl Pseudocosts {
+    fn new(m: usize) -> Self {
+        Pseudocosts {
+            sum: vec![[0.0; 2]; m],
+            count: vec![[0; 2]; m],
+        }
+    }
+
+    fn record(&mut self, o: Origin, objective: f64) {
+        let gain = (objective - o.parent_objective).max(0.0) / o.distance.max(1e-6);
+        let d = usize::from(o.up);
+        self.sum[o.var][d] += gain;
+        self.count[o.var][d] += 1;
+    }
+
+    fn mean(&self, d: usize) -> Option<f64> {
+        let (s, c) = self
+            .sum
+            .iter()
+            .zip(&self.count)
+            .fold((0.0, 0u32), |(s, c), (x, n)| (s + x[d], c + n[d]));
+        (c > 0).then(|| s / c as f64)
+    }
+
+    /// Branching variable by the product rule on pseudocosts (variables
+    /// never branched on take the mean, or their cost before any record).
+    fn choose(&self, inst: &Instance, y: &[f64]) -> Option<usize> {
+        let means = [self.mean(0), self.mean(1)];
+        let mut best: Option<(f64, usize)> = None;
+        for (k, &v) in y.iter().enumerate() {
+            if v.min(1.0 - v) <= INT_TOL {
+                continue;
+            }
+            let estimate = |d: usize| {
+                if self.count[k][d] > 0 {
+                    self.sum[k][d] / self.count[k][d] as f64
+                } else {
+                    means[d].unwrap_or(inst.links[k].cost + 1.0)
+                }
+            };
+            let down = (estimate(0) * v).max(1e-6);
+            let up = (estimate(1) * (1.0 - v)).max(1e-6);
+            let score = down * up;
+            if best.is_none_or(|(s, _)| score > s) {
+                best = Some((score, k));
+            }
+        }
+        best.map(|(_, k)| k)
+    }
 }
 
 /// Open nodes that keep an LP of their own; beyond this, nodes are rebuilt
@@ -305,20 +374,6 @@ impl Search<'_, '_> {
     }
 }
 
-fn branch_variable(inst: &Instance, y: &[f64]) -> Option<usize> {
-    let mut best: Option<(f64, usize)> = None;
-    for (k, &v) in y.iter().enumerate() {
-        let f = v.min(1.0 - v);
-        if f > INT_TOL {
-            let score = f * (inst.links[k].cost + 1.0);
-            if best.is_none_or(|(s, _)| score > s) {
-                best = Some((score, k));
-            }
-        }
-    }
-    best.map(|(_, k)| k)
-}
-
 fn bound_of(inst: &Instance, obj: f64) -> f64 {
     if inst.integral_costs {
         (obj - 1e-6).ceil()
@@ -431,7 +486,9 @@ pub(crate) fn search(
         depth: 0,
         fixings: Vec::new(),
         lp: None,
+        origin: None,
     });
+    let mut pseudo = Pseudocosts::new(inst.links.len());
     let mut timed_out = false;
     while let Some(node) = heap.pop() {
         if node.bound >= s.cutoff() {
@@ -470,14 +527,24 @@ pub(crate) fn search(
         let Some(mut current) = lp else { continue };
         let mut fixings = node.fixings;
         let mut depth = node.depth;
+        let mut origin = node.origin;
         // Dive: process, branch, continue with the y = 1 child.
         loop {
             s.stats.nodes += 1;
             let Some((lp, y)) = s.cut_loop(current, 8, false) else {
+                if let Some(o) = origin {
+                    // Pruned by bound: the gain was at least this much.
+                    if s.last_objective.is_finite() {
+                        pseudo.record(o, s.last_objective);
+                    }
+                }
                 break;
             };
             let obj = lp.objective();
-            match branch_variable(inst, &y) {
+            if let Some(o) = origin {
+                pseudo.record(o, obj);
+            }
+            match pseudo.choose(inst, &y) {
                 None => {
                     // Integral and no violated row: feasible.
                     let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
@@ -492,6 +559,7 @@ pub(crate) fn search(
                             depth,
                             fixings: fixings.clone(),
                             lp: None,
+                            origin: None,
                         });
                         timed_out = true;
                     }
@@ -510,6 +578,18 @@ pub(crate) fn search(
                         depth: depth + 1,
                         fixings: zero,
                         lp: stored,
+                        origin: Some(Origin {
+                            var: k,
+                            up: false,
+                            parent_objective: obj,
+                            distance: y[k],
+                        }),
+                    });
+                    origin = Some(Origin {
+                        var: k,
+                        up: true,
+                        parent_objective: obj,
+                        distance: 1.0 - y[k],
                     });
                     fixings.push((k as u32, true));
                     depth += 1;
@@ -527,6 +607,7 @@ pub(crate) fn search(
                             depth,
                             fixings: fixings.clone(),
                             lp: None,
+                            origin: None,
                         });
                         timed_out = true;
                         break;
