@@ -359,19 +359,44 @@ impl Search<'_, '_> {
             b
         );
     }
+}
 
-    fn sync_master(&mut self, mut master: Lp) -> Option<Lp> {
-        let t = Instant::now();
-        for i in 0..self.pool.rows.len() {
-            if self.pool.used[i] && !master.has(i) {
-                let row = self.pool.rows[i].clone();
-                master = master.add(i, &row)?;
-                self.stats.lp_solves += 1;
-            }
-        }
-        self.stats.lp_time += t.elapsed();
-        Some(master)
+/// A fresh LP with the given pool rows, solved from scratch.
+fn build_lp(inst: &Instance, pool: &Pool, rows: &[usize]) -> Option<Lp> {
+    let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
+    let vars: Vec<Variable> = inst
+        .links
+        .iter()
+        .map(|l| problem.add_var(l.cost, (if l.installed { 1.0 } else { 0.0 }, 1.0)))
+        .collect();
+    let mut has = vec![false; pool.rows.len()];
+    for &i in rows {
+        let expr: Vec<(Variable, f64)> = pool.rows[i]
+            .links
+            .iter()
+            .map(|&k| (vars[k as usize], 1.0))
+            .collect();
+        problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, pool.rows[i].rhs as f64);
+        has[i] = true;
     }
+    match problem.solve() {
+        Ok(SolveOutcome::Solution(sol)) => Some(Lp { sol, vars, has }),
+        _ => None,
+    }
+}
+
+/// The LP rebuilt with only the rows it holds that are tight at its point
+/// (dropping slack rows leaves the optimum unchanged and makes every later
+/// dual-simplex step cheaper).
+fn compact(inst: &Instance, pool: &Pool, lp: Lp) -> Lp {
+    let y = lp.values();
+    let tight: Vec<usize> = (0..pool.rows.len())
+        .filter(|&i| lp.has(i) && pool.rows[i].violation(&y) > -1e-7)
+        .collect();
+    if tight.len() * 3 >= 2 * lp.has.iter().filter(|h| **h).count() {
+        return lp;
+    }
+    build_lp(inst, pool, &tight).unwrap_or(lp)
 }
 
 fn bound_of(inst: &Instance, obj: f64) -> f64 {
@@ -426,35 +451,11 @@ pub(crate) fn search(
     }
 
     // Root LP.
-    let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
-    let vars: Vec<Variable> = inst
-        .links
-        .iter()
-        .map(|l| problem.add_var(l.cost, (if l.installed { 1.0 } else { 0.0 }, 1.0)))
-        .collect();
-    for row in s
-        .pool
-        .rows
-        .iter()
-        .zip(&s.pool.used)
-        .filter(|(_, u)| **u)
-        .map(|(r, _)| r)
-    {
-        let expr: Vec<(Variable, f64)> =
-            row.links.iter().map(|&k| (vars[k as usize], 1.0)).collect();
-        problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64);
-    }
     let t = Instant::now();
-    let root = match problem.solve() {
-        Ok(SolveOutcome::Solution(sol)) => Lp {
-            has: s.pool.used.clone(),
-            sol,
-            vars,
-        },
-        _ => {
-            // The seed rows are valid, so this only happens on numerical trouble.
-            return finish(s, f64::NEG_INFINITY, true);
-        }
+    let seeds: Vec<usize> = (0..s.pool.rows.len()).filter(|&i| s.pool.used[i]).collect();
+    let Some(root) = build_lp(inst, &s.pool, &seeds) else {
+        // The seed rows are valid, so this only happens on numerical trouble.
+        return finish(s, f64::NEG_INFINITY, true);
     };
     s.stats.lp_time += t.elapsed();
     s.stats.lp_solves += 1;
@@ -472,13 +473,10 @@ pub(crate) fn search(
     if s.timed_out() {
         return finish(s, lower, true);
     }
-    let mut master = match s.sync_master(root) {
-        Some(m) => m,
-        None => {
-            let lb = s.best_cost;
-            return finish(s, lb, false);
-        }
-    };
+    let t = Instant::now();
+    let master = compact(inst, &s.pool, root);
+    s.stats.lp_time += t.elapsed();
+    s.stats.lp_solves += 1;
 
     let mut heap = BinaryHeap::new();
     heap.push(Node {
@@ -510,10 +508,6 @@ pub(crate) fn search(
                 .and_then(|&(k, v)| lp.fix(k as usize, v)),
             // Rebuild from the master (which holds every used pool row).
             None => {
-                master = match s.sync_master(master) {
-                    Some(m) => m,
-                    None => break,
-                };
                 let mut lp = Some(master.duplicate());
                 for &(k, v) in &node.fixings {
                     lp = lp.and_then(|lp| lp.fix(k as usize, v));
