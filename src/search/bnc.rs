@@ -32,6 +32,8 @@ pub(crate) struct SearchResult {
 }
 
 const THRESHOLDS: [f64; 4] = [0.999, 0.5, 0.2, 1e-6];
+/// Separation rounds per node below the root (fractional points).
+const NODE_ROUNDS: u32 = 8;
 const INT_TOL: f64 = 1e-6;
 
 struct Lp {
@@ -525,7 +527,7 @@ pub(crate) fn search(
         // Dive: process, branch, continue with the y = 1 child.
         loop {
             s.stats.nodes += 1;
-            let Some((lp, y)) = s.cut_loop(current, 8, false) else {
+            let Some((lp, y)) = s.cut_loop(current, NODE_ROUNDS, false) else {
                 if let Some(o) = origin {
                     // Pruned by bound: the gain was at least this much.
                     if s.last_objective.is_finite() {
@@ -631,5 +633,92 @@ fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
         lower_bound: lower_bound.min(s.best_cost),
         timed_out,
         stats: s.stats,
+    }
+}
+
+#[cfg(test)]
+mod probe {
+    use super::*;
+
+    /// Diagnostic, run by hand: the root LP point next to the optimum.
+    #[test]
+    #[ignore]
+    fn root_point_against_optimum() {
+        let n: usize = std::env::var("PROBE_N")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(20);
+        let seed: u64 = std::env::var("PROBE_SEED")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(6);
+        let problem = crate::synth::bench_problem(n, seed, 0.03);
+        let table = crate::ExcitationTable::build(&problem);
+        let inst = Instance::new(&problem, &table);
+        let all = vec![true; inst.links.len()];
+        let greedy = super::super::heuristics::reverse_delete(&inst, &all);
+        let opt = search(&inst, greedy.clone(), None, false);
+        // Root only: a deadline right after the root.
+        let mut s = Search {
+            inst: &inst,
+            pool: Pool::default(),
+            best_cost: opt.lower_bound,
+            best: opt.best.clone(),
+            stats: SearchStats::default(),
+            start: Instant::now(),
+            deadline: None,
+            progress: false,
+            last_progress: Instant::now(),
+            last_objective: 0.0,
+        };
+        s.best_cost = f64::INFINITY;
+        let seeds: Vec<Row> = (0..n as u32)
+            .filter(|&v| !inst.oracle.excited(&[v]))
+            .filter_map(|v| super::super::cuts::cover_row(&inst, &[v], &mut Vec::new()))
+            .collect();
+        for i in s.pool_add(seeds) {
+            s.pool.used[i] = true;
+        }
+        let mut rows = Vec::new();
+        enumerate_rows(&inst, 3, &mut rows);
+        s.pool_add(rows);
+        let ids: Vec<usize> = (0..s.pool.rows.len()).filter(|&i| s.pool.used[i]).collect();
+        let root = build_lp(&inst, &s.pool, &ids).unwrap();
+        let (root, y) = s.cut_loop(root, u32::MAX, true).unwrap();
+        eprintln!(
+            "root {:.1} optimum {:.1}",
+            root.objective(),
+            opt.lower_bound
+        );
+        let w = table.windows().len();
+        for v in 0..n {
+            let r: Vec<usize> = (0..w)
+                .map(|k| {
+                    crate::excitation::eigenvalues(
+                        4,
+                        table.gramian(k, crate::problem::NodeId(v as u32)),
+                    )
+                    .iter()
+                    .filter(|&&l| l >= table.min_excitation() / n as f64)
+                    .count()
+                })
+                .collect();
+            eprintln!(
+                "unit {v}: rank min {} max {}",
+                r.iter().min().unwrap(),
+                r.iter().max().unwrap()
+            );
+        }
+        for (k, l) in inst.links.iter().enumerate() {
+            if y[k] > 1e-6 || opt.best[k] {
+                eprintln!(
+                    "link {k:3} {:?} cost {:6.0} y {:.3} opt {}",
+                    l.arcs[0], l.cost, y[k], opt.best[k] as u8
+                );
+            }
+        }
+        for c in inst.source_components(&opt.best) {
+            eprintln!("opt component {c:?}");
+        }
     }
 }
