@@ -65,6 +65,9 @@ pub struct SourceComponent {
     pub weakest_window_start: f64,
     /// Units whose estimates it drives (itself included), in file order.
     pub reaches: Vec<String>,
+    /// When not excited: ids of the candidate links (not in the set) that
+    /// would enter it, cheapest first, at most five.
+    pub entering_candidates: Vec<String>,
 }
 
 /// The outcome of checking a link set.
@@ -168,6 +171,32 @@ pub fn excitation_summary(problem: &Problem, table: &ExcitationTable) -> Excitat
     }
 }
 
+/// Candidate links outside `set` with an arc into `nodes` from outside,
+/// cheapest first (file order on a tie), at most five.
+fn entering(problem: &Problem, set: &LinkSet, nodes: &[NodeId]) -> Vec<String> {
+    let mut found: Vec<(f64, usize)> = problem
+        .links
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| {
+            set.ids()
+                .binary_search(&crate::problem::LinkId(*k as u32))
+                .is_err()
+        })
+        .filter(|(_, l)| {
+            l.arcs()
+                .any(|a| nodes.contains(&a.to) && !nodes.contains(&a.from))
+        })
+        .map(|(k, l)| (l.cost, k))
+        .collect();
+    found.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    found
+        .into_iter()
+        .take(5)
+        .map(|(_, k)| problem.links[k].id.clone())
+        .collect()
+}
+
 /// Checks a link set: every source component of its digraph, with its
 /// joint excitation, and whether all are excited.
 ///
@@ -179,7 +208,14 @@ pub fn check(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Check
         .sources()
         .map(|c| {
             let level = table.level(&c.nodes);
+            let excited = level.value >= table.min_excitation();
+            let entering_candidates = if excited {
+                Vec::new()
+            } else {
+                entering(problem, set, &c.nodes)
+            };
             SourceComponent {
+                entering_candidates,
                 nodes: names(problem, &c.nodes),
                 excitation: level.value,
                 excited: level.value >= table.min_excitation(),

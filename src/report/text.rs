@@ -122,6 +122,15 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
                 direction(&sc.weakest_direction),
                 sc.weakest_window_start
             )?;
+            if sc.entering_candidates.is_empty() {
+                writeln!(out, "  no candidate link enters it")?;
+            } else {
+                writeln!(
+                    out,
+                    "  candidate links into it: {}",
+                    sc.entering_candidates.join(", ")
+                )?;
+            }
         }
         writeln!(out, "  drives:  {} unit(s)", sc.reaches.len())?;
     }

@@ -257,6 +257,11 @@ fn verdicts_and_exit_codes() {
     assert_eq!(comps[1]["excited"], false);
     assert_eq!(comps[1]["excitation"], 0.0);
     assert_eq!(comps[1]["weakest_direction"].as_array().unwrap().len(), 2);
+    // Cheapest candidate links into {c} first: b->c (3), then a->c (4).
+    assert_eq!(
+        comps[1]["entering_candidates"],
+        serde_json::json!(["b->c", "a->c"])
+    );
     assert!(v["cautions"].as_array().unwrap().len() >= 3);
     // Usage error: no link choice.
     assert_eq!(exmesh(dir, &["check", "problem.toml"]).code, 2);
