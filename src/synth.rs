@@ -230,6 +230,19 @@ pub enum Class {
     Full,
 }
 
+/// A two-way benchmark candidate between units a and b, d km apart, at
+/// cost 500 + 300·d rounded to a whole number.
+fn bench_link(nodes: &[Node], a: usize, b: usize, d: f64) -> Link {
+    Link {
+        id: format!("{}<->{}", nodes[a].id, nodes[b].id),
+        ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+        cost: (500.0 + 300.0 * d).round(),
+        weight: 1.0,
+        installed: false,
+        generated: true,
+    }
+}
+
 /// The planning benchmark instance: `n` units uniform in a square of side
 /// √n km, two-way candidates within the radius √(8/π) km (mean degree about
 /// 8) at cost 500 + 300·km, p = 4, 200 s logs sampled every 0.1 s with jumps
@@ -308,14 +321,7 @@ pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
             let (pa, pb) = (nodes[a].position.unwrap(), nodes[b].position.unwrap());
             let d = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
             if d <= radius {
-                links.push(Link {
-                    id: format!("{}<->{}", nodes[a].id, nodes[b].id),
-                    ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
-                    cost: (500.0 + 300.0 * d).round(),
-                    weight: 1.0,
-                    installed: false,
-                    generated: true,
-                });
+                links.push(bench_link(&nodes, a, b, d));
             }
         }
     }
@@ -353,14 +359,7 @@ pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
             }
         }
         let (d, a, b) = best.expect("two pieces have a closest pair");
-        links.push(Link {
-            id: format!("{}<->{}", nodes[a].id, nodes[b].id),
-            ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
-            cost: (500.0 + 300.0 * d).round(),
-            weight: 1.0,
-            installed: false,
-            generated: true,
-        });
+        links.push(bench_link(&nodes, a, b, d));
     }
     let mut settings = Settings {
         name: format!("benchmark n={n} seed={seed}"),

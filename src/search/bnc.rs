@@ -117,6 +117,19 @@ struct Node {
     origin: Option<Origin>,
 }
 
+impl Node {
+    /// A node left open at the deadline, to be rebuilt from the master LP.
+    fn reopened(bound: f64, depth: u32, fixings: &[(u32, bool)]) -> Self {
+        Node {
+            bound,
+            depth,
+            fixings: fixings.to_vec(),
+            lp: None,
+            origin: None,
+        }
+    }
+}
+
 #[derive(Debug, Clone, Copy)]
 struct Origin {
     var: usize,
@@ -550,13 +563,7 @@ pub(crate) fn search(
                         s.stats.heuristic_time += t.elapsed();
                     } else {
                         // Cutting stopped on the deadline: keep the node open.
-                        heap.push(Node {
-                            bound: bound_of(inst, obj),
-                            depth,
-                            fixings: fixings.clone(),
-                            lp: None,
-                            origin: None,
-                        });
+                        heap.push(Node::reopened(bound_of(inst, obj), depth, &fixings));
                         timed_out = true;
                     }
                     break;
@@ -598,13 +605,7 @@ pub(crate) fn search(
                         None => break,
                     }
                     if s.timed_out() {
-                        heap.push(Node {
-                            bound: b,
-                            depth,
-                            fixings: fixings.clone(),
-                            lp: None,
-                            origin: None,
-                        });
+                        heap.push(Node::reopened(b, depth, &fixings));
                         timed_out = true;
                         break;
                     }

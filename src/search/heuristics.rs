@@ -3,14 +3,9 @@
 use super::instance::Instance;
 use std::time::Instant;
 
-/// Drops links by decreasing cost (larger index first on a tie) while the
-/// condition holds; the result is irreducible (no link can be dropped).
-/// `start` must satisfy the condition.
-///
-/// # Complexity
-/// O(m (n + m)) plus the excitation checks, which are cached.
-pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
-    let mut chosen = start.to_vec();
+/// The chosen links that are not installed, by decreasing cost (larger
+/// index first on a tie).
+fn dearest_first(inst: &Instance, chosen: &[bool]) -> Vec<usize> {
     let mut order: Vec<usize> = (0..inst.links.len())
         .filter(|&k| chosen[k] && !inst.links[k].installed)
         .collect();
@@ -20,7 +15,18 @@ pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
             .total_cmp(&inst.links[a].cost)
             .then(b.cmp(&a))
     });
-    for k in order {
+    order
+}
+
+/// Drops links by decreasing cost (larger index first on a tie) while the
+/// condition holds; the result is irreducible (no link can be dropped).
+/// `start` must satisfy the condition.
+///
+/// # Complexity
+/// O(m (n + m)) plus the excitation checks, which are cached.
+pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
+    let mut chosen = start.to_vec();
+    for k in dearest_first(inst, &chosen) {
         chosen[k] = false;
         if !inst.holds(&chosen) {
             chosen[k] = true;
@@ -98,16 +104,7 @@ pub(crate) fn exchange(inst: &Instance, start: &[bool], deadline: Option<Instant
     while improved && deadline.is_none_or(|d| Instant::now() < d) {
         improved = false;
         chosen = reverse_delete(inst, &chosen);
-        let mut order: Vec<usize> = (0..inst.links.len())
-            .filter(|&k| chosen[k] && !inst.links[k].installed)
-            .collect();
-        order.sort_by(|&a, &b| {
-            inst.links[b]
-                .cost
-                .total_cmp(&inst.links[a].cost)
-                .then(a.cmp(&b))
-        });
-        for e in order {
+        for e in dearest_first(inst, &chosen) {
             if !chosen[e] || deadline.is_some_and(|d| Instant::now() >= d) {
                 continue;
             }
