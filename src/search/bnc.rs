@@ -234,11 +234,13 @@ struct Search<'a, 'b> {
     last_progress: Instant,
     /// Objective of the last LP looked at by the cut loop.
     last_objective: f64,
+    node_limit: Option<u64>,
 }
 
 impl Search<'_, '_> {
     fn timed_out(&self) -> bool {
         self.deadline.is_some_and(|d| Instant::now() >= d)
+            || self.node_limit.is_some_and(|m| self.stats.nodes >= m)
     }
 
     /// Bound at or above which a node cannot improve the incumbent.
@@ -424,12 +426,24 @@ fn bound_of(inst: &Instance, obj: f64) -> f64 {
 
 /// Runs branch and cut from the incumbent `start` (which satisfies the
 /// condition), until optimality is proven or the deadline passes.
+/// When a search stops.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct Limits {
+    /// Wall-clock deadline.
+    pub deadline: Option<Instant>,
+    /// Most branch-and-bound nodes (deterministic stop for sub-searches).
+    pub nodes: Option<u64>,
+    /// Run neighbourhood search on the incumbent after the root.
+    pub neighbourhood: bool,
+}
+
 pub(crate) fn search(
     inst: &Instance,
     start: Vec<bool>,
-    deadline: Option<Instant>,
+    limits: Limits,
     progress: bool,
 ) -> SearchResult {
+    let deadline = limits.deadline;
     let now = Instant::now();
     let mut s = Search {
         inst,
@@ -442,6 +456,7 @@ pub(crate) fn search(
         progress: progress && std::io::stderr().is_terminal(),
         last_progress: now,
         last_objective: f64::NEG_INFINITY,
+        node_limit: limits.nodes,
     };
     // Seed rows: the cut of every unit that is not excited alone, and the
     // rows around the incumbent's components.
@@ -485,6 +500,12 @@ pub(crate) fn search(
     s.stats.root_bound = root.objective();
     lower = lower.max(bound_of(inst, root.objective()));
     s.heuristic(&y);
+    if limits.neighbourhood && !s.timed_out() {
+        let t = Instant::now();
+        let improved = super::lns::improve(inst, &s.best, deadline);
+        s.stats.heuristic_time += t.elapsed();
+        s.offer(improved);
+    }
     if s.timed_out() {
         return finish(s, lower, true);
     }
@@ -658,7 +679,7 @@ mod probe {
         let inst = Instance::new(&problem, &table);
         let all = vec![true; inst.links.len()];
         let greedy = super::super::heuristics::reverse_delete(&inst, &all);
-        let opt = search(&inst, greedy.clone(), None, false);
+        let opt = search(&inst, greedy.clone(), Limits::default(), false);
         // Root only: a deadline right after the root.
         let mut s = Search {
             inst: &inst,
@@ -671,6 +692,7 @@ mod probe {
             progress: false,
             last_progress: Instant::now(),
             last_objective: 0.0,
+            node_limit: None,
         };
         s.best_cost = f64::INFINITY;
         let seeds: Vec<Row> = (0..n as u32)

@@ -7,6 +7,7 @@ use crate::problem::{NodeId, Problem};
 use rayon::prelude::*;
 use std::cell::RefCell;
 use std::collections::HashMap;
+use std::rc::Rc;
 use std::time::{Duration, Instant};
 
 /// A candidate link as the planner sees it.
@@ -156,7 +157,8 @@ pub(crate) struct Instance<'a> {
     pub links: Vec<PlanLink>,
     /// For each unit, the links with an arc into it.
     pub heads: Vec<Vec<usize>>,
-    pub oracle: Oracle<'a>,
+    /// Shared with the sub-instances of neighbourhood search.
+    pub oracle: Rc<Oracle<'a>>,
     /// Every link cost is a whole number (bounds can be rounded up).
     pub integral_costs: bool,
 }
@@ -177,6 +179,11 @@ impl<'a> Instance<'a> {
     }
 
     pub fn from_links(n: usize, links: Vec<PlanLink>, table: &'a ExcitationTable) -> Self {
+        Self::with_oracle(n, links, Rc::new(Oracle::new(table)))
+    }
+
+    /// An instance on the same units and excitation with other links.
+    pub fn with_oracle(n: usize, links: Vec<PlanLink>, oracle: Rc<Oracle<'a>>) -> Self {
         let mut heads = vec![Vec::new(); n];
         for (k, l) in links.iter().enumerate() {
             for &(_, to) in &l.arcs {
@@ -192,7 +199,7 @@ impl<'a> Instance<'a> {
             n,
             links,
             heads,
-            oracle: Oracle::new(table),
+            oracle,
             integral_costs,
         }
     }

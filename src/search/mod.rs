@@ -9,6 +9,7 @@ mod bnc;
 mod cuts;
 mod heuristics;
 mod instance;
+mod lns;
 
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;
@@ -191,7 +192,12 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     let greedy = heuristics::exchange(&inst, &greedy, deadline);
     let greedy_cost = inst.cost(&greedy);
     let greedy_time = started.elapsed();
-    let result = bnc::search(&inst, greedy, deadline, options.progress);
+    let limits = bnc::Limits {
+        deadline,
+        nodes: None,
+        neighbourhood: inst.n >= lns::MIN_UNITS,
+    };
+    let result = bnc::search(&inst, greedy, limits, options.progress);
     let search_time = started.elapsed() - greedy_time;
     // Final irreducibility: drop any link whose removal keeps the condition.
     let best = heuristics::reverse_delete(&inst, &result.best);
