@@ -745,3 +745,142 @@ mod probe {
         }
     }
 }
+
+#[cfg(test)]
+mod grouping_probe {
+    use super::*;
+
+    /// Diagnostic, run by hand: the set-covering LP over excited connected
+    /// groups of at most `PROBE_K` units (cost = spanning tree of the group)
+    /// next to the root bound and the optimum. Restricted columns make its
+    /// value an upper estimate of the full grouping LP, not a bound.
+    #[test]
+    #[ignore]
+    fn grouping_lp_against_root() {
+        let n: usize = std::env::var("PROBE_N")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(20);
+        let seed: u64 = std::env::var("PROBE_SEED")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(6);
+        let k: usize = std::env::var("PROBE_K")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(6);
+        let problem = crate::synth::bench_problem(n, seed, 0.03);
+        let table = crate::ExcitationTable::build(&problem);
+        let inst = Instance::new(&problem, &table);
+        let all = vec![true; inst.links.len()];
+        let greedy = super::super::heuristics::reverse_delete(&inst, &all);
+        let opt = search(&inst, greedy, Limits::default(), false);
+        // Enumerate connected sets up to k units.
+        let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
+        for l in &inst.links {
+            let (a, b) = l.arcs[0];
+            nbrs[a as usize].push(b);
+            nbrs[b as usize].push(a);
+        }
+        let mut seen = std::collections::HashSet::new();
+        let mut frontier: Vec<Vec<u32>> = (0..n as u32).map(|v| vec![v]).collect();
+        let mut columns: Vec<(Vec<u32>, f64)> = Vec::new();
+        for _ in 0..k {
+            let mut next = Vec::new();
+            for s in frontier {
+                if !seen.insert(s.clone()) {
+                    continue;
+                }
+                if inst.oracle.excited(&s) {
+                    // Spanning tree of the group (Kruskal on links inside it).
+                    let mut edges: Vec<(f64, u32, u32)> = inst
+                        .links
+                        .iter()
+                        .map(|l| (l.cost, l.arcs[0].0, l.arcs[0].1))
+                        .filter(|&(_, a, b)| s.contains(&a) && s.contains(&b))
+                        .collect();
+                    edges.sort_by(|x, y| x.0.total_cmp(&y.0));
+                    let mut comp: Vec<u32> = s.clone();
+                    let mut cost = 0.0;
+                    for (c, a, b) in edges {
+                        let ia = s.iter().position(|&x| x == a).unwrap();
+                        let ib = s.iter().position(|&x| x == b).unwrap();
+                        let (ca, cb) = (comp[ia], comp[ib]);
+                        if ca != cb {
+                            cost += c;
+                            comp.iter_mut().for_each(|x| {
+                                if *x == cb {
+                                    *x = ca
+                                }
+                            });
+                        }
+                    }
+                    columns.push((s.clone(), cost));
+                    // Excited groups are not grown further here; the loop
+                    // below adds them with one attached unit.
+                    continue;
+                }
+                for &v in &s {
+                    for &u in &nbrs[v as usize] {
+                        if !s.contains(&u) {
+                            let mut t = s.clone();
+                            t.push(u);
+                            t.sort_unstable();
+                            next.push(t);
+                        }
+                    }
+                }
+            }
+            next.sort();
+            next.dedup();
+            frontier = next;
+        }
+        // Also grow excited groups by one unit (rank-0 units must attach).
+        let base: Vec<(Vec<u32>, f64)> = columns.clone();
+        for (s, c) in base {
+            for &v in &s {
+                for l in &inst.links {
+                    let (a, b) = l.arcs[0];
+                    let u = if a == v {
+                        b
+                    } else if b == v {
+                        a
+                    } else {
+                        continue;
+                    };
+                    if !s.contains(&u) {
+                        let mut t = s.clone();
+                        t.push(u);
+                        t.sort_unstable();
+                        columns.push((t, c + l.cost));
+                    }
+                }
+            }
+        }
+        let mut p = microlp::Problem::new(OptimizationDirection::Minimize);
+        let vars: Vec<Variable> = columns
+            .iter()
+            .map(|(_, c)| p.add_var(*c, (0.0, f64::INFINITY)))
+            .collect();
+        for v in 0..n as u32 {
+            let expr: Vec<(Variable, f64)> = columns
+                .iter()
+                .zip(&vars)
+                .filter(|((s, _), _)| s.contains(&v))
+                .map(|(_, &x)| (x, 1.0))
+                .collect();
+            p.add_constraint(expr.as_slice(), ComparisonOp::Ge, 1.0);
+        }
+        let value = match p.solve() {
+            Ok(SolveOutcome::Solution(sol)) => sol.objective(),
+            _ => f64::NAN,
+        };
+        eprintln!(
+            "n {n} seed {seed}: optimum {:.1}, root bound {:.1}, grouping LP over {} columns (groups ≤ {k} units + one attached) {:.1}",
+            opt.lower_bound,
+            opt.stats.root_bound,
+            columns.len(),
+            value
+        );
+    }
+}
