@@ -583,7 +583,14 @@ impl Validator<'_> {
         }
         Ok(Problem {
             path: self.path.to_path_buf(),
-            name: raw.network.name,
+            // An unnamed network is called after its file.
+            name: if raw.network.name.trim().is_empty() {
+                self.path
+                    .file_stem()
+                    .map_or_else(String::new, |s| s.to_string_lossy().into_owned())
+            } else {
+                raw.network.name
+            },
             parameters: p,
             window,
             window_kind,
