@@ -662,6 +662,13 @@ fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
 mod probe {
     use super::*;
 
+    /// Branch and cut to optimality from the reverse-delete incumbent.
+    pub(super) fn optimum(inst: &Instance) -> SearchResult {
+        let all = vec![true; inst.links.len()];
+        let greedy = super::super::heuristics::reverse_delete(inst, &all);
+        search(inst, greedy, Limits::default(), false)
+    }
+
     /// Diagnostic, run by hand: the root LP point next to the optimum.
     #[test]
     #[ignore]
@@ -677,9 +684,7 @@ mod probe {
         let problem = crate::synth::bench_problem(n, seed, 0.03);
         let table = crate::ExcitationTable::build(&problem);
         let inst = Instance::new(&problem, &table);
-        let all = vec![true; inst.links.len()];
-        let greedy = super::super::heuristics::reverse_delete(&inst, &all);
-        let opt = search(&inst, greedy.clone(), Limits::default(), false);
+        let opt = optimum(&inst);
         // Root only: a deadline right after the root.
         let mut s = Search {
             inst: &inst,
@@ -772,69 +777,40 @@ mod grouping_probe {
         let problem = crate::synth::bench_problem(n, seed, 0.03);
         let table = crate::ExcitationTable::build(&problem);
         let inst = Instance::new(&problem, &table);
-        let all = vec![true; inst.links.len()];
-        let greedy = super::super::heuristics::reverse_delete(&inst, &all);
-        let opt = search(&inst, greedy, Limits::default(), false);
-        // Enumerate connected sets up to k units.
-        let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
-        for l in &inst.links {
-            let (a, b) = l.arcs[0];
-            nbrs[a as usize].push(b);
-            nbrs[b as usize].push(a);
-        }
-        let mut seen = std::collections::HashSet::new();
-        let mut frontier: Vec<Vec<u32>> = (0..n as u32).map(|v| vec![v]).collect();
+        let opt = super::probe::optimum(&inst);
+        // Excited connected sets up to k units (not grown further once
+        // excited; the loop below adds one attached unit).
         let mut columns: Vec<(Vec<u32>, f64)> = Vec::new();
-        for _ in 0..k {
-            let mut next = Vec::new();
-            for s in frontier {
-                if !seen.insert(s.clone()) {
-                    continue;
-                }
-                if inst.oracle.excited(&s) {
-                    // Spanning tree of the group (Kruskal on links inside it).
-                    let mut edges: Vec<(f64, u32, u32)> = inst
-                        .links
-                        .iter()
-                        .map(|l| (l.cost, l.arcs[0].0, l.arcs[0].1))
-                        .filter(|&(_, a, b)| s.contains(&a) && s.contains(&b))
-                        .collect();
-                    edges.sort_by(|x, y| x.0.total_cmp(&y.0));
-                    let mut comp: Vec<u32> = s.clone();
-                    let mut cost = 0.0;
-                    for (c, a, b) in edges {
-                        let ia = s.iter().position(|&x| x == a).unwrap();
-                        let ib = s.iter().position(|&x| x == b).unwrap();
-                        let (ca, cb) = (comp[ia], comp[ib]);
-                        if ca != cb {
-                            cost += c;
-                            comp.iter_mut().for_each(|x| {
-                                if *x == cb {
-                                    *x = ca
-                                }
-                            });
+        super::super::cuts::connected_sets(&inst.neighbours(), k, |s| {
+            if !inst.oracle.excited(s) {
+                return true;
+            }
+            // Spanning tree of the group (Kruskal on links inside it).
+            let mut edges: Vec<(f64, u32, u32)> = inst
+                .links
+                .iter()
+                .map(|l| (l.cost, l.arcs[0].0, l.arcs[0].1))
+                .filter(|&(_, a, b)| s.contains(&a) && s.contains(&b))
+                .collect();
+            edges.sort_by(|x, y| x.0.total_cmp(&y.0));
+            let mut comp: Vec<u32> = s.to_vec();
+            let mut cost = 0.0;
+            for (c, a, b) in edges {
+                let ia = s.iter().position(|&x| x == a).unwrap();
+                let ib = s.iter().position(|&x| x == b).unwrap();
+                let (ca, cb) = (comp[ia], comp[ib]);
+                if ca != cb {
+                    cost += c;
+                    comp.iter_mut().for_each(|x| {
+                        if *x == cb {
+                            *x = ca
                         }
-                    }
-                    columns.push((s.clone(), cost));
-                    // Excited groups are not grown further here; the loop
-                    // below adds them with one attached unit.
-                    continue;
-                }
-                for &v in &s {
-                    for &u in &nbrs[v as usize] {
-                        if !s.contains(&u) {
-                            let mut t = s.clone();
-                            t.push(u);
-                            t.sort_unstable();
-                            next.push(t);
-                        }
-                    }
+                    });
                 }
             }
-            next.sort();
-            next.dedup();
-            frontier = next;
-        }
+            columns.push((s.to_vec(), cost));
+            false
+        });
         // Also grow excited groups by one unit (rank-0 units must attach).
         let base: Vec<(Vec<u32>, f64)> = columns.clone();
         for (s, c) in base {

@@ -402,35 +402,35 @@ fn components_partition(inst: &Instance, chosen: &[bool]) -> Vec<Vec<u32>> {
 /// networks small enough for the enumeration to be cheap; the rows wait in
 /// the pool until a point violates them.
 pub(crate) fn enumerate_rows(inst: &Instance, max_size: usize, out: &mut Vec<Row>) {
-    let n = inst.n;
-    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
-    for l in &inst.links {
-        for &(a, b) in &l.arcs {
-            nbrs[a as usize].push(b);
-            nbrs[b as usize].push(a);
-        }
-    }
-    for v in nbrs.iter_mut() {
-        v.sort_unstable();
-        v.dedup();
-    }
-    let mut seen: HashSet<Vec<u32>> = HashSet::new();
-    let mut frontier: Vec<Vec<u32>> = (0..n as u32).map(|v| vec![v]).collect();
     let mut part_of = Vec::new();
+    connected_sets(&inst.neighbours(), max_size, |s| {
+        if let Some(r) = singleton_row(inst, s, &mut part_of) {
+            out.push(r);
+        }
+        if s.len() > 1
+            && !inst.oracle.excited(s)
+            && let Some(r) = cover_row(inst, s, &mut part_of)
+        {
+            out.push(r);
+        }
+        true
+    });
+}
+
+/// Visits every connected set (sorted) of up to `max_size` units once, in
+/// order of size; `visit` returns whether to grow the set further.
+pub(crate) fn connected_sets(
+    nbrs: &[Vec<u32>],
+    max_size: usize,
+    mut visit: impl FnMut(&[u32]) -> bool,
+) {
+    let mut seen: HashSet<Vec<u32>> = HashSet::new();
+    let mut frontier: Vec<Vec<u32>> = (0..nbrs.len() as u32).map(|v| vec![v]).collect();
     for _size in 1..=max_size {
         let mut next = Vec::new();
         for s in frontier {
-            if !seen.insert(s.clone()) {
+            if !seen.insert(s.clone()) || !visit(&s) {
                 continue;
-            }
-            if let Some(r) = singleton_row(inst, &s, &mut part_of) {
-                out.push(r);
-            }
-            if s.len() > 1
-                && !inst.oracle.excited(&s)
-                && let Some(r) = cover_row(inst, &s, &mut part_of)
-            {
-                out.push(r);
             }
             for &v in &s {
                 for &u in &nbrs[v as usize] {

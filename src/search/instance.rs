@@ -204,6 +204,22 @@ impl<'a> Instance<'a> {
         }
     }
 
+    /// For each unit, the units it shares a candidate link with (sorted).
+    pub fn neighbours(&self) -> Vec<Vec<u32>> {
+        let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); self.n];
+        for l in &self.links {
+            for &(a, b) in &l.arcs {
+                nbrs[a as usize].push(b);
+                nbrs[b as usize].push(a);
+            }
+        }
+        for v in nbrs.iter_mut() {
+            v.sort_unstable();
+            v.dedup();
+        }
+        nbrs
+    }
+
     pub fn cost(&self, chosen: &[bool]) -> f64 {
         0.0 + self
             .links

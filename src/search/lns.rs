@@ -24,17 +24,7 @@ const PASSES: usize = 3;
 pub(crate) fn improve(inst: &Instance, start: &[bool], deadline: Option<Instant>) -> Vec<bool> {
     let mut best = start.to_vec();
     let mut best_cost = inst.cost(&best);
-    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); inst.n];
-    for l in &inst.links {
-        for &(a, b) in &l.arcs {
-            nbrs[a as usize].push(b);
-            nbrs[b as usize].push(a);
-        }
-    }
-    for v in nbrs.iter_mut() {
-        v.sort_unstable();
-        v.dedup();
-    }
+    let nbrs = inst.neighbours();
     // Seeds: units by decreasing cost of the chosen links at them.
     let mut weight = vec![0.0; inst.n];
     for (k, l) in inst.links.iter().enumerate() {
