@@ -159,11 +159,11 @@ pub fn excitation_summary(problem: &Problem, table: &ExcitationTable) -> Excitat
         .collect();
     let all: Vec<NodeId> = (0..problem.n() as u32).map(NodeId).collect();
     ExcitationSummary {
-        network: problem.name.clone(),
-        parameters: problem.parameters,
+        network: problem.settings.name.clone(),
+        parameters: problem.settings.parameters,
         min_excitation: table.min_excitation(),
         min_excitation_given: table.min_excitation_given(),
-        window: problem.window,
+        window: problem.settings.window,
         windows: table.windows().len(),
         horizon: [problem.domain.h0, problem.domain.h1],
         units,
@@ -226,7 +226,7 @@ pub fn check(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Check
         })
         .collect();
     Check {
-        network: problem.name.clone(),
+        network: problem.settings.name.clone(),
         condition_holds: source_components.iter().all(|c| c.excited),
         min_excitation: table.min_excitation(),
         min_excitation_given: table.min_excitation_given(),

@@ -174,10 +174,10 @@ impl ExcitationTable {
     /// O(R p² + n W (p² + log R)) for R log rows, n units, W windows;
     /// memory n W p(p+1)/2 numbers.
     pub fn build(problem: &Problem) -> Self {
-        let p = problem.parameters;
+        let p = problem.settings.parameters;
         let q = packed_len(p);
         let n = problem.n();
-        let g = problem.gains;
+        let g = problem.settings.gains;
         let windows = problem.windows.clone();
         let horizon = Window {
             start: problem.domain.h0,
@@ -220,7 +220,7 @@ impl ExcitationTable {
             gram,
             flow_total,
             jump_total,
-            problem.min_excitation,
+            problem.settings.min_excitation,
         )
     }
 

@@ -182,22 +182,8 @@ pub struct Settings {
 pub struct Problem {
     /// The problem file.
     pub path: PathBuf,
-    /// Network name.
-    pub name: String,
-    /// Parameter dimension p.
-    pub parameters: usize,
-    /// Excitation window length T.
-    pub window: f64,
-    /// How window length is measured.
-    pub window_kind: WindowKind,
-    /// Stride between window starts, when given.
-    pub stride: Option<f64>,
-    /// Required excitation μ_req, when given.
-    pub min_excitation: Option<f64>,
-    /// Required convergence rate (1/s), when given.
-    pub target_rate: Option<f64>,
-    /// Estimator gains.
-    pub gains: Gains,
+    /// The `[network]` and `[estimator]` settings.
+    pub settings: Settings,
     /// Units.
     pub nodes: Vec<Node>,
     /// Candidate links.
@@ -230,14 +216,7 @@ impl Problem {
         }
         Some(Problem {
             path,
-            name: settings.name,
-            parameters: settings.parameters,
-            window: settings.window,
-            window_kind: settings.window_kind,
-            stride: settings.stride,
-            min_excitation: settings.min_excitation,
-            target_rate: settings.target_rate,
-            gains: settings.gains,
+            settings,
             nodes,
             links,
             domain,
@@ -583,21 +562,23 @@ impl Validator<'_> {
         }
         Ok(Problem {
             path: self.path.to_path_buf(),
-            // An unnamed network is called after its file.
-            name: if raw.network.name.trim().is_empty() {
-                self.path
-                    .file_stem()
-                    .map_or_else(String::new, |s| s.to_string_lossy().into_owned())
-            } else {
-                raw.network.name
+            settings: Settings {
+                // An unnamed network is called after its file.
+                name: if raw.network.name.trim().is_empty() {
+                    self.path
+                        .file_stem()
+                        .map_or_else(String::new, |s| s.to_string_lossy().into_owned())
+                } else {
+                    raw.network.name
+                },
+                parameters: p,
+                window,
+                window_kind,
+                stride,
+                min_excitation,
+                target_rate,
+                gains,
             },
-            parameters: p,
-            window,
-            window_kind,
-            stride,
-            min_excitation,
-            target_rate,
-            gains,
             nodes,
             links,
             domain,

@@ -165,7 +165,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
         let shortfalls = bad.iter().map(|c| shortfall(problem, table, c)).collect();
         let check = analysis::check(problem, table, &problem.all_links());
         return Plan {
-            network: problem.name.clone(),
+            network: problem.settings.name.clone(),
             status: PlanStatus::Infeasible,
             cost: None,
             lower_bound: None,
@@ -225,7 +225,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     let check = analysis::check(problem, table, &set);
     let s = &result.stats;
     Plan {
-        network: problem.name.clone(),
+        network: problem.settings.name.clone(),
         status,
         cost: Some(cost),
         lower_bound: Some(lower),
