@@ -8,6 +8,8 @@
 //!   (`plan`, infeasible; no plan file is written).
 //! - 2: bad input (problem file, log, plan file) or bad command line.
 //! - 3: any other failure (for example, writing the output failed).
+//! - 141: standard output was closed early (a pipe into `head`), as for a
+//!   program ended by SIGPIPE.
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
@@ -82,6 +84,15 @@ fn main() -> ExitCode {
     match run() {
         Ok(code) => code,
         Err(e) => {
+            // A closed pipe (`exmesh ... | head`) ends quietly with the
+            // conventional 128 + SIGPIPE.
+            let broken_pipe = e
+                .chain()
+                .filter_map(|c| c.downcast_ref::<std::io::Error>())
+                .any(|io| io.kind() == std::io::ErrorKind::BrokenPipe);
+            if broken_pipe {
+                return ExitCode::from(141);
+            }
             let code = if e.downcast_ref::<InputError>().is_some() {
                 2
             } else {

@@ -20,6 +20,7 @@ pub fn write<T: Serialize>(value: &T, out: &mut impl Write) -> io::Result<()> {
         body: value,
         cautions: &CAUTIONS,
     };
-    serde_json::to_writer_pretty(&mut *out, &wrapped).map_err(io::Error::other)?;
+    // serde_json hands back the original io::Error (kind kept) for write failures.
+    serde_json::to_writer_pretty(&mut *out, &wrapped).map_err(io::Error::from)?;
     writeln!(out)
 }
