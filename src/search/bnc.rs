@@ -237,7 +237,54 @@ struct Search<'a, 'b> {
     node_limit: Option<u64>,
 }
 
-impl Search<'_, '_> {
+impl<'a, 'b> Search<'a, 'b> {
+    fn new(inst: &'a Instance<'b>, start: Vec<bool>, limits: Limits, progress: bool) -> Self {
+        let now = Instant::now();
+        Search {
+            inst,
+            pool: Pool::default(),
+            best_cost: inst.cost(&start),
+            best: start,
+            stats: SearchStats::default(),
+            start: now,
+            deadline: limits.deadline,
+            progress: progress && std::io::stderr().is_terminal(),
+            last_progress: now,
+            last_objective: f64::NEG_INFINITY,
+            node_limit: limits.nodes,
+        }
+    }
+
+    /// Seeds the pool: the cut of every unit that is not excited alone (in
+    /// the root LP), and on small networks every connected set of up to 3
+    /// units (kept in the pool until violated).
+    fn seed_pool(&mut self) {
+        let inst = self.inst;
+        let mut part_of = Vec::new();
+        let seed: Vec<Row> = (0..inst.n as u32)
+            .filter(|&v| !inst.oracle.excited(&[v]))
+            .filter_map(|v| super::cuts::cover_row(inst, &[v], &mut part_of))
+            .collect();
+        for i in self.pool_add(seed) {
+            self.pool.used[i] = true;
+        }
+        if inst.n <= 200 {
+            let mut rows = Vec::new();
+            enumerate_rows(inst, 3, &mut rows);
+            self.pool_add(rows);
+        }
+    }
+
+    /// The root LP over the used pool rows, solved.
+    fn root_lp(&mut self) -> Option<Lp> {
+        let used: Vec<usize> = (0..self.pool.rows.len())
+            .filter(|&i| self.pool.used[i])
+            .collect();
+        let lp = build_lp(self.inst, &self.pool, &used);
+        self.stats.lp_solves += 1;
+        lp
+    }
+
     fn timed_out(&self) -> bool {
         self.deadline.is_some_and(|d| Instant::now() >= d)
             || self.node_limit.is_some_and(|m| self.stats.nodes >= m)
@@ -444,51 +491,14 @@ pub(crate) fn search(
     progress: bool,
 ) -> SearchResult {
     let deadline = limits.deadline;
-    let now = Instant::now();
-    let mut s = Search {
-        inst,
-        pool: Pool::default(),
-        best_cost: inst.cost(&start),
-        best: start,
-        stats: SearchStats::default(),
-        start: now,
-        deadline,
-        progress: progress && std::io::stderr().is_terminal(),
-        last_progress: now,
-        last_objective: f64::NEG_INFINITY,
-        node_limit: limits.nodes,
-    };
-    // Seed rows: the cut of every unit that is not excited alone, and the
-    // rows around the incumbent's components.
-    let mut seed = Vec::new();
-    let mut part_of = Vec::new();
-    for v in 0..inst.n as u32 {
-        if !inst.oracle.excited(&[v])
-            && let Some(r) = super::cuts::cover_row(inst, &[v], &mut part_of)
-        {
-            seed.push(r);
-        }
-    }
-    for i in s.pool_add(seed) {
-        s.pool.used[i] = true;
-    }
-    // Small networks: every connected set of up to 3 units, kept in the pool
-    // until violated.
-    if inst.n <= 200 {
-        let mut rows = Vec::new();
-        enumerate_rows(inst, 3, &mut rows);
-        s.pool_add(rows);
-    }
-
-    // Root LP.
+    let mut s = Search::new(inst, start, limits, progress);
+    s.seed_pool();
     let t = Instant::now();
-    let seeds: Vec<usize> = (0..s.pool.rows.len()).filter(|&i| s.pool.used[i]).collect();
-    let Some(root) = build_lp(inst, &s.pool, &seeds) else {
+    let Some(root) = s.root_lp() else {
         // The seed rows are valid, so this only happens on numerical trouble.
         return finish(s, f64::NEG_INFINITY, true);
     };
     s.stats.lp_time += t.elapsed();
-    s.stats.lp_solves += 1;
 
     let mut lower = f64::NEG_INFINITY;
     let Some((root, y)) = s.cut_loop(root, u32::MAX, true) else {
@@ -662,6 +672,14 @@ fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
 mod probe {
     use super::*;
 
+    /// A number from the environment, or `default`.
+    pub(super) fn env_or<T: std::str::FromStr>(name: &str, default: T) -> T {
+        std::env::var(name)
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(default)
+    }
+
     /// Branch and cut to optimality from the reverse-delete incumbent.
     pub(super) fn optimum(inst: &Instance) -> SearchResult {
         let all = vec![true; inst.links.len()];
@@ -673,45 +691,17 @@ mod probe {
     #[test]
     #[ignore]
     fn root_point_against_optimum() {
-        let n: usize = std::env::var("PROBE_N")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(20);
-        let seed: u64 = std::env::var("PROBE_SEED")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(6);
+        let n: usize = env_or("PROBE_N", 20);
+        let seed: u64 = env_or("PROBE_SEED", 6);
         let problem = crate::synth::bench_problem(n, seed, 0.03);
         let table = crate::ExcitationTable::build(&problem);
         let inst = Instance::new(&problem, &table);
         let opt = optimum(&inst);
-        // Root only: a deadline right after the root.
-        let mut s = Search {
-            inst: &inst,
-            pool: Pool::default(),
-            best_cost: opt.lower_bound,
-            best: opt.best.clone(),
-            stats: SearchStats::default(),
-            start: Instant::now(),
-            deadline: None,
-            progress: false,
-            last_progress: Instant::now(),
-            last_objective: 0.0,
-            node_limit: None,
-        };
+        // The root cutting alone, with no incumbent to prune it.
+        let mut s = Search::new(&inst, opt.best.clone(), Limits::default(), false);
         s.best_cost = f64::INFINITY;
-        let seeds: Vec<Row> = (0..n as u32)
-            .filter(|&v| !inst.oracle.excited(&[v]))
-            .filter_map(|v| super::super::cuts::cover_row(&inst, &[v], &mut Vec::new()))
-            .collect();
-        for i in s.pool_add(seeds) {
-            s.pool.used[i] = true;
-        }
-        let mut rows = Vec::new();
-        enumerate_rows(&inst, 3, &mut rows);
-        s.pool_add(rows);
-        let ids: Vec<usize> = (0..s.pool.rows.len()).filter(|&i| s.pool.used[i]).collect();
-        let root = build_lp(&inst, &s.pool, &ids).unwrap();
+        s.seed_pool();
+        let root = s.root_lp().unwrap();
         let (root, y) = s.cut_loop(root, u32::MAX, true).unwrap();
         eprintln!(
             "root {:.1} optimum {:.1}",
@@ -753,6 +743,7 @@ mod probe {
 
 #[cfg(test)]
 mod grouping_probe {
+    use super::probe::env_or;
     use super::*;
 
     /// Diagnostic, run by hand: the set-covering LP over excited connected
@@ -762,18 +753,9 @@ mod grouping_probe {
     #[test]
     #[ignore]
     fn grouping_lp_against_root() {
-        let n: usize = std::env::var("PROBE_N")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(20);
-        let seed: u64 = std::env::var("PROBE_SEED")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(6);
-        let k: usize = std::env::var("PROBE_K")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(6);
+        let n: usize = env_or("PROBE_N", 20);
+        let seed: u64 = env_or("PROBE_SEED", 6);
+        let k: usize = env_or("PROBE_K", 6);
         let problem = crate::synth::bench_problem(n, seed, 0.03);
         let table = crate::ExcitationTable::build(&problem);
         let inst = Instance::new(&problem, &table);
