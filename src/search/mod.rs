@@ -3,7 +3,7 @@
 //!
 //! Stages: feasibility of the all-candidates graph; greedy incumbent by
 //! reverse-delete; branch and cut on the covering model (cuts and partition
-//! inequalities separated lazily, see [`cuts`](self)); final irreducibility.
+//! inequalities separated lazily, see docs/theory.md §5); final irreducibility.
 
 mod bnc;
 mod cuts;
