@@ -89,6 +89,9 @@ pub struct Check {
     pub cost: f64,
     /// Source components, ordered by their first unit.
     pub source_components: Vec<SourceComponent>,
+    /// Certified convergence rate, when asked for (see [`crate::certify`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub certificate: Option<crate::certify::Certificate>,
 }
 
 fn names(problem: &Problem, nodes: &[NodeId]) -> Vec<String> {
@@ -238,5 +241,6 @@ pub fn check(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Check
             .collect(),
         cost: problem.cost(set),
         source_components,
+        certificate: None,
     }
 }

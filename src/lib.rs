@@ -43,6 +43,7 @@
 #![forbid(unsafe_code)]
 
 pub mod analysis;
+pub mod certify;
 pub mod error;
 pub mod excitation;
 pub mod problem;

@@ -13,7 +13,7 @@
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
-use exmesh::{ExcitationTable, InputError, LinkSet, analysis, problem, report, search};
+use exmesh::{ExcitationTable, InputError, LinkSet, analysis, certify, problem, report, search};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -63,6 +63,9 @@ enum Command {
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
+        /// Only the structural check: skip the certified convergence rate.
+        #[arg(long)]
+        skip_rate: bool,
     },
 }
 
@@ -167,6 +170,7 @@ fn run() -> anyhow::Result<ExitCode> {
             problem,
             links,
             json,
+            skip_rate,
         } => {
             let problem = problem::load(&problem)?;
             let set: LinkSet = match (links.all, links.installed, links.plan) {
@@ -176,7 +180,10 @@ fn run() -> anyhow::Result<ExitCode> {
                 _ => unreachable!("clap requires one link choice"),
             };
             let table = ExcitationTable::build(&problem);
-            let check = analysis::check(&problem, &table, &set);
+            let mut check = analysis::check(&problem, &table, &set);
+            if !skip_rate {
+                check.certificate = Some(certify::certify(&problem, &table, &set));
+            }
             if json {
                 report::json::write(&check, &mut out)
             } else {

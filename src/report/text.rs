@@ -2,6 +2,7 @@
 
 use super::CAUTIONS;
 use crate::analysis::{Check, ExcitationSummary};
+use crate::certify::Certificate;
 use crate::search::{Plan, PlanStatus};
 use std::io::{self, Write};
 
@@ -135,6 +136,10 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
         writeln!(out, "  drives:  {} unit(s)", sc.reaches.len())?;
     }
     writeln!(out)?;
+    if let Some(cert) = &c.certificate {
+        certificate(cert, out)?;
+        writeln!(out)?;
+    }
     if c.condition_holds {
         writeln!(
             out,
@@ -152,6 +157,63 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
         )?;
     }
     cautions(out)
+}
+
+/// Writes a certificate: rate, window, transient factor, time to 1 %, the
+/// units that carry the slowest mode, and the gain conditions.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
+    match c.rate {
+        Some(rate) => {
+            writeln!(
+                out,
+                "Certified rate: {rate:.4e} 1/s over windows of {} s ({} windows, worst ‖Φ‖ = {:.6})",
+                c.window, c.windows, c.contraction
+            )?;
+            if let (Some(k), Some(t)) = (c.transient_factor, c.time_to_1pct) {
+                writeln!(
+                    out,
+                    "  |e(t)| ≤ {k:.4} · exp(−{rate:.4e} (t − s)) · |e(s)|; error below 1 % after {t:.1} s"
+                )?;
+            }
+        }
+        None => writeln!(
+            out,
+            "Certified rate: none on this horizon — {}",
+            c.reason.as_deref().unwrap_or("no window shows contraction")
+        )?,
+    }
+    if let Some(a) = c.asymptotic_rate {
+        writeln!(out, "  decay over the whole horizon: {a:.4e} 1/s")?;
+    }
+    if c.rate.is_some() {
+        let top: Vec<String> = c
+            .units
+            .iter()
+            .take(3)
+            .map(|u| format!("{} ({:.0} %)", u.node, 100.0 * u.share))
+            .collect();
+        writeln!(out, "  slowest mode sits mostly in: {}", top.join(", "))?;
+    }
+    if c.unconverged_windows > 0 {
+        writeln!(
+            out,
+            "  warning: the power iteration did not settle on {} window(s); their norms are estimates",
+            c.unconverged_windows
+        )?;
+    }
+    for g in &c.gains {
+        writeln!(
+            out,
+            "  gain check: {} — value {:.4}: {}",
+            g.condition,
+            g.value,
+            if g.ok { "pass" } else { "FAIL" }
+        )?;
+    }
+    Ok(())
 }
 
 /// Writes a plan: status, cost and bound, the chosen links, the source

@@ -1,0 +1,528 @@
+//! Certified convergence rate of a link set on the recorded data (DESIGN §4)
+//! and the gain conditions.
+//!
+//! For every certificate window w, `‖Φ(w)‖₂` is found by power iteration on
+//! `ΦᵀΦ` (forward and adjoint propagation, see [`propagate`]). With
+//! `ρ = max_w ‖Φ(w)‖₂ < 1` over windows of length `T_c`, the certified rate
+//! is `λ = −ln ρ / T_c`, and `|e(t)| ≤ c·e^{−λ(t−s)}|e(s)|` with the transient
+//! factor `c = M/ρ`, M a bound on `‖Φ‖₂` over partial windows.
+//!
+//! # References
+//! Golub & Van Loan, "Matrix Computations", 4th ed., 2013, §8.2 (power
+//! method); Khalil, "Nonlinear Systems", 3rd ed., 2002, §4.6 (uniform
+//! exponential stability of linear time-varying systems from the transition
+//! matrix).
+
+pub mod propagate;
+
+use crate::analysis;
+use crate::excitation::ExcitationTable;
+use crate::problem::{LinkSet, Problem};
+use crate::signal::{Window, WindowKind, window_at};
+use propagate::{Direction, ErrorSystem, Schedule, Step, Work};
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// Windows handled one after another by one thread, each warm-starting the
+/// power iteration from the previous one's singular vector. Fixed so that
+/// results do not depend on the number of threads.
+const CHUNK: usize = 16;
+
+/// Lanczos stops when the Ritz residual is below this times the Ritz value
+/// (the value itself is then accurate to about the square of it).
+const LANCZOS_TOLERANCE: f64 = 1e-6;
+
+/// Largest Krylov dimension before a restart from the Ritz vector.
+const LANCZOS_DIMENSION: usize = 30;
+
+/// Most restarts.
+const LANCZOS_RESTARTS: usize = 20;
+
+/// Multiples of the excitation window tried as the certificate window.
+const MULTIPLES: [usize; 5] = [1, 2, 4, 8, 16];
+
+/// One gain condition.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GainCheck {
+    /// What is checked.
+    pub condition: String,
+    /// The value checked.
+    pub value: f64,
+    /// The condition holds.
+    pub ok: bool,
+}
+
+/// A unit's share of the slowest mode.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct UnitShare {
+    /// Unit id.
+    pub node: String,
+    /// Share of the squared error left in this unit after the worst window,
+    /// along the slowest mode (shares sum to 1).
+    pub share: f64,
+}
+
+/// The certificate of a link set.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Certificate {
+    /// Certified rate λ in 1/s; `None` when not certified on this horizon.
+    pub rate: Option<f64>,
+    /// Certificate window T_c in seconds (the one giving the best rate, or
+    /// the longest tried when none certifies).
+    pub window: f64,
+    /// ρ = max over windows of ‖Φ(w)‖₂ for that window length.
+    pub contraction: f64,
+    /// Transient factor c: `|e(t)| ≤ c e^{−λ(t−s)} |e(s)|`.
+    pub transient_factor: Option<f64>,
+    /// Time for the certified bound to fall to 1 % (seconds).
+    pub time_to_1pct: Option<f64>,
+    /// All gain conditions hold.
+    pub gains_ok: bool,
+    /// The gain conditions.
+    pub gains: Vec<GainCheck>,
+    /// `−ln ‖Φ(h1, h0)‖₂ / (h1 − h0)` over the whole horizon.
+    pub asymptotic_rate: Option<f64>,
+    /// Number of certificate windows evaluated for `window`.
+    pub windows: usize,
+    /// Start of the worst window.
+    pub worst_window_start: Option<f64>,
+    /// Units by share of the slowest mode, largest first.
+    pub units: Vec<UnitShare>,
+    /// Why there is no rate, when there is none.
+    pub reason: Option<String>,
+    /// Power iterations that stopped at the iteration limit.
+    pub unconverged_windows: usize,
+    /// Power iterations (one forward and one adjoint pass each) over all
+    /// windows of every window length tried.
+    pub power_iterations: usize,
+}
+
+/// The gain conditions of DESIGN §4 for the arcs of a link set.
+///
+/// # References
+/// Olfati-Saber, Fax & Murray, "Consensus and cooperation in networked
+/// multi-agent systems", Proc. IEEE 95(1), 2007 (discrete consensus step
+/// below the inverse of the largest degree).
+pub fn gain_checks(problem: &Problem, set: &LinkSet) -> Vec<GainCheck> {
+    let g = problem.settings.gains;
+    let mut degree = vec![0.0f64; problem.n()];
+    for a in problem.arcs(set) {
+        degree[a.to.index()] += a.weight;
+    }
+    let max_degree = degree.iter().fold(0.0f64, |m, &d| m.max(d));
+    vec![
+        GainCheck {
+            condition: "jump gain in (0, 2)".into(),
+            value: g.jump_gain,
+            ok: g.jump_gain > 0.0 && g.jump_gain < 2.0,
+        },
+        GainCheck {
+            condition: "jump coupling × largest weighted in-degree < 1".into(),
+            value: g.jump_coupling * max_degree,
+            ok: g.jump_coupling * max_degree < 1.0,
+        },
+    ]
+}
+
+/// Result of the power iteration on one window.
+#[derive(Debug, Clone)]
+struct WindowNorm {
+    log_norm: f64,
+    converged: bool,
+    iterations: usize,
+    /// Left singular vector (unit length).
+    left: Vec<f64>,
+}
+
+fn normalise(x: &mut [f64]) -> f64 {
+    let n = x.iter().map(|v| v * v).sum::<f64>().sqrt();
+    if n > 0.0 {
+        x.iter_mut().for_each(|v| *v /= n);
+    }
+    n
+}
+
+/// A deterministic starting vector with no special structure.
+fn start_vector(d: usize) -> Vec<f64> {
+    let mut rng = crate::synth::Rng(0x5eed_cafe);
+    let mut x: Vec<f64> = (0..d).map(|_| rng.uniform() - 0.5).collect();
+    normalise(&mut x);
+    x
+}
+
+/// `y ← ΦᵀΦ x`, returning ln of the scale taken out (the true product is
+/// `y · exp(2·returned)` relative to `reference`).
+fn normal_product(
+    system: &ErrorSystem,
+    steps: &[Step],
+    x: &[f64],
+    y: &mut [f64],
+    work: &mut Work,
+) -> f64 {
+    y.copy_from_slice(x);
+    let a = system.propagate(Direction::Forward, steps, y, work);
+    let b = system.propagate(Direction::Adjoint, steps, y, work);
+    a + b
+}
+
+/// ln ‖Φ‖₂ for the steps, by the Lanczos method on `ΦᵀΦ` with full
+/// reorthogonalisation, restarted from the Ritz vector, starting from `x`
+/// (which holds the right singular vector estimate on return).
+fn power_norm(
+    system: &ErrorSystem,
+    steps: &[Step],
+    x: &mut Vec<f64>,
+    work: &mut Work,
+) -> WindowNorm {
+    let d = x.len();
+    let mut iterations = 0;
+    let mut converged = false;
+    let mut theta = 0.0f64;
+    let mut log_ref = 0.0f64;
+    if normalise(x) == 0.0 {
+        *x = start_vector(d);
+    }
+    'restarts: for restart in 0..LANCZOS_RESTARTS {
+        let mut basis: Vec<Vec<f64>> = vec![x.clone()];
+        let mut alpha: Vec<f64> = Vec::new();
+        let mut beta: Vec<f64> = Vec::new();
+        let mut w = vec![0.0; d];
+        for j in 0..LANCZOS_DIMENSION {
+            iterations += 1;
+            let scale = normal_product(system, steps, &basis[j], &mut w, work);
+            if restart == 0 && j == 0 {
+                log_ref = scale;
+            }
+            let f = (scale - log_ref).exp();
+            w.iter_mut().for_each(|v| *v *= f);
+            let a: f64 = w.iter().zip(&basis[j]).map(|(p, q)| p * q).sum();
+            alpha.push(a);
+            // Full reorthogonalisation (twice is enough, Parlett).
+            for _ in 0..2 {
+                for q in &basis {
+                    let c: f64 = w.iter().zip(q).map(|(p, r)| p * r).sum();
+                    w.iter_mut().zip(q).for_each(|(p, r)| *p -= c * r);
+                }
+            }
+            let b = normalise(&mut w);
+            let (t, s) = top_ritz(&alpha, &beta);
+            theta = t;
+            let residual = b * s[s.len() - 1].abs();
+            let done = residual <= LANCZOS_TOLERANCE * t || b <= f64::MIN_POSITIVE * 1e10;
+            if done || j + 1 == LANCZOS_DIMENSION || j + 1 == d {
+                // Ritz vector.
+                let mut v = vec![0.0; d];
+                for (q, &c) in basis.iter().zip(&s) {
+                    v.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
+                }
+                normalise(&mut v);
+                *x = v;
+                if done || j + 1 == d {
+                    converged = true;
+                    break 'restarts;
+                }
+                continue 'restarts;
+            }
+            beta.push(b);
+            basis.push(w.clone());
+        }
+    }
+    let mut y = x.clone();
+    let s = system.propagate(Direction::Forward, steps, &mut y, work);
+    let len = normalise(&mut y);
+    // The Ritz value and the image of the Ritz vector agree to the tolerance;
+    // take the larger (both are lower estimates of ‖Φ‖²).
+    let from_ritz = if theta > 0.0 {
+        0.5 * (theta.ln() + log_ref)
+    } else {
+        f64::NEG_INFINITY
+    };
+    let from_image = if len > 0.0 {
+        len.ln() + s
+    } else {
+        f64::NEG_INFINITY
+    };
+    WindowNorm {
+        log_norm: from_ritz.max(from_image),
+        converged,
+        iterations,
+        left: y,
+    }
+}
+
+/// Largest eigenvalue of the symmetric tridiagonal matrix (diagonal `a`,
+/// off-diagonal `b`) and its eigenvector.
+fn top_ritz(a: &[f64], b: &[f64]) -> (f64, Vec<f64>) {
+    let k = a.len();
+    let t = nalgebra::DMatrix::from_fn(k, k, |r, c| {
+        if r == c {
+            a[r]
+        } else if r + 1 == c {
+            b[r]
+        } else if c + 1 == r {
+            b[c]
+        } else {
+            0.0
+        }
+    });
+    let e = nalgebra::SymmetricEigen::new(t);
+    let mut best = 0;
+    for i in 1..k {
+        if e.eigenvalues[i] > e.eigenvalues[best] {
+            best = i;
+        }
+    }
+    (
+        e.eigenvalues[best],
+        e.eigenvectors.column(best).iter().copied().collect(),
+    )
+}
+
+/// ln ‖Φ(w)‖₂ for every window, in parallel over fixed chunks.
+fn window_norms(system: &ErrorSystem, windows: &[Window]) -> Vec<WindowNorm> {
+    let d = system.dim();
+    windows
+        .par_chunks(CHUNK)
+        .flat_map_iter(|chunk| {
+            let mut x = start_vector(d);
+            let mut work = Work::default();
+            let mut steps = Vec::new();
+            chunk
+                .iter()
+                .map(|w| {
+                    system.schedule().steps(w, &mut steps);
+                    power_norm(system, &steps, &mut x, &mut work)
+                })
+                .collect::<Vec<_>>()
+        })
+        .collect()
+}
+
+/// Certificate windows of `multiple` × T: every excitation-window start whose
+/// longer window fits, plus (time windows) the chain `h0 + k·T_c` so that the
+/// bound holds from the start of the horizon.
+fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
+    let s = &problem.settings;
+    let length = s.window * multiple as f64;
+    let mut out: Vec<Window> = problem
+        .windows
+        .iter()
+        .filter_map(|w| window_at(&problem.domain, s.window_kind, length, w.start))
+        .collect();
+    if s.window_kind == WindowKind::Time {
+        let mut k = 0usize;
+        while let Some(w) = window_at(
+            &problem.domain,
+            s.window_kind,
+            length,
+            problem.domain.h0 + k as f64 * length,
+        ) {
+            out.push(w);
+            k += 1;
+        }
+    }
+    out.sort_by(|a, b| a.start.total_cmp(&b.start));
+    out.dedup_by(|a, b| a.start == b.start);
+    out
+}
+
+struct Trial {
+    multiple: usize,
+    length: f64,
+    log_rho: f64,
+    worst: usize,
+    windows: Vec<Window>,
+    norms: Vec<WindowNorm>,
+}
+
+impl Trial {
+    fn rate(&self) -> Option<f64> {
+        (self.log_rho < 0.0).then(|| -self.log_rho / self.length)
+    }
+}
+
+fn trial(problem: &Problem, system: &ErrorSystem, multiple: usize) -> Option<Trial> {
+    let windows = certificate_windows(problem, multiple);
+    if windows.is_empty() {
+        return None;
+    }
+    let norms = window_norms(system, &windows);
+    let mut worst = 0;
+    for (k, w) in norms.iter().enumerate() {
+        if w.log_norm > norms[worst].log_norm {
+            worst = k;
+        }
+    }
+    let length = windows
+        .iter()
+        .map(|w| w.end - w.start)
+        .fold(0.0f64, f64::max);
+    Some(Trial {
+        multiple,
+        length,
+        log_rho: norms[worst].log_norm,
+        worst,
+        windows,
+        norms,
+    })
+}
+
+/// ln of a bound M on ‖Φ(s+τ, s)‖₂ over all windows and all τ inside them:
+/// the smaller of the product of 2-norm step bounds and √n times the
+/// product of step bounds in the norm `max_i |e_i|` (since
+/// `|x|_max ≤ |x|₂ ≤ √n |x|_max`). Factors below 1 are taken as 1, so the
+/// bound covers every partial window.
+fn log_partial_bound(system: &ErrorSystem, windows: &[Window]) -> f64 {
+    let mut steps = Vec::new();
+    let (mut two, mut sup) = (0.0f64, 0.0f64);
+    for w in windows {
+        system.schedule().steps(w, &mut steps);
+        let a: f64 = steps
+            .iter()
+            .map(|s| system.step_bound(s).ln().max(0.0))
+            .sum();
+        let b: f64 = steps
+            .iter()
+            .map(|s| system.step_bound_sup(s).ln().max(0.0))
+            .sum();
+        two = two.max(a);
+        sup = sup.max(b);
+    }
+    two.min(sup + 0.5 * (system.schedule().n() as f64).ln())
+}
+
+/// ln ‖Φ(h1, h0)‖₂ over the whole horizon.
+fn horizon_log_norm(problem: &Problem, system: &ErrorSystem) -> f64 {
+    let w = Window {
+        start: problem.domain.h0,
+        end: problem.domain.h1,
+        jumps_through_end: true,
+    };
+    let mut steps = Vec::new();
+    system.schedule().steps(&w, &mut steps);
+    let mut x = start_vector(system.dim());
+    power_norm(system, &steps, &mut x, &mut Work::default()).log_norm
+}
+
+/// Certifies the convergence rate of `set` on the recorded data.
+///
+/// When the structural condition fails the rate is not computed (a
+/// non-excited source component keeps its weakest direction forever).
+///
+/// # Complexity
+/// For W windows of S steps, np unknowns and A arcs:
+/// O(W·S·I·m·(np + A·p)) with I power iterations (few, warm-started) and m
+/// Taylor terms per step; windows run in parallel.
+pub fn certify(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Certificate {
+    let schedule = Schedule::new(problem);
+    certify_with(problem, table, &schedule, set)
+}
+
+/// Like [`certify`], with a prepared schedule (for repeated use).
+pub fn certify_with(
+    problem: &Problem,
+    table: &ExcitationTable,
+    schedule: &Schedule,
+    set: &LinkSet,
+) -> Certificate {
+    let gains = gain_checks(problem, set);
+    let gains_ok = gains.iter().all(|g| g.ok);
+    let mut cert = Certificate {
+        rate: None,
+        window: problem.settings.window,
+        contraction: 1.0,
+        transient_factor: None,
+        time_to_1pct: None,
+        gains_ok,
+        gains,
+        asymptotic_rate: None,
+        windows: 0,
+        worst_window_start: None,
+        units: Vec::new(),
+        reason: None,
+        unconverged_windows: 0,
+        power_iterations: 0,
+    };
+    let structural = analysis::check(problem, table, set);
+    if !structural.condition_holds {
+        cert.reason = Some(
+            "a source component is not jointly excited: the error along its weakest \
+             direction never decays"
+                .into(),
+        );
+        return cert;
+    }
+    let system = ErrorSystem::of_links(schedule, problem, set);
+    let horizon = problem.domain.h1 - problem.domain.h0;
+    let mut best: Option<Trial> = None;
+    let mut last: Option<Trial> = None;
+    for &m in &MULTIPLES {
+        if m > 1 && problem.settings.window * m as f64 > horizon / 2.0 {
+            break;
+        }
+        let Some(t) = trial(problem, &system, m) else {
+            break;
+        };
+        cert.power_iterations += t.norms.iter().map(|w| w.iterations).sum::<usize>();
+        let improved = match (&best, t.rate()) {
+            (_, None) => false,
+            (None, Some(_)) => true,
+            (Some(b), Some(r)) => r > b.rate().unwrap_or(0.0) * 1.01,
+        };
+        let stop = best.is_some() && !improved;
+        if improved {
+            best = Some(t);
+        } else {
+            last = Some(t);
+        }
+        if stop {
+            break;
+        }
+    }
+    let log_h = horizon_log_norm(problem, &system);
+    if log_h < 0.0 {
+        cert.asymptotic_rate = Some(-log_h / horizon);
+    }
+    let Some(t) = best.or(last) else {
+        cert.reason = Some("no certificate window fits in the horizon".into());
+        return cert;
+    };
+    cert.window = t.length;
+    cert.contraction = t.log_rho.exp();
+    cert.windows = t.windows.len();
+    cert.worst_window_start = Some(t.windows[t.worst].start);
+    cert.unconverged_windows = t.norms.iter().filter(|w| !w.converged).count();
+    let p = problem.settings.parameters;
+    let left = &t.norms[t.worst].left;
+    let mut units: Vec<UnitShare> = problem
+        .nodes
+        .iter()
+        .enumerate()
+        .map(|(i, v)| UnitShare {
+            node: v.id.clone(),
+            share: left[i * p..(i + 1) * p].iter().map(|x| x * x).sum(),
+        })
+        .collect();
+    units.sort_by(|a, b| b.share.total_cmp(&a.share).then(a.node.cmp(&b.node)));
+    cert.units = units;
+    match t.rate() {
+        Some(rate) => {
+            let log_m = log_partial_bound(&system, &t.windows);
+            let c = (log_m - t.log_rho).exp();
+            cert.rate = Some(rate);
+            cert.transient_factor = Some(c);
+            cert.time_to_1pct = Some((100.0 * c).ln() / rate);
+        }
+        None => {
+            cert.reason = Some(format!(
+                "no window up to {} s that fits in the {} s horizon shows contraction \
+                 (largest ‖Φ‖ = {:.6}): the log is too short for this network",
+                t.length,
+                horizon,
+                t.log_rho.exp()
+            ));
+            let _ = t.multiple;
+        }
+    }
+    cert
+}

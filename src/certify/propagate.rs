@@ -1,0 +1,520 @@
+//! Exact propagation of the stacked error system over the merged hybrid time
+//! domain (DESIGN §2), forward and adjoint, applied to vectors only.
+//!
+//! Flows: `ė = A e` with `A = −(Γ + κ L⊗I_p)` held constant on each interval
+//! of the merged grid; `exp(hA) x` by a truncated Taylor series on substeps
+//! with `h‖A‖ ≤ 1`, the number of terms chosen so that the remainder bound
+//! `a^{m+1}/(m+1)! · e^a` stays below 1e−14 (relative to `|x|`).
+//! Jumps: `e⁺ = (I − J − δ L⊗I_p) e` with the pre-jump regressor, virtual
+//! jumps (no excitation term) for units without a jump of their own.
+//!
+//! # References
+//! Moler & Van Loan, "Nineteen dubious ways to compute the exponential of a
+//! matrix, twenty-five years later", SIAM Review 45(1), 2003, §3 (Taylor
+//! series with scaling).
+
+use crate::problem::{Gains, Problem};
+use crate::signal::Window;
+
+/// Largest remainder allowed for one truncated Taylor substep, relative to
+/// the vector it is applied to.
+pub const TAYLOR_TOLERANCE: f64 = 1e-14;
+
+/// One network jump (a jump instant with multiplicity c gives c of these).
+#[derive(Debug, Clone)]
+struct NetJump {
+    time: f64,
+    /// Units that take a real jump, with their pre-jump log row.
+    units: Vec<(u32, u32)>,
+}
+
+/// The link-set independent part of the error system: which regressor row
+/// every unit holds on every interval of the merged grid, and the network
+/// jumps.
+#[derive(Debug, Clone)]
+pub struct Schedule {
+    n: usize,
+    p: usize,
+    grid: Vec<f64>,
+    /// `rows[k * n + i]`: log row of unit i held on `[grid[k], grid[k+1])`.
+    rows: Vec<u32>,
+    jumps: Vec<NetJump>,
+    /// Per unit, its regressor rows (copy of the log, for locality).
+    psi: Vec<Vec<f64>>,
+}
+
+/// One step of a propagation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Step {
+    /// Flow on grid interval `k` for `h` seconds.
+    Flow {
+        /// Grid interval.
+        k: u32,
+        /// Duration.
+        h: f64,
+    },
+    /// Network jump number `q`.
+    Jump {
+        /// Index among the network jumps.
+        q: u32,
+    },
+}
+
+impl Schedule {
+    /// Builds the schedule of a problem.
+    ///
+    /// # Complexity
+    /// O(n·G + R) for G grid points and R log rows.
+    pub fn new(problem: &Problem) -> Self {
+        let n = problem.n();
+        let p = problem.settings.parameters;
+        let grid = problem.domain.grid.clone();
+        let intervals = grid.len().saturating_sub(1);
+        let mut rows = vec![0u32; intervals * n];
+        let mut own: Vec<(f64, u32, u32)> = Vec::new();
+        for (i, node) in problem.nodes.iter().enumerate() {
+            let log = &node.log;
+            let mut r = 0usize;
+            for k in 0..intervals {
+                let g = grid[k];
+                while r + 1 < log.len() && log.t[r + 1] <= g {
+                    r += 1;
+                }
+                rows[k * n + i] = r as u32;
+            }
+            for k in 0..log.len().saturating_sub(1) {
+                if log.j[k + 1] == log.j[k] + 1
+                    && log.t[k] >= problem.domain.h0
+                    && log.t[k] <= problem.domain.h1
+                {
+                    own.push((log.t[k], i as u32, k as u32));
+                }
+            }
+        }
+        own.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+        let mut jumps = Vec::new();
+        let mut at = 0usize;
+        for &(tau, count) in &problem.domain.jumps {
+            while at < own.len() && own[at].0 < tau {
+                at += 1;
+            }
+            let end = at + own[at..].iter().take_while(|o| o.0 == tau).count();
+            let here = &own[at..end];
+            for q in 0..count as usize {
+                // The q-th own jump of every unit at this instant.
+                let mut units = Vec::new();
+                let mut s = 0;
+                while s < here.len() {
+                    let run = here[s..].iter().take_while(|o| o.1 == here[s].1).count();
+                    if q < run {
+                        units.push((here[s].1, here[s + q].2));
+                    }
+                    s += run;
+                }
+                jumps.push(NetJump { time: tau, units });
+            }
+            at = end;
+        }
+        let psi = problem.nodes.iter().map(|v| v.log.psi.clone()).collect();
+        Schedule {
+            n,
+            p,
+            grid,
+            rows,
+            jumps,
+            psi,
+        }
+    }
+
+    /// Number of units.
+    pub fn n(&self) -> usize {
+        self.n
+    }
+
+    /// Parameter dimension.
+    pub fn p(&self) -> usize {
+        self.p
+    }
+
+    /// Start and end of the horizon.
+    pub fn horizon(&self) -> (f64, f64) {
+        (self.grid[0], self.grid[self.grid.len() - 1])
+    }
+
+    /// Regressor of unit `i` on grid interval `k`.
+    pub fn psi_at(&self, k: usize, i: usize) -> &[f64] {
+        let r = self.rows[k * self.n + i] as usize;
+        &self.psi[i][r * self.p..(r + 1) * self.p]
+    }
+
+    /// The steps of `window`, in time order: flows on `[start, end)` cut at
+    /// grid points, jumps at instants in `[start, end)` (or `[start, end]`).
+    pub fn steps(&self, window: &Window, out: &mut Vec<Step>) {
+        out.clear();
+        let (a, b) = (window.start, window.end);
+        let last = self.grid.len() - 1;
+        let mut k = self.grid.partition_point(|&g| g <= a).saturating_sub(1);
+        let mut q = self.jumps.partition_point(|j| j.time < a);
+        let mut t = a;
+        loop {
+            while q < self.jumps.len()
+                && self.jumps[q].time <= t
+                && (self.jumps[q].time < b || (window.jumps_through_end && self.jumps[q].time <= b))
+            {
+                out.push(Step::Jump { q: q as u32 });
+                q += 1;
+            }
+            if t >= b || k >= last {
+                break;
+            }
+            let end = self.grid[k + 1].min(b);
+            if end > t {
+                out.push(Step::Flow {
+                    k: k as u32,
+                    h: end - t,
+                });
+            }
+            t = end;
+            if end >= self.grid[k + 1] {
+                k += 1;
+            }
+        }
+    }
+}
+
+/// The error system of one link set: the schedule plus the weighted
+/// in-degree Laplacian and the gains.
+#[derive(Debug, Clone)]
+pub struct ErrorSystem<'a> {
+    schedule: &'a Schedule,
+    gains: Gains,
+    /// Arcs `(from, to, weight)`: `to` listens to `from`.
+    arcs: Vec<(u32, u32, f64)>,
+    /// Weighted in-degree of each unit.
+    in_degree: Vec<f64>,
+    /// Weighted out-degree of each unit.
+    out_degree: Vec<f64>,
+    /// Upper bound on ‖A‖₂ on each grid interval.
+    generator_norms: Vec<f64>,
+}
+
+/// Which operator to apply: the error system or its transpose.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Direction {
+    /// `Φ x`.
+    Forward,
+    /// `Φᵀ x`.
+    Adjoint,
+}
+
+/// Reusable work vectors for propagation.
+#[derive(Debug, Clone, Default)]
+pub struct Work {
+    term: Vec<f64>,
+    next: Vec<f64>,
+    sum: Vec<f64>,
+}
+
+impl<'a> ErrorSystem<'a> {
+    /// The error system for the arcs `(from, to, weight)`.
+    pub fn new(schedule: &'a Schedule, gains: Gains, arcs: Vec<(u32, u32, f64)>) -> Self {
+        let n = schedule.n;
+        let mut in_degree = vec![0.0; n];
+        let mut out_degree = vec![0.0; n];
+        for &(from, to, w) in &arcs {
+            in_degree[to as usize] += w;
+            out_degree[from as usize] += w;
+        }
+        // ‖A‖₂ ≤ √(‖B‖₁ ‖B‖_∞) for the matrix B of block norms of A:
+        // row i sums γ_c|ψ_i|² + 2κ d_in, column i sums γ_c|ψ_i|² + κ(d_in + d_out).
+        let (g, kappa) = (gains.flow_gain, gains.flow_coupling);
+        let p = schedule.p;
+        let generator_norms = (0..schedule.grid.len().saturating_sub(1))
+            .map(|k| {
+                let (mut row, mut col) = (0.0f64, 0.0f64);
+                for i in 0..n {
+                    let r = schedule.rows[k * n + i] as usize;
+                    let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
+                        .iter()
+                        .map(|v| v * v)
+                        .sum();
+                    row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
+                    col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
+                }
+                (row * col).sqrt()
+            })
+            .collect();
+        ErrorSystem {
+            schedule,
+            gains,
+            arcs,
+            in_degree,
+            out_degree,
+            generator_norms,
+        }
+    }
+
+    /// The error system of a problem's link set.
+    pub fn of_links(
+        schedule: &'a Schedule,
+        problem: &Problem,
+        set: &crate::problem::LinkSet,
+    ) -> Self {
+        let arcs = problem
+            .arcs(set)
+            .into_iter()
+            .map(|a| (a.from.0, a.to.0, a.weight))
+            .collect();
+        Self::new(schedule, problem.settings.gains, arcs)
+    }
+
+    /// The schedule.
+    pub fn schedule(&self) -> &Schedule {
+        self.schedule
+    }
+
+    /// Length of the stacked error vector, n·p.
+    pub fn dim(&self) -> usize {
+        self.schedule.n * self.schedule.p
+    }
+
+    /// Largest weighted in-degree.
+    pub fn max_in_degree(&self) -> f64 {
+        self.in_degree.iter().fold(0.0f64, |m, &d| m.max(d))
+    }
+
+    /// `y += scale · (L⊗I) x` (or `(Lᵀ⊗I) x`).
+    fn add_laplacian(&self, dir: Direction, scale: f64, x: &[f64], y: &mut [f64]) {
+        let p = self.schedule.p;
+        for ((yi, xi), &d) in y
+            .chunks_exact_mut(p)
+            .zip(x.chunks_exact(p))
+            .zip(&self.in_degree)
+        {
+            if d != 0.0 {
+                let s = scale * d;
+                yi.iter_mut().zip(xi).for_each(|(a, b)| *a += s * b);
+            }
+        }
+        for &(from, to, w) in &self.arcs {
+            let (src, dst) = match dir {
+                Direction::Forward => (from as usize, to as usize),
+                Direction::Adjoint => (to as usize, from as usize),
+            };
+            let s = scale * w;
+            let xs = &x[src * p..(src + 1) * p];
+            let yd = &mut y[dst * p..(dst + 1) * p];
+            yd.iter_mut().zip(xs).for_each(|(a, b)| *a -= s * b);
+        }
+    }
+
+    /// `y = A x` for the flow generator on grid interval `k`.
+    fn generator(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+        let p = self.schedule.p;
+        let g = self.gains.flow_gain;
+        let n = self.schedule.n;
+        let rows = &self.schedule.rows[k * n..(k + 1) * n];
+        for (i, ((yi, xi), &r)) in y
+            .chunks_exact_mut(p)
+            .zip(x.chunks_exact(p))
+            .zip(rows)
+            .enumerate()
+        {
+            let psi = &self.schedule.psi[i][r as usize * p..(r as usize + 1) * p];
+            let dot: f64 = psi.iter().zip(xi).map(|(a, b)| a * b).sum();
+            let s = -g * dot;
+            yi.iter_mut().zip(psi).for_each(|(a, b)| *a = s * b);
+        }
+        self.add_laplacian(dir, -self.gains.flow_coupling, x, y);
+    }
+
+    /// Upper bound on ‖A‖₂ on grid interval `k`.
+    fn generator_norm(&self, k: usize) -> f64 {
+        self.generator_norms[k]
+    }
+
+    /// `x ← exp(hA) x` (or `exp(hAᵀ) x`) on grid interval `k`.
+    fn flow(&self, dir: Direction, k: usize, h: f64, x: &mut [f64], work: &mut Work) {
+        let bound = h * self.generator_norm(k);
+        if bound == 0.0 {
+            return;
+        }
+        let substeps = bound.ceil().max(1.0);
+        let hs = h / substeps;
+        let a = bound / substeps;
+        let terms = taylor_terms(a);
+        let d = x.len();
+        work.term.resize(d, 0.0);
+        work.next.resize(d, 0.0);
+        work.sum.resize(d, 0.0);
+        for _ in 0..substeps as usize {
+            work.term.copy_from_slice(x);
+            work.sum.copy_from_slice(x);
+            for m in 1..=terms {
+                self.generator(dir, k, &work.term, &mut work.next);
+                let f = hs / m as f64;
+                for ((t, nx), s) in work
+                    .term
+                    .iter_mut()
+                    .zip(&work.next)
+                    .zip(work.sum.iter_mut())
+                {
+                    *t = f * nx;
+                    *s += *t;
+                }
+            }
+            x.copy_from_slice(&work.sum);
+        }
+    }
+
+    /// `x ← (I − J − δ L⊗I) x` (or its transpose) for network jump `q`.
+    fn jump(&self, dir: Direction, q: usize, x: &mut [f64], work: &mut Work) {
+        let p = self.schedule.p;
+        let d = x.len();
+        work.next.resize(d, 0.0);
+        work.next.iter_mut().for_each(|v| *v = 0.0);
+        self.add_laplacian(dir, -self.gains.jump_coupling, x, &mut work.next);
+        for &(i, r) in &self.schedule.jumps[q].units {
+            let i = i as usize;
+            let psi = &self.schedule.psi[i][r as usize * p..(r as usize + 1) * p];
+            let xi = &x[i * p..(i + 1) * p];
+            let sq: f64 = psi.iter().map(|v| v * v).sum();
+            let dot: f64 = psi.iter().zip(xi).map(|(a, b)| a * b).sum();
+            let s = -self.gains.jump_gain * dot / (1.0 + sq);
+            work.next[i * p..(i + 1) * p]
+                .iter_mut()
+                .zip(psi)
+                .for_each(|(a, b)| *a += s * b);
+        }
+        for (v, dv) in x.iter_mut().zip(&work.next) {
+            *v += dv;
+        }
+    }
+
+    /// Applies the steps (in time order) to `x`, or their adjoint (in reverse
+    /// order). Returns the natural log of a scale factor taken out of `x` to
+    /// avoid underflow: the true result is `x · exp(returned)`.
+    pub fn propagate(&self, dir: Direction, steps: &[Step], x: &mut [f64], work: &mut Work) -> f64 {
+        let mut log_scale = 0.0;
+        let mut apply = |s: &Step, x: &mut [f64], n: usize| {
+            match *s {
+                Step::Flow { k, h } => self.flow(dir, k as usize, h, x, work),
+                Step::Jump { q } => self.jump(dir, q as usize, x, work),
+            }
+            if n % 32 == 31 {
+                let sq: f64 = x.iter().map(|v| v * v).sum();
+                if sq > 0.0 && sq < 1e-200 {
+                    let f = 1e100;
+                    x.iter_mut().for_each(|v| *v *= f);
+                    log_scale -= f.ln();
+                }
+            }
+        };
+        match dir {
+            Direction::Forward => steps.iter().enumerate().for_each(|(n, s)| apply(s, x, n)),
+            Direction::Adjoint => steps
+                .iter()
+                .rev()
+                .enumerate()
+                .for_each(|(n, s)| apply(s, x, n)),
+        }
+        log_scale
+    }
+
+    /// Upper bound on ‖Φ‖₂ of one step, from norms that need no
+    /// propagation: for a flow `exp(h μ₂(A))` with the logarithmic norm
+    /// bounded by Gershgorin on the symmetric part of `κL`; for a jump the
+    /// 2-norm of the matrix of block norms, bounded by `√(‖·‖₁‖·‖_∞)`.
+    pub fn step_bound(&self, step: &Step) -> f64 {
+        match *step {
+            Step::Flow { h, .. } => {
+                // λ_min(sym L) ≥ min_i (d_in − (d_in + d_out)/2) by Gershgorin.
+                let low = self
+                    .in_degree
+                    .iter()
+                    .zip(&self.out_degree)
+                    .fold(0.0f64, |m, (a, b)| m.min((a - b) / 2.0));
+                (h * self.gains.flow_coupling * (-low)).exp()
+            }
+            Step::Jump { q } => {
+                let delta = self.gains.jump_coupling;
+                let diag = self.jump_diagonal_norms(q as usize);
+                let mut row = diag.clone();
+                let mut col = diag;
+                for &(from, to, w) in &self.arcs {
+                    row[to as usize] += delta * w;
+                    col[from as usize] += delta * w;
+                }
+                let r = row.iter().fold(0.0f64, |m, &v| m.max(v));
+                let c = col.iter().fold(0.0f64, |m, &v| m.max(v));
+                (r * c).sqrt()
+            }
+        }
+    }
+
+    /// Upper bound on the step's gain in the norm `max_i |e_i|₂`: flows never
+    /// increase it (a_ik ≥ 0, Γ ⪰ 0: at the largest |e_i| its derivative is
+    /// ≤ 0); a jump gains at most `max_i ‖(1−δd_i)I − J_i‖ + δ d_i`.
+    pub fn step_bound_sup(&self, step: &Step) -> f64 {
+        match *step {
+            Step::Flow { .. } => 1.0,
+            Step::Jump { q } => {
+                let delta = self.gains.jump_coupling;
+                self.jump_diagonal_norms(q as usize)
+                    .iter()
+                    .zip(&self.in_degree)
+                    .fold(0.0f64, |m, (b, d)| m.max(b + delta * d))
+            }
+        }
+    }
+
+    /// ‖(1 − δ d_i) I − J_i‖₂ for every unit at network jump `q`.
+    fn jump_diagonal_norms(&self, q: usize) -> Vec<f64> {
+        let p = self.schedule.p;
+        let delta = self.gains.jump_coupling;
+        let mut diag: Vec<f64> = self
+            .in_degree
+            .iter()
+            .map(|d| (1.0 - delta * d).abs())
+            .collect();
+        for &(i, r) in &self.schedule.jumps[q].units {
+            let psi = &self.schedule.psi[i as usize][r as usize * p..(r as usize + 1) * p];
+            let sq: f64 = psi.iter().map(|v| v * v).sum();
+            let j = self.gains.jump_gain * sq / (1.0 + sq);
+            let base = 1.0 - delta * self.in_degree[i as usize];
+            diag[i as usize] = base.abs().max((base - j).abs());
+        }
+        diag
+    }
+}
+
+/// Number of Taylor terms so that `a^{m+1}/(m+1)! · e^a ≤` [`TAYLOR_TOLERANCE`]
+/// for `0 < a ≤ 1`.
+pub fn taylor_terms(a: f64) -> usize {
+    let mut m = 0usize;
+    let mut term = a; // a^{m+1}/(m+1)!
+    while term * a.exp() > TAYLOR_TOLERANCE && m < 40 {
+        m += 1;
+        term *= a / (m + 1) as f64;
+    }
+    m.max(1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn taylor_terms_meet_the_tolerance() {
+        // Lagrange remainder of the exponential series: common practice.
+        for &a in &[1e-6, 1e-3, 0.1, 0.5, 1.0] {
+            let m = taylor_terms(a);
+            let mut fact = 1.0;
+            for k in 1..=m + 1 {
+                fact *= k as f64;
+            }
+            assert!(a.powi(m as i32 + 1) / fact * a.exp() <= TAYLOR_TOLERANCE);
+        }
+        assert!(taylor_terms(1.0) <= 18);
+    }
+}
