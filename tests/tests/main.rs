@@ -2,6 +2,7 @@
 //! sources (external), and property tests against independent methods
 //! (props).
 
+mod certificate;
 mod cli;
 mod external;
 mod fixtures;

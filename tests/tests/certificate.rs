@@ -1,0 +1,308 @@
+//! The certified rate and the error propagation against closed forms, a
+//! general-purpose matrix library (nalgebra) and a published bound.
+
+use approx::assert_abs_diff_eq;
+use exmesh::certify::propagate::{Direction, ErrorSystem, Schedule, Step, Work};
+use exmesh::certify::{certify, certify_with};
+use exmesh::problem::{Ends, Gains, Link, LinkSet, Node, NodeId, Problem, Settings};
+use exmesh::signal::{Log, Window, WindowKind};
+use exmesh::synth::Rng;
+use exmesh::{ExcitationTable, excitation::eigenvalues};
+use nalgebra::{DMatrix, DVector, SymmetricEigen};
+use proptest::prelude::*;
+use std::path::PathBuf;
+
+/// A flow-only log sampled every `h` on `[0, end]` with regressor `f(t)`.
+pub fn flow_log(p: usize, h: f64, end: f64, f: impl Fn(f64) -> Vec<f64>) -> Log {
+    let rows = (end / h).round() as usize;
+    let mut t = Vec::new();
+    let mut psi = Vec::new();
+    for k in 0..=rows {
+        let tk = k as f64 * h;
+        t.push(tk);
+        psi.extend(f(tk));
+    }
+    Log {
+        path: PathBuf::from("u.csv"),
+        p,
+        j: vec![0; t.len()],
+        t,
+        psi,
+        y: None,
+    }
+}
+
+/// A problem from in-memory logs and two-way links of weight 1.
+pub fn network(
+    logs: Vec<Log>,
+    edges: &[(usize, usize)],
+    window: f64,
+    stride: f64,
+    gains: Gains,
+) -> Problem {
+    let p = logs[0].p;
+    let nodes = logs
+        .into_iter()
+        .enumerate()
+        .map(|(i, log)| Node {
+            id: format!("u{i}"),
+            log,
+            position: None,
+        })
+        .collect();
+    let links = edges
+        .iter()
+        .enumerate()
+        .map(|(k, &(a, b))| Link {
+            id: format!("l{k}"),
+            ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+            cost: 1.0,
+            weight: 1.0,
+            installed: false,
+            generated: false,
+        })
+        .collect();
+    let settings = Settings {
+        name: "test".into(),
+        parameters: p,
+        window,
+        window_kind: WindowKind::Time,
+        stride: Some(stride),
+        min_excitation: Some(1e-9),
+        target_rate: None,
+        gains,
+    };
+    Problem::from_parts(PathBuf::from("t.toml"), settings, nodes, links).unwrap()
+}
+
+fn gains(flow_gain: f64, flow_coupling: f64) -> Gains {
+    Gains {
+        flow_gain,
+        flow_coupling,
+        ..Gains::default()
+    }
+}
+
+/// Closed form: a scalar unit with constant ψ and no links has
+/// e(t) = exp(−γ_c ψ² t) e(0), so every window norm is exp(−γ_c ψ² T) and
+/// the certified rate is γ_c ψ² (common practice, linear scalar ODE).
+#[test]
+fn scalar_unit_rate_is_gain_times_psi_squared() {
+    for (g, psi) in [(1.0, 0.5), (0.3, 2.0), (2.0, 1.0)] {
+        let log = flow_log(1, 0.1, 40.0, |_| vec![psi]);
+        let p = network(vec![log], &[], 5.0, 1.0, gains(g, 1.0));
+        let table = ExcitationTable::build(&p);
+        let c = certify(&p, &table, &LinkSet::default());
+        let rate = c.rate.expect("certified");
+        assert_abs_diff_eq!(rate, g * psi * psi, epsilon = 1e-9);
+        assert_abs_diff_eq!(c.asymptotic_rate.unwrap(), g * psi * psi, epsilon = 1e-9);
+        assert!(c.gains_ok);
+    }
+}
+
+/// ψ = [sin ωt, cos ωt]: in the frame (ψ, ψ⊥) the error obeys ż = −M z with
+/// M = [[γ, −ω], [ω, 0]] (derived in docs/theory.md), and the frame change is
+/// a rotation, so ‖Φ(H)‖ = ‖exp(−M H)‖ (computed with nalgebra's matrix
+/// exponential) and the asymptotic rate is (γ − Re√(γ² − 4ω²))/2. The log is
+/// a zero-order hold with step h: agreement within O(h).
+#[test]
+fn sine_cosine_asymptotic_rate() {
+    for (g, omega) in [(1.0, 1.0), (3.0, 1.0), (0.8, 0.25)] {
+        let horizon = 200.0;
+        let h = 0.002;
+        let log = flow_log(2, h, horizon, |t| {
+            vec![(omega * t).sin(), (omega * t).cos()]
+        });
+        let p = network(vec![log], &[], 10.0, 50.0, gains(g, 1.0));
+        let table = ExcitationTable::build(&p);
+        let c = certify(&p, &table, &LinkSet::default());
+        let m = DMatrix::from_row_slice(2, 2, &[g, -omega, omega, 0.0]);
+        let phi = (-m * horizon).exp();
+        let exact = -phi.singular_values().max().ln() / horizon;
+        let got = c.asymptotic_rate.unwrap();
+        assert!((got - exact).abs() <= 1e-4 * exact, "{got} vs {exact}");
+        let disc = g * g - 4.0 * omega * omega;
+        let closed = (g - if disc > 0.0 { disc.sqrt() } else { 0.0 }) / 2.0;
+        // exp(−MH) = V e^{−ΛH} V⁻¹: the finite-horizon rate differs from the
+        // asymptotic one by at most ln κ(V)/H.
+        assert!(
+            (exact - closed).abs() <= 3.0 / horizon,
+            "{exact} vs {closed}"
+        );
+        assert!((got - closed).abs() <= 0.01 * closed + 3.0 / horizon);
+        // The certificate over windows is never faster than the decay over
+        // the whole horizon allows.
+        assert!(c.rate.unwrap() <= got * 1.01 + 3.0 / horizon);
+    }
+}
+
+/// Brouwer & Haemers, "Spectra of Graphs", 2012, §1.4: the Laplacian of the
+/// complete graph K_n has eigenvalues 0 and n (multiplicity n − 1). With one
+/// excited unit (unit 0), every error with e_0 = 0 and Σ e_i = 0 is an
+/// eigenvector of Γ + κL with eigenvalue κn, so it decays exactly as
+/// exp(−κ n t). The constant system is symmetric, so the certified rate is
+/// λ_min(Γ + κL) (nalgebra's symmetric eigensolver).
+#[test]
+fn complete_graph_disagreement_decays_at_kappa_n() {
+    for (n, kappa) in [(3usize, 0.5), (5, 1.0), (6, 0.2)] {
+        let logs: Vec<Log> = (0..n)
+            .map(|i| flow_log(1, 0.1, 30.0, move |_| vec![if i == 0 { 1.0 } else { 0.0 }]))
+            .collect();
+        let edges: Vec<(usize, usize)> = (0..n)
+            .flat_map(|a| (a + 1..n).map(move |b| (a, b)))
+            .collect();
+        let p = network(logs, &edges, 3.0, 1.0, gains(1.0, kappa));
+        let set = p.all_links();
+        let schedule = Schedule::new(&p);
+        let system = ErrorSystem::of_links(&schedule, &p, &set);
+        let w = Window {
+            start: 0.0,
+            end: 2.0,
+            jumps_through_end: false,
+        };
+        let mut steps: Vec<Step> = Vec::new();
+        schedule.steps(&w, &mut steps);
+        let mut x: Vec<f64> = (0..n).map(|i| if i == 0 { 0.0 } else { 1.0 }).collect();
+        x[n - 1] = -((n - 2) as f64);
+        let before: f64 = x.iter().map(|v| v * v).sum::<f64>().sqrt();
+        let s = system.propagate(Direction::Forward, &steps, &mut x, &mut Work::default());
+        assert_eq!(s, 0.0);
+        let after: f64 = x.iter().map(|v| v * v).sum::<f64>().sqrt();
+        assert_abs_diff_eq!(
+            after / before,
+            (-kappa * n as f64 * 2.0).exp(),
+            epsilon = 1e-12
+        );
+
+        let mut a = DMatrix::<f64>::zeros(n, n);
+        for i in 0..n {
+            for k in 0..n {
+                a[(i, k)] = if i == k {
+                    kappa * (n - 1) as f64
+                } else {
+                    -kappa
+                };
+            }
+        }
+        a[(0, 0)] += 1.0;
+        let lmin = SymmetricEigen::new(a).eigenvalues.min();
+        let table = ExcitationTable::build(&p);
+        let c = certify(&p, &table, &set);
+        assert_abs_diff_eq!(c.rate.unwrap(), lmin, epsilon = 1e-8);
+    }
+}
+
+/// Dense reference: the Taylor propagation of one held flow step equals
+/// nalgebra's matrix exponential (Padé with scaling and squaring) of the
+/// stacked generator, forward and transposed, on random small networks with
+/// one-way arcs.
+#[test]
+fn taylor_flow_step_matches_dense_exponential() {
+    let mut rng = Rng(7);
+    for case in 0..6 {
+        let n = 2 + case % 3;
+        let p = 1 + case % 3;
+        let psis: Vec<Vec<f64>> = (0..n)
+            .map(|_| (0..p).map(|_| rng.range(-2.0, 2.0)).collect())
+            .collect();
+        let logs: Vec<Log> = psis
+            .iter()
+            .map(|v| {
+                let v = v.clone();
+                flow_log(p, 3.0, 6.0, move |_| v.clone())
+            })
+            .collect();
+        let g = gains(rng.range(0.2, 2.0), rng.range(0.2, 2.0));
+        let p_ = network(logs, &[], 3.0, 3.0, g);
+        let schedule = Schedule::new(&p_);
+        let mut arcs = Vec::new();
+        for to in 0..n {
+            for from in 0..n {
+                if from != to && rng.uniform() < 0.6 {
+                    arcs.push((from as u32, to as u32, rng.range(0.1, 1.5)));
+                }
+            }
+        }
+        let system = ErrorSystem::new(&schedule, g, arcs.clone());
+        // Dense A = −(Γ + κ L⊗I).
+        let d = n * p;
+        let mut a = DMatrix::<f64>::zeros(d, d);
+        for i in 0..n {
+            for r in 0..p {
+                for c in 0..p {
+                    a[(i * p + r, i * p + c)] -= g.flow_gain * psis[i][r] * psis[i][c];
+                }
+            }
+        }
+        for &(from, to, w) in &arcs {
+            let (f, t) = (from as usize, to as usize);
+            for c in 0..p {
+                a[(t * p + c, t * p + c)] -= g.flow_coupling * w;
+                a[(t * p + c, f * p + c)] += g.flow_coupling * w;
+            }
+        }
+        let h = 3.0;
+        let exact = (&a * h).exp();
+        let steps = [Step::Flow { k: 0, h }];
+        for (dir, reference) in [
+            (Direction::Forward, exact.clone()),
+            (Direction::Adjoint, exact.transpose()),
+        ] {
+            for col in 0..d {
+                let mut x = vec![0.0; d];
+                x[col] = 1.0;
+                system.propagate(dir, &steps, &mut x, &mut Work::default());
+                let got = DVector::from_vec(x);
+                let want = reference.column(col).into_owned();
+                assert!(
+                    (&got - &want).norm() <= 1e-11 * want.norm().max(1.0),
+                    "case {case} column {col}"
+                );
+            }
+        }
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(24))]
+
+    /// Single-unit guarantee (derived in docs/theory.md §6 with the
+    /// Cauchy–Schwarz inequality, the classical argument for gradient
+    /// identifiers; Anderson, "Exponential stability of linear equations
+    /// arising in adaptive identification", IEEE TAC 22(1), 1977, cited from
+    /// memory): if ∫ψψᵀ ≥ μ I over every window of length T and |ψ| ≤ β, then
+    /// |e(t+T)|² ≤ (1 − 2γμ/(2 + γ²β⁴T²)) |e(t)|². The numerical certificate is
+    /// never slower.
+    #[test]
+    fn certificate_never_below_the_single_unit_bound(
+        seed in 0u64..10_000,
+        p in 2usize..4,
+        g in 0.2f64..3.0,
+    ) {
+        let mut rng = Rng(seed);
+        // Piecewise-constant random regressor, new value every 0.5 s.
+        let values: Vec<Vec<f64>> = (0..61)
+            .map(|_| (0..p).map(|_| rng.range(-1.5, 1.5)).collect())
+            .collect();
+        let log = flow_log(p, 0.1, 30.0, move |t| values[((t + 1e-9) / 0.5) as usize].clone());
+        let problem = network(vec![log], &[], 3.0, 0.5, gains(g, 1.0));
+        let table = ExcitationTable::build(&problem);
+        let mu = (0..table.windows().len())
+            .map(|w| eigenvalues(p, table.gramian(w, NodeId(0)))[0] / g)
+            .fold(f64::INFINITY, f64::min);
+        let beta2 = problem.nodes[0]
+            .log
+            .psi
+            .chunks(p)
+            .map(|r| r.iter().map(|v| v * v).sum::<f64>())
+            .fold(0.0f64, f64::max);
+        let t = problem.settings.window;
+        let factor = 1.0 - 2.0 * g * mu / (2.0 + g * g * beta2 * beta2 * t * t);
+        prop_assume!(mu > 1e-6 && factor > 0.0);
+        let analytic = -0.5 * factor.ln() / t;
+        let schedule = Schedule::new(&problem);
+        let c = certify_with(&problem, &table, &schedule, &LinkSet::default());
+        let rate = c.rate.expect("a PE unit is certified");
+        prop_assert!(rate >= analytic * (1.0 - 1e-9), "{} < {}", rate, analytic);
+    }
+}
