@@ -50,6 +50,7 @@ pub mod problem;
 pub mod report;
 pub mod search;
 pub mod signal;
+pub mod simulate;
 pub mod synth;
 pub mod topology;
 

@@ -13,7 +13,9 @@
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
-use exmesh::{ExcitationTable, InputError, LinkSet, analysis, certify, problem, report, search};
+use exmesh::{
+    ExcitationTable, InputError, LinkSet, analysis, certify, problem, report, search, simulate,
+};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -50,6 +52,29 @@ enum Command {
         /// Stop after this many seconds and return the best plan with its gap.
         #[arg(long, value_name = "SECONDS")]
         time_limit: Option<f64>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Run the estimators on the logs for a plan and compare with the certified rate.
+    Simulate {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list) whose links carry the estimates.
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Write each unit's error norm over time (CSV).
+        #[arg(long, value_name = "TRAJ.csv")]
+        out: Option<PathBuf>,
+        /// Draw the errors and the certified envelope (SVG).
+        #[arg(long, value_name = "ERRORS.svg")]
+        svg: Option<PathBuf>,
+        /// True parameter, comma-separated; outputs are made from it instead of the logged y.
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true)]
+        truth: Option<String>,
+        /// Initial estimate of every unit, comma-separated (default zero).
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true)]
+        initial: Option<String>,
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
@@ -166,6 +191,52 @@ fn run() -> anyhow::Result<ExitCode> {
                 ExitCode::from(1)
             }
         }
+        Command::Simulate {
+            problem,
+            plan,
+            out: csv_path,
+            svg,
+            truth,
+            initial,
+            json,
+        } => {
+            let truth = truth.map(|t| parse_vector("--truth", &t)).transpose()?;
+            let initial = initial.map(|t| parse_vector("--initial", &t)).transpose()?;
+            let problem = problem::load(&problem)?;
+            let set = problem::read_link_set(&problem, &plan)?;
+            let table = ExcitationTable::build(&problem);
+            let cert = certify::certify(&problem, &table, &set);
+            let options = simulate::SimOptions { truth, initial };
+            let traj = simulate::simulate(&problem, &set, Some(&cert), &options).map_err(|e| {
+                let file = match &e {
+                    simulate::SimError::Dimension { what, .. } if what.contains("true") => {
+                        Path::new("--truth")
+                    }
+                    simulate::SimError::Dimension { .. } => Path::new("--initial"),
+                    _ => problem.path.as_path(),
+                };
+                InputError::whole(file, e.to_string())
+            })?;
+            if let Some(path) = csv_path {
+                let mut bytes = Vec::new();
+                simulate::write_csv(&problem, &traj, &mut bytes)?;
+                write_atomically(&path, &bytes)
+                    .with_context(|| format!("writing the trajectory to {}", path.display()))?;
+            }
+            if let Some(path) = svg {
+                let text = report::chart::errors_svg(&problem, &traj)
+                    .map_err(|e| anyhow::anyhow!("drawing the error figure: {e}"))?;
+                write_atomically(&path, text.as_bytes())
+                    .with_context(|| format!("writing the figure to {}", path.display()))?;
+            }
+            if json {
+                report::json::write(&traj, &mut out)
+            } else {
+                report::text::simulation(&traj, &mut out)
+            }
+            .context("writing the simulation summary")?;
+            ExitCode::SUCCESS
+        }
         Command::Check {
             problem,
             links,
@@ -199,6 +270,25 @@ fn run() -> anyhow::Result<ExitCode> {
     };
     out.flush().context("writing to standard output")?;
     Ok(code)
+}
+
+/// Parses a comma-separated vector of finite numbers given on the command
+/// line.
+fn parse_vector(flag: &str, text: &str) -> Result<Vec<f64>, InputError> {
+    text.split(',')
+        .map(|v| {
+            v.trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|x| x.is_finite())
+                .ok_or_else(|| {
+                    InputError::whole(
+                        Path::new(flag),
+                        format!("expected comma-separated finite numbers, found {v:?}"),
+                    )
+                })
+        })
+        .collect()
 }
 
 /// Writes `bytes` to a temporary file beside `path`, then renames it, so a

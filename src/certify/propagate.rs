@@ -333,16 +333,26 @@ impl<'a> ErrorSystem<'a> {
         self.generator_norms[k]
     }
 
-    /// `x ← exp(hA) x` (or `exp(hAᵀ) x`) on grid interval `k`.
-    fn flow(&self, dir: Direction, k: usize, h: f64, x: &mut [f64], work: &mut Work) {
+    /// `x ← exp(hA) x` (or `exp(hAᵀ) x`) on grid interval `k`; with a
+    /// constant drive b, `x ← exp(hA) x + h φ₁(hA) b`, written as
+    /// `x + Σ_{m≥1} hᵐ A^{m−1} (Ax + b)/m!`.
+    fn flow(
+        &self,
+        dir: Direction,
+        k: usize,
+        h: f64,
+        x: &mut [f64],
+        drive: Option<&[f64]>,
+        work: &mut Work,
+    ) {
         let bound = h * self.generator_norm(k);
-        if bound == 0.0 {
+        if bound == 0.0 && drive.is_none() {
             return;
         }
         let substeps = bound.ceil().max(1.0);
         let hs = h / substeps;
         let a = bound / substeps;
-        let terms = taylor_terms(a);
+        let terms = taylor_terms(a.max(f64::MIN_POSITIVE));
         let d = x.len();
         work.term.resize(d, 0.0);
         work.next.resize(d, 0.0);
@@ -352,6 +362,11 @@ impl<'a> ErrorSystem<'a> {
             work.sum.copy_from_slice(x);
             for m in 1..=terms {
                 self.generator(dir, k, &work.term, &mut work.next);
+                if m == 1 {
+                    if let Some(b) = drive {
+                        work.next.iter_mut().zip(b).for_each(|(v, b)| *v += b);
+                    }
+                }
                 let f = hs / m as f64;
                 for ((t, nx), s) in work
                     .term
@@ -364,6 +379,43 @@ impl<'a> ErrorSystem<'a> {
                 }
             }
             x.copy_from_slice(&work.sum);
+        }
+    }
+
+    /// One step of the estimators themselves (not their errors), driven by
+    /// the measurements `y[i]` (unit i's logged outputs, one per log row):
+    /// flows add `γ_c ψ_i y_i`, jumps `γ_d ψ_i y_i/(1+|ψ_i|²)` (DESIGN §2).
+    pub fn step_estimates(&self, step: &Step, theta: &mut [f64], y: &[Vec<f64>], work: &mut Work) {
+        let n = self.schedule.n;
+        let p = self.schedule.p;
+        match *step {
+            Step::Flow { k, h } => {
+                let k = k as usize;
+                let mut b = vec![0.0; n * p];
+                for (i, bi) in b.chunks_exact_mut(p).enumerate() {
+                    let r = self.schedule.rows[k * n + i] as usize;
+                    let s = self.gains.flow_gain * y[i][r];
+                    bi.iter_mut()
+                        .zip(self.schedule.psi_at(k, i))
+                        .for_each(|(v, psi)| *v = s * psi);
+                }
+                self.flow(Direction::Forward, k, h, theta, Some(&b), work);
+            }
+            Step::Jump { q } => {
+                let mut drive = vec![0.0; n * p];
+                for &(i, r) in &self.schedule.jumps[q as usize].units {
+                    let (i, r) = (i as usize, r as usize);
+                    let psi = &self.schedule.psi[i][r * p..(r + 1) * p];
+                    let sq: f64 = psi.iter().map(|v| v * v).sum();
+                    let s = self.gains.jump_gain * y[i][r] / (1.0 + sq);
+                    drive[i * p..(i + 1) * p]
+                        .iter_mut()
+                        .zip(psi)
+                        .for_each(|(v, psi)| *v = s * psi);
+                }
+                self.jump(Direction::Forward, q as usize, theta, work);
+                theta.iter_mut().zip(&drive).for_each(|(v, d)| *v += d);
+            }
         }
     }
 
@@ -398,7 +450,7 @@ impl<'a> ErrorSystem<'a> {
         let mut log_scale = 0.0;
         let mut apply = |s: &Step, x: &mut [f64], n: usize| {
             match *s {
-                Step::Flow { k, h } => self.flow(dir, k as usize, h, x, work),
+                Step::Flow { k, h } => self.flow(dir, k as usize, h, x, None, work),
                 Step::Jump { q } => self.jump(dir, q as usize, x, work),
             }
             if n % 32 == 31 {

@@ -1,5 +1,6 @@
 //! Output writers: one module per format, all generic over `io::Write`.
 
+pub mod chart;
 pub mod json;
 pub mod text;
 

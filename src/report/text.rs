@@ -4,6 +4,7 @@ use super::CAUTIONS;
 use crate::analysis::{Check, ExcitationSummary};
 use crate::certify::Certificate;
 use crate::search::{Plan, PlanStatus};
+use crate::simulate::{Reference, Trajectory};
 use std::io::{self, Write};
 
 fn direction(v: &[f64]) -> String {
@@ -214,6 +215,74 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
         )?;
     }
     Ok(())
+}
+
+/// Writes a simulation summary: reference, observed vs certified decay,
+/// the units with the largest final error.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
+    let reference = match t.reference_kind {
+        Reference::Truth => "the given true parameter",
+        Reference::PooledFit => "the pooled least-squares fit of all logs",
+    };
+    writeln!(
+        out,
+        "Simulation over [{}, {}] s, errors measured against {reference} {}",
+        t.times[0],
+        t.times[t.times.len() - 1],
+        direction(&t.reference)
+    )?;
+    match (t.observed_rate, t.certified_rate) {
+        (Some(o), Some(c)) => writeln!(
+            out,
+            "decay of the stacked error: observed {o:.4e} 1/s, certified {c:.4e} 1/s"
+        )?,
+        (Some(o), None) => writeln!(
+            out,
+            "decay of the stacked error: observed {o:.4e} 1/s; no certified rate"
+        )?,
+        _ => writeln!(out, "the stacked error did not decay")?,
+    }
+    match t.within_envelope {
+        Some(true) => writeln!(
+            out,
+            "the error stays under the certified bound at every output time"
+        )?,
+        Some(false) => writeln!(
+            out,
+            "WARNING: the error leaves the certified bound — report this as a bug"
+        )?,
+        None if t.certified_rate.is_some() => writeln!(
+            out,
+            "(logged outputs: noise and model mismatch are outside the certificate; the bound is drawn for reference)"
+        )?,
+        None => {}
+    }
+    let mut units: Vec<&crate::simulate::UnitRun> = t.units.iter().collect();
+    units.sort_by(|a, b| {
+        b.final_error
+            .total_cmp(&a.final_error)
+            .then(a.node.cmp(&b.node))
+    });
+    writeln!(out)?;
+    writeln!(
+        out,
+        "{:<20} {:>14} {:>14}",
+        "unit", "initial error", "final error"
+    )?;
+    for u in units.iter().take(10) {
+        writeln!(
+            out,
+            "{:<20} {:>14.4e} {:>14.4e}",
+            u.node, u.initial_error, u.final_error
+        )?;
+    }
+    if units.len() > 10 {
+        writeln!(out, "... {} more units (all in the CSV)", units.len() - 10)?;
+    }
+    cautions(out)
 }
 
 /// Writes a plan: status, cost and bound, the chosen links, the source
