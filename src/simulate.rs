@@ -256,7 +256,7 @@ pub fn simulate(
             flow_count += 1;
         }
         let last = idx + 1 == steps.len();
-        if (matches!(step, Step::Flow { .. }) && flow_count % every == 0) || last {
+        if (matches!(step, Step::Flow { .. }) && flow_count.is_multiple_of(every)) || last {
             if times.last() == Some(&t) {
                 times.pop();
                 errors.iter_mut().for_each(|e| {

@@ -362,10 +362,8 @@ impl<'a> ErrorSystem<'a> {
             work.sum.copy_from_slice(x);
             for m in 1..=terms {
                 self.generator(dir, k, &work.term, &mut work.next);
-                if m == 1 {
-                    if let Some(b) = drive {
-                        work.next.iter_mut().zip(b).for_each(|(v, b)| *v += b);
-                    }
+                if let (1, Some(b)) = (m, drive) {
+                    work.next.iter_mut().zip(b).for_each(|(v, b)| *v += b);
                 }
                 let f = hs / m as f64;
                 for ((t, nx), s) in work
