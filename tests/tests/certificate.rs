@@ -263,8 +263,93 @@ fn taylor_flow_step_matches_dense_exponential() {
     }
 }
 
+/// A hybrid log: flows sampled every `h` on `[0, end]` with regressor
+/// `f(t)`, and a jump at each of `jumps` (pre-jump regressor `g(k)`).
+fn hybrid_log(
+    p: usize,
+    h: f64,
+    end: f64,
+    jumps: &[f64],
+    f: impl Fn(f64) -> Vec<f64>,
+    g: impl Fn(usize) -> Vec<f64>,
+) -> Log {
+    let mut log = flow_log(p, h, end, f);
+    let (mut t, mut j, mut psi) = (Vec::new(), Vec::new(), Vec::new());
+    let mut next = 0;
+    let mut level = 0u32;
+    for k in 0..log.t.len() {
+        let tk = log.t[k];
+        if next < jumps.len() && (jumps[next] - tk).abs() < 1e-9 && k > 0 {
+            t.push(tk);
+            j.push(level);
+            psi.extend(g(next));
+            level += 1;
+            next += 1;
+        }
+        t.push(tk);
+        j.push(level);
+        psi.extend_from_slice(log.row(k));
+    }
+    log.t = t;
+    log.j = j;
+    log.psi = psi;
+    log
+}
+
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(24))]
+
+    /// The certificate is a bound: on random small hybrid networks the
+    /// simulated stacked error never leaves c·e^{−λt}·|e(0)| (the definition
+    /// of the certificate, DESIGN §4; Khalil, "Nonlinear Systems", 3rd ed.,
+    /// 2002, §4.6 for uniform exponential stability from the transition
+    /// matrix).
+    #[test]
+    fn simulation_stays_under_the_certified_envelope(
+        seed in 0u64..10_000,
+        n in 2usize..5,
+        p in 1usize..4,
+        one_way in proptest::bool::ANY,
+    ) {
+        let mut rng = Rng(seed);
+        let logs: Vec<Log> = (0..n)
+            .map(|_| {
+                let values: Vec<Vec<f64>> = (0..41)
+                    .map(|_| (0..p).map(|_| rng.range(-1.5, 1.5) * f64::from(rng.uniform() < 0.6)).collect())
+                    .collect();
+                let kicks: Vec<Vec<f64>> = (0..8)
+                    .map(|_| (0..p).map(|_| rng.range(-2.0, 2.0)).collect())
+                    .collect();
+                let jumps: Vec<f64> = (0..4).map(|k| 2.5 + 5.0 * k as f64 + 0.5 * rng.below(3) as f64).collect();
+                hybrid_log(p, 0.1, 20.0, &jumps, move |t| values[((t + 1e-9) / 0.5) as usize].clone(), move |k| kicks[k].clone())
+            })
+            .collect();
+        let mut edges: Vec<(usize, usize)> = (1..n).map(|i| (rng.below(i), i)).collect();
+        if rng.uniform() < 0.5 {
+            edges.push((0, n - 1));
+        }
+        let mut problem = network(logs, &edges, 2.0, 0.5, Gains::default());
+        if one_way {
+            for l in problem.links.iter_mut().step_by(2) {
+                if let Ends::TwoWay(a, b) = l.ends {
+                    l.ends = Ends::OneWay { from: a, to: b };
+                }
+            }
+        }
+        let table = ExcitationTable::build(&problem);
+        let set = problem.all_links();
+        let c = certify(&problem, &table, &set);
+        prop_assume!(c.rate.is_some());
+        let truth: Vec<f64> = (0..p).map(|_| rng.range(-3.0, 3.0)).collect();
+        let options = exmesh::simulate::SimOptions { truth: Some(truth), initial: None };
+        let t = exmesh::simulate::simulate(&problem, &set, Some(&c), &options).unwrap();
+        prop_assert_eq!(t.within_envelope, Some(true));
+        let (rate, factor) = (c.rate.unwrap(), c.transient_factor.unwrap());
+        for (k, &time) in t.times.iter().enumerate() {
+            let bound = factor * (-rate * (time - t.times[0])).exp() * t.total[0];
+            prop_assert!(t.total[k] <= bound * (1.0 + 1e-9), "t = {}: {} > {}", time, t.total[k], bound);
+        }
+    }
 
     /// Single-unit guarantee (derived in docs/theory.md §6 with the
     /// Cauchy–Schwarz inequality, the classical argument for gradient
