@@ -92,9 +92,12 @@ pub struct Certificate {
     pub reason: Option<String>,
     /// Power iterations that stopped at the iteration limit.
     pub unconverged_windows: usize,
-    /// Power iterations (one forward and one adjoint pass each) over all
+    /// Lanczos steps (one forward and one adjoint pass each) over all
     /// windows of every window length tried.
     pub power_iterations: usize,
+    /// The worst certificate windows, worst first (at most three).
+    #[serde(skip)]
+    pub worst_windows: Vec<Window>,
 }
 
 /// The gain conditions of DESIGN §4 for the arcs of a link set.
@@ -391,6 +394,15 @@ fn log_partial_bound(system: &ErrorSystem, windows: &[Window]) -> f64 {
     two.min(sup + 0.5 * (system.schedule().n() as f64).ln())
 }
 
+/// ln ‖Φ(w)‖₂ of one window for the error system (Lanczos from a fixed
+/// start vector).
+pub fn window_log_norm(system: &ErrorSystem, window: &Window) -> f64 {
+    let mut steps = Vec::new();
+    system.schedule().steps(window, &mut steps);
+    let mut x = start_vector(system.dim());
+    power_norm(system, &steps, &mut x, &mut Work::default()).log_norm
+}
+
 /// ln ‖Φ(h1, h0)‖₂ over the whole horizon.
 fn horizon_log_norm(problem: &Problem, system: &ErrorSystem) -> f64 {
     let w = Window {
@@ -442,6 +454,7 @@ pub fn certify_with(
         reason: None,
         unconverged_windows: 0,
         power_iterations: 0,
+        worst_windows: Vec::new(),
     };
     let structural = analysis::check(problem, table, set);
     if !structural.condition_holds {
@@ -491,6 +504,14 @@ pub fn certify_with(
     cert.contraction = t.log_rho.exp();
     cert.windows = t.windows.len();
     cert.worst_window_start = Some(t.windows[t.worst].start);
+    let mut order: Vec<usize> = (0..t.windows.len()).collect();
+    order.sort_by(|&a, &b| {
+        t.norms[b]
+            .log_norm
+            .total_cmp(&t.norms[a].log_norm)
+            .then(a.cmp(&b))
+    });
+    cert.worst_windows = order.iter().take(3).map(|&k| t.windows[k]).collect();
     cert.unconverged_windows = t.norms.iter().filter(|w| !w.converged).count();
     let p = problem.settings.parameters;
     let left = &t.norms[t.worst].left;

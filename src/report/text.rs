@@ -299,6 +299,26 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     };
     writeln!(out, "Plan for {}: {status}", p.network)?;
     threshold(out, p.min_excitation, p.min_excitation_given, p.windows)?;
+    if let (PlanStatus::Infeasible, Some(r)) = (p.status, &p.rate) {
+        writeln!(out)?;
+        writeln!(
+            out,
+            "The structure can be met (cost {:.2}), but no link set found reaches the target rate {:.4e} 1/s.",
+            r.structural_cost, r.target
+        )?;
+        match r.best_reachable {
+            Some(b) => writeln!(out, "Best certified rate reachable: {b:.4e} 1/s.")?,
+            None => writeln!(
+                out,
+                "No link set found has a certified rate on this horizon."
+            )?,
+        }
+        writeln!(
+            out,
+            "Fix: lower target_rate, add candidate links, record longer or richer logs, or raise the gains within their limits."
+        )?;
+        return cautions(out);
+    }
     if p.status == PlanStatus::Infeasible {
         writeln!(out)?;
         writeln!(
@@ -361,6 +381,26 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         )?;
         writeln!(out, "  units: {}", sc.nodes.join(", "))?;
     }
+    if let Some(r) = &p.rate {
+        writeln!(out)?;
+        writeln!(
+            out,
+            "target rate {:.4e} 1/s: {} — structural plan cost {:.2}, {} link(s) added for speed{}",
+            r.target,
+            if r.met { "met" } else { "NOT met" },
+            r.structural_cost,
+            r.added_links.len(),
+            if r.added_links.is_empty() {
+                String::new()
+            } else {
+                format!(" ({})", r.added_links.join(", "))
+            }
+        )?;
+        if r.timed_out {
+            writeln!(out, "  (the time limit stopped the rate stage)")?;
+        }
+        certificate(&r.certificate, out)?;
+    }
     let s = &p.stats;
     let t = &p.timings;
     writeln!(out)?;
@@ -378,13 +418,14 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     )?;
     writeln!(
         out,
-        "time: greedy {:.3} s, branch and cut {:.3} s (LP {:.3} s, separation {:.3} s, excitation checks {:.3} s, heuristics {:.3} s)",
+        "time: greedy {:.3} s, branch and cut {:.3} s (LP {:.3} s, separation {:.3} s, excitation checks {:.3} s, heuristics {:.3} s), rate stage {:.3} s",
         t.greedy.as_secs_f64(),
         t.search.as_secs_f64(),
         t.solver.as_secs_f64(),
         t.separation.as_secs_f64(),
         t.excitation.as_secs_f64(),
-        t.heuristics.as_secs_f64()
+        t.heuristics.as_secs_f64(),
+        t.rate.as_secs_f64()
     )?;
     cautions(out)
 }

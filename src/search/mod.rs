@@ -10,6 +10,7 @@ mod cuts;
 mod heuristics;
 mod instance;
 mod lns;
+pub mod rate;
 
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;
@@ -109,6 +110,8 @@ pub struct Timings {
     pub solver: Duration,
     /// Primal heuristics.
     pub heuristics: Duration,
+    /// Rate stage (certificates, additions and pruning).
+    pub rate: Duration,
 }
 
 /// The planner's answer.
@@ -137,6 +140,9 @@ pub struct Plan {
     pub source_components: Vec<SourceComponent>,
     /// When infeasible: the groups no candidate set can excite.
     pub shortfalls: Vec<Shortfall>,
+    /// The rate stage, when the problem sets `target_rate`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rate: Option<rate::RatePlan>,
     /// Search figures.
     pub stats: PlanStats,
     /// Stage timings (text output only).
@@ -176,6 +182,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             links: Vec::new(),
             source_components: check.source_components,
             shortfalls,
+            rate: None,
             stats: stats(&inst, None, f64::NAN),
             timings: Timings {
                 greedy: started.elapsed(),
@@ -208,34 +215,73 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     } else {
         0.0
     };
-    let status = if gap <= 1e-9 {
+    let mut status = if gap <= 1e-9 {
         PlanStatus::Optimal
     } else if result.timed_out {
         PlanStatus::TimeLimit
     } else {
         PlanStatus::Feasible
     };
-    let set = LinkSet::new(
+    let mut set = LinkSet::new(
         best.iter()
             .enumerate()
             .filter(|(_, c)| **c)
             .map(|(k, _)| LinkId(k as u32))
             .collect(),
     );
+    let rate_started = Instant::now();
+    let rate = problem
+        .settings
+        .target_rate
+        .map(|target| rate::meet_target(problem, table, &set, target, deadline));
+    let (mut cost, mut gap) = (Some(cost), Some(gap));
+    if let Some(r) = &rate {
+        if r.met || r.timed_out {
+            set = r.set.clone();
+            let c = problem.cost(&set);
+            let g = if c > 0.0 {
+                ((c - lower) / c).max(0.0)
+            } else {
+                0.0
+            };
+            cost = Some(c);
+            gap = Some(g);
+            status = if !r.met || (r.timed_out && g > 1e-9) {
+                PlanStatus::TimeLimit
+            } else if g <= 1e-9 {
+                PlanStatus::Optimal
+            } else if status == PlanStatus::TimeLimit {
+                PlanStatus::TimeLimit
+            } else {
+                PlanStatus::Feasible
+            };
+        } else {
+            status = PlanStatus::Infeasible;
+            set = LinkSet::default();
+            cost = None;
+            gap = None;
+        }
+    }
+    let rate_time = rate_started.elapsed();
     let check = analysis::check(problem, table, &set);
     let s = &result.stats;
     Plan {
         network: problem.settings.name.clone(),
         status,
-        cost: Some(cost),
+        cost,
         lower_bound: Some(lower),
-        gap: Some(gap),
+        gap,
         min_excitation: table.min_excitation(),
         min_excitation_given: table.min_excitation_given(),
         windows: table.windows().len(),
         links: chosen_links(problem, &set),
-        source_components: check.source_components,
+        source_components: if status == PlanStatus::Infeasible {
+            Vec::new()
+        } else {
+            check.source_components
+        },
         shortfalls: Vec::new(),
+        rate,
         stats: stats(&inst, Some(s), greedy_cost),
         timings: Timings {
             greedy: greedy_time,
@@ -246,6 +292,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
                 .saturating_sub(inst.oracle.stats.borrow().time),
             solver: s.lp_time,
             heuristics: s.heuristic_time,
+            rate: rate_time,
         },
     }
 }

@@ -1,0 +1,195 @@
+//! Meeting a required convergence rate (DESIGN §5 step 4): from the
+//! structural optimum, add links by estimated rate gain per cost until the
+//! certified rate reaches the target, then drop links whose removal keeps
+//! it. The structural optimum's lower bound stays valid for the result.
+
+use crate::certify::propagate::{ErrorSystem, Schedule};
+use crate::certify::{Certificate, certify_with, window_log_norm};
+use crate::excitation::ExcitationTable;
+use crate::problem::{LinkId, LinkSet, Problem};
+use rayon::prelude::*;
+use serde::Serialize;
+use std::time::Instant;
+
+/// Units whose share of the slowest mode makes their links candidates for
+/// speed (the rest cannot move that mode much).
+const FOCUS_UNITS: usize = 6;
+
+/// The outcome of the rate stage.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RatePlan {
+    /// Required rate (1/s).
+    pub target: f64,
+    /// Certified rate of the returned links (null when not certified).
+    pub certified: Option<f64>,
+    /// The target is met.
+    pub met: bool,
+    /// Cost of the structural plan the stage started from.
+    pub structural_cost: f64,
+    /// Ids of the links added for speed, in the order they were added.
+    pub added_links: Vec<String>,
+    /// When not met: the best certified rate found (the greedy additions or
+    /// every candidate at once, whichever is faster).
+    pub best_reachable: Option<f64>,
+    /// True when the time limit cut the stage short.
+    pub timed_out: bool,
+    /// The certificate of the returned links.
+    pub certificate: Certificate,
+    /// The returned link set.
+    #[serde(skip)]
+    pub set: LinkSet,
+}
+
+fn with(set: &LinkSet, extra: LinkId) -> LinkSet {
+    let mut ids = set.ids().to_vec();
+    ids.push(extra);
+    LinkSet::new(ids)
+}
+
+fn without(set: &LinkSet, drop: LinkId) -> LinkSet {
+    LinkSet::new(set.ids().iter().copied().filter(|&l| l != drop).collect())
+}
+
+fn rate_of(c: &Certificate) -> f64 {
+    c.rate.unwrap_or(0.0)
+}
+
+/// Adds and prunes links until the certified rate of `start` reaches
+/// `target` or no addition helps.
+///
+/// # Complexity
+/// Each addition screens the candidate links touching the units that carry
+/// the slowest mode on the worst window (in parallel), then certifies the
+/// best one; pruning certifies once per link of the plan.
+pub fn meet_target(
+    problem: &Problem,
+    table: &ExcitationTable,
+    start: &LinkSet,
+    target: f64,
+    deadline: Option<Instant>,
+) -> RatePlan {
+    let schedule = Schedule::new(problem);
+    let structural_cost = problem.cost(start);
+    let mut set = start.clone();
+    let mut cert = certify_with(problem, table, &schedule, &set);
+    let mut added: Vec<LinkId> = Vec::new();
+    let mut rejected: Vec<LinkId> = Vec::new();
+    let late = || deadline.is_some_and(|d| Instant::now() >= d);
+    let mut timed_out = false;
+    while rate_of(&cert) < target {
+        if late() {
+            timed_out = true;
+            break;
+        }
+        let Some(window) = cert.worst_windows.first().copied() else {
+            break;
+        };
+        let focus: Vec<&str> = cert
+            .units
+            .iter()
+            .take(FOCUS_UNITS)
+            .map(|u| u.node.as_str())
+            .collect();
+        let touches = |l: LinkId| {
+            let link = problem.link(l);
+            link.arcs()
+                .any(|a| focus.contains(&problem.node_name(a.to)))
+        };
+        let candidates: Vec<LinkId> = (0..problem.links.len() as u32)
+            .map(LinkId)
+            .filter(|l| !set.ids().contains(l) && !rejected.contains(l) && touches(*l))
+            .collect();
+        let current = rate_of(&cert);
+        let length = cert.window;
+        let scored: Vec<(LinkId, f64, f64)> = candidates
+            .par_iter()
+            .map(|&l| {
+                let trial = with(&set, l);
+                let system = ErrorSystem::of_links(&schedule, problem, &trial);
+                let estimate = -window_log_norm(&system, &window) / length;
+                let link = problem.link(l);
+                let cost = if link.installed { 0.0 } else { link.cost };
+                (l, estimate, (estimate - current) / cost.max(1e-9))
+            })
+            .collect();
+        let best = scored
+            .iter()
+            .filter(|s| s.1 > current)
+            .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)));
+        let Some(&(l, _, _)) = best else {
+            break;
+        };
+        let trial = with(&set, l);
+        let full = certify_with(problem, table, &schedule, &trial);
+        if rate_of(&full) > current {
+            set = trial;
+            cert = full;
+            added.push(l);
+        } else {
+            rejected.push(l);
+        }
+    }
+    let mut best_reachable = None;
+    if rate_of(&cert) < target && !timed_out {
+        // The greedy stalled: is the target reachable at all?
+        let all = problem.all_links();
+        let everything = certify_with(problem, table, &schedule, &all);
+        best_reachable = Some(rate_of(&cert).max(rate_of(&everything)));
+        if rate_of(&everything) >= target {
+            set = all;
+            cert = everything;
+            added = set
+                .ids()
+                .iter()
+                .copied()
+                .filter(|l| !start.ids().contains(l))
+                .collect();
+        }
+    }
+    if rate_of(&cert) >= target {
+        // Prune: most expensive first, keep the target.
+        let mut order: Vec<LinkId> = set
+            .ids()
+            .iter()
+            .copied()
+            .filter(|&l| !problem.link(l).installed)
+            .collect();
+        order.sort_by(|&a, &b| {
+            problem
+                .link(b)
+                .cost
+                .total_cmp(&problem.link(a).cost)
+                .then(a.cmp(&b))
+        });
+        for l in order {
+            if late() {
+                timed_out = true;
+                break;
+            }
+            let trial = without(&set, l);
+            let c = certify_with(problem, table, &schedule, &trial);
+            if rate_of(&c) >= target {
+                set = trial;
+                cert = c;
+                added.retain(|&a| a != l);
+            }
+        }
+    }
+    let met = rate_of(&cert) >= target;
+    if met {
+        best_reachable = None;
+    } else if best_reachable.is_none() {
+        best_reachable = cert.rate;
+    }
+    RatePlan {
+        target,
+        certified: cert.rate,
+        met,
+        structural_cost,
+        added_links: added.iter().map(|&l| problem.link(l).id.clone()).collect(),
+        best_reachable,
+        timed_out,
+        certificate: cert,
+        set,
+    }
+}
