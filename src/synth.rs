@@ -253,6 +253,15 @@ fn bench_link(nodes: &[Node], a: usize, b: usize, d: f64) -> Link {
 /// # Panics
 /// Never for n ≥ 1.
 pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
+    bench_problem_sized(n, seed, mu_fraction, 0.1)
+}
+
+/// [`bench_problem`] with the logs sampled every `dt` seconds over the same
+/// 200 s (so 200/`dt` samples per unit), for the certificate benchmarks.
+///
+/// # Panics
+/// Never for n ≥ 1 and 0 < dt ≤ 1.
+pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Problem {
     let p = 4;
     let mut rng = Rng(seed);
     let theta = [1.0, -0.5, 0.25, 2.0];
@@ -301,7 +310,7 @@ pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
         };
         let signal = UnitSignal {
             pattern,
-            dt: 0.1,
+            dt,
             start: 0.0,
             end: 200.0,
             jumps,

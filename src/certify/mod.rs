@@ -82,8 +82,11 @@ pub struct Certificate {
     pub gains: Vec<GainCheck>,
     /// `−ln ‖Φ(h1, h0)‖₂ / (h1 − h0)` over the whole horizon.
     pub asymptotic_rate: Option<f64>,
-    /// Number of certificate windows evaluated for `window`.
+    /// Number of certificate windows of length `window`.
     pub windows: usize,
+    /// How many of them needed their norm computed (the others are bounded
+    /// below the worst by products of half-length windows).
+    pub evaluated_windows: usize,
     /// Start of the worst window.
     pub worst_window_start: Option<f64>,
     /// Units by share of the slowest mode, largest first.
@@ -98,6 +101,20 @@ pub struct Certificate {
     /// The worst certificate windows, worst first (at most three).
     #[serde(skip)]
     pub worst_windows: Vec<Window>,
+    /// Wall-clock split (text and benchmarks only, never JSON).
+    #[serde(skip)]
+    pub timing: CertTiming,
+}
+
+/// Where the certificate's time went.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct CertTiming {
+    /// Window norms of every window length tried.
+    pub windows: std::time::Duration,
+    /// The whole-horizon norm.
+    pub horizon: std::time::Duration,
+    /// Everything, structural check included.
+    pub total: std::time::Duration,
 }
 
 /// The gain conditions of DESIGN §4 for the arcs of a link set.
@@ -330,42 +347,101 @@ fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
 }
 
 struct Trial {
-    multiple: usize,
     length: f64,
     log_rho: f64,
     worst: usize,
     windows: Vec<Window>,
-    norms: Vec<WindowNorm>,
+    /// ln ‖Φ(w)‖₂ where evaluated, else an upper bound on it.
+    upper: Vec<f64>,
+    /// Evaluated windows (the others cannot be the worst).
+    norms: Vec<Option<WindowNorm>>,
 }
 
 impl Trial {
     fn rate(&self) -> Option<f64> {
         (self.log_rho < 0.0).then(|| -self.log_rho / self.length)
     }
+
+    /// `upper` of the window starting at `t`, or +∞ when there is none.
+    fn upper_at(&self, t: f64) -> f64 {
+        let tol = 1e-7 * self.length.max(1.0);
+        let k = self.windows.partition_point(|w| w.start < t - tol);
+        match self.windows.get(k) {
+            Some(w) if (w.start - t).abs() <= tol => self.upper[k],
+            _ => f64::INFINITY,
+        }
+    }
 }
 
-fn trial(problem: &Problem, system: &ErrorSystem, multiple: usize) -> Option<Trial> {
+/// Windows evaluated together once bounds can rule windows out.
+const BATCH: usize = 4 * CHUNK;
+
+/// Norms of every certificate window of `multiple` × T. A time window of
+/// length 2L is the product of two windows of length L, so
+/// `‖Φ‖ ≤ ‖Φ_first‖·‖Φ_second‖` from the previous (half-length) trial; windows
+/// whose bound is below the largest norm found so far cannot be the worst and
+/// are not evaluated.
+fn trial(
+    problem: &Problem,
+    system: &ErrorSystem,
+    multiple: usize,
+    prev: Option<&Trial>,
+) -> Option<Trial> {
     let windows = certificate_windows(problem, multiple);
     if windows.is_empty() {
         return None;
     }
-    let norms = window_norms(system, &windows);
-    let mut worst = 0;
-    for (k, w) in norms.iter().enumerate() {
-        if w.log_norm > norms[worst].log_norm {
-            worst = k;
+    let time = problem.settings.window_kind == WindowKind::Time;
+    let bounds: Vec<f64> = windows
+        .iter()
+        .map(|w| match prev {
+            Some(p) if time => p.upper_at(w.start) + p.upper_at(w.start + (w.end - w.start) / 2.0),
+            _ => f64::INFINITY,
+        })
+        .collect();
+    let mut norms: Vec<Option<WindowNorm>> = vec![None; windows.len()];
+    let mut best = f64::NEG_INFINITY;
+    loop {
+        let mut todo: Vec<usize> = (0..windows.len())
+            .filter(|&k| norms[k].is_none() && bounds[k] > best)
+            .collect();
+        if todo.is_empty() {
+            break;
+        }
+        todo.sort_by(|&a, &b| bounds[b].total_cmp(&bounds[a]).then(a.cmp(&b)));
+        let unbounded = todo.iter().filter(|&&k| bounds[k].is_infinite()).count();
+        todo.truncate(unbounded.max(BATCH));
+        todo.sort_unstable();
+        let batch: Vec<Window> = todo.iter().map(|&k| windows[k]).collect();
+        for (k, r) in todo.into_iter().zip(window_norms(system, &batch)) {
+            best = best.max(r.log_norm);
+            norms[k] = Some(r);
         }
     }
+    let upper: Vec<f64> = norms
+        .iter()
+        .zip(&bounds)
+        .map(|(n, b)| n.as_ref().map_or(*b, |n| n.log_norm))
+        .collect();
+    let mut worst = None::<usize>;
+    for (k, n) in norms.iter().enumerate() {
+        if let Some(n) = n {
+            if worst.is_none_or(|w| n.log_norm > upper[w]) {
+                worst = Some(k);
+            }
+        }
+    }
+    let worst = worst?;
     let length = windows
         .iter()
         .map(|w| w.end - w.start)
         .fold(0.0f64, f64::max);
     Some(Trial {
-        multiple,
         length,
-        log_rho: norms[worst].log_norm,
+        log_rho: upper[worst],
         worst,
         windows,
+        upper,
         norms,
     })
 }
@@ -449,13 +525,16 @@ pub fn certify_with(
         gains,
         asymptotic_rate: None,
         windows: 0,
+        evaluated_windows: 0,
         worst_window_start: None,
         units: Vec::new(),
         reason: None,
         unconverged_windows: 0,
         power_iterations: 0,
         worst_windows: Vec::new(),
+        timing: CertTiming::default(),
     };
+    let started = std::time::Instant::now();
     let structural = analysis::check(problem, table, set);
     if !structural.condition_holds {
         cert.reason = Some(
@@ -467,54 +546,53 @@ pub fn certify_with(
     }
     let system = ErrorSystem::of_links(schedule, problem, set);
     let horizon = problem.domain.h1 - problem.domain.h0;
-    let mut best: Option<Trial> = None;
-    let mut last: Option<Trial> = None;
+    let mut trials: Vec<Trial> = Vec::new();
+    let mut best: Option<usize> = None;
     for &m in &MULTIPLES {
         if m > 1 && problem.settings.window * m as f64 > horizon / 2.0 {
             break;
         }
-        let Some(t) = trial(problem, &system, m) else {
+        let Some(t) = trial(problem, &system, m, trials.last()) else {
             break;
         };
-        cert.power_iterations += t.norms.iter().map(|w| w.iterations).sum::<usize>();
-        let improved = match (&best, t.rate()) {
+        cert.power_iterations += t.norms.iter().flatten().map(|w| w.iterations).sum::<usize>();
+        let improved = match (best.map(|b| &trials[b]), t.rate()) {
             (_, None) => false,
             (None, Some(_)) => true,
             (Some(b), Some(r)) => r > b.rate().unwrap_or(0.0) * 1.01,
         };
         let stop = best.is_some() && !improved;
+        trials.push(t);
         if improved {
-            best = Some(t);
-        } else {
-            last = Some(t);
+            best = Some(trials.len() - 1);
         }
         if stop {
             break;
         }
     }
+    cert.timing.windows = started.elapsed();
     let log_h = horizon_log_norm(problem, &system);
+    cert.timing.horizon = started.elapsed() - cert.timing.windows;
     if log_h < 0.0 {
         cert.asymptotic_rate = Some(-log_h / horizon);
     }
-    let Some(t) = best.or(last) else {
+    let Some(t) = best.or(trials.len().checked_sub(1)).map(|k| &trials[k]) else {
         cert.reason = Some("no certificate window fits in the horizon".into());
         return cert;
     };
     cert.window = t.length;
     cert.contraction = t.log_rho.exp();
     cert.windows = t.windows.len();
+    cert.evaluated_windows = t.norms.iter().flatten().count();
     cert.worst_window_start = Some(t.windows[t.worst].start);
-    let mut order: Vec<usize> = (0..t.windows.len()).collect();
-    order.sort_by(|&a, &b| {
-        t.norms[b]
-            .log_norm
-            .total_cmp(&t.norms[a].log_norm)
-            .then(a.cmp(&b))
-    });
+    let mut order: Vec<usize> = (0..t.windows.len())
+        .filter(|&k| t.norms[k].is_some())
+        .collect();
+    order.sort_by(|&a, &b| t.upper[b].total_cmp(&t.upper[a]).then(a.cmp(&b)));
     cert.worst_windows = order.iter().take(3).map(|&k| t.windows[k]).collect();
-    cert.unconverged_windows = t.norms.iter().filter(|w| !w.converged).count();
+    cert.unconverged_windows = t.norms.iter().flatten().filter(|w| !w.converged).count();
     let p = problem.settings.parameters;
-    let left = &t.norms[t.worst].left;
+    let left = &t.norms[t.worst].as_ref().expect("the worst window is evaluated").left;
     let mut units: Vec<UnitShare> = problem
         .nodes
         .iter()
@@ -542,8 +620,8 @@ pub fn certify_with(
                 horizon,
                 t.log_rho.exp()
             ));
-            let _ = t.multiple;
         }
     }
+    cert.timing.total = started.elapsed();
     cert
 }

@@ -190,12 +190,23 @@ pub struct ErrorSystem<'a> {
     gains: Gains,
     /// Arcs `(from, to, weight)`: `to` listens to `from`.
     arcs: Vec<(u32, u32, f64)>,
+    /// Per unit, the units it listens to with the weights (rows of L), as
+    /// offsets into `listens`.
+    listen_start: Vec<usize>,
+    listens: Vec<(u32, f64)>,
+    /// Per unit, the units listening to it with the weights (rows of Lᵀ).
+    talk_start: Vec<usize>,
+    talks: Vec<(u32, f64)>,
     /// Weighted in-degree of each unit.
     in_degree: Vec<f64>,
     /// Weighted out-degree of each unit.
     out_degree: Vec<f64>,
     /// Upper bound on ‖A‖₂ on each grid interval.
     generator_norms: Vec<f64>,
+    /// Per grid interval, a shift σ ≥ 0 and a bound on ‖A + σI‖₂ (smaller
+    /// than the bound on ‖A‖₂): `exp(hA) = e^{−hσ} exp(h(A + σI))` needs
+    /// fewer Taylor terms.
+    shifted: Vec<(f64, f64)>,
 }
 
 /// Which operator to apply: the error system or its transpose.
@@ -229,9 +240,15 @@ impl<'a> ErrorSystem<'a> {
         // row i sums γ_c|ψ_i|² + 2κ d_in, column i sums γ_c|ψ_i|² + κ(d_in + d_out).
         let (g, kappa) = (gains.flow_gain, gains.flow_coupling);
         let p = schedule.p;
-        let generator_norms = (0..schedule.grid.len().saturating_sub(1))
+        // Shifted: with R = max_i (γ_c|ψ_i|² + 2κ d_in) and σ = R/2, every
+        // diagonal block σI − κ d_i I − γ_c ψψᵀ has norm σ − κ d_i, so block
+        // rows sum to σ and block columns to σ − κ d_in + κ d_out.
+        let (norms, shifted): (Vec<f64>, Vec<(f64, f64)>) = (0..schedule
+            .grid
+            .len()
+            .saturating_sub(1))
             .map(|k| {
-                let (mut row, mut col) = (0.0f64, 0.0f64);
+                let (mut row, mut col, mut skew) = (0.0f64, 0.0f64, f64::NEG_INFINITY);
                 for i in 0..n {
                     let r = schedule.rows[k * n + i] as usize;
                     let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
@@ -240,17 +257,45 @@ impl<'a> ErrorSystem<'a> {
                         .sum();
                     row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
                     col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
+                    skew = skew.max(kappa * (out_degree[i] - in_degree[i]));
                 }
-                (row * col).sqrt()
+                let sigma = row / 2.0;
+                let shifted = (sigma * (sigma + skew).max(0.0)).sqrt();
+                ((row * col).sqrt(), (sigma, shifted))
             })
-            .collect();
+            .unzip();
+        let generator_norms = norms;
+        let csr = |key: fn(&(u32, u32, f64)) -> (u32, u32)| {
+            let mut start = vec![0usize; n + 1];
+            for a in &arcs {
+                start[key(a).0 as usize + 1] += 1;
+            }
+            for i in 0..n {
+                start[i + 1] += start[i];
+            }
+            let mut fill = start.clone();
+            let mut list = vec![(0u32, 0.0f64); arcs.len()];
+            for a in &arcs {
+                let (row, col) = key(a);
+                list[fill[row as usize]] = (col, a.2);
+                fill[row as usize] += 1;
+            }
+            (start, list)
+        };
+        let (listen_start, listens) = csr(|a| (a.1, a.0));
+        let (talk_start, talks) = csr(|a| (a.0, a.1));
         ErrorSystem {
             schedule,
             gains,
+            listen_start,
+            listens,
+            talk_start,
+            talks,
             arcs,
             in_degree,
             out_degree,
             generator_norms,
+            shifted,
         }
     }
 
@@ -286,30 +331,81 @@ impl<'a> ErrorSystem<'a> {
     /// `y += scale · (L⊗I) x` (or `(Lᵀ⊗I) x`).
     fn add_laplacian(&self, dir: Direction, scale: f64, x: &[f64], y: &mut [f64]) {
         let p = self.schedule.p;
-        for ((yi, xi), &d) in y
-            .chunks_exact_mut(p)
-            .zip(x.chunks_exact(p))
-            .zip(&self.in_degree)
-        {
+        let (start, list) = self.neighbours(dir);
+        for (i, (yi, xi)) in y.chunks_exact_mut(p).zip(x.chunks_exact(p)).enumerate() {
+            let d = self.in_degree[i];
             if d != 0.0 {
                 let s = scale * d;
                 yi.iter_mut().zip(xi).for_each(|(a, b)| *a += s * b);
             }
-        }
-        for &(from, to, w) in &self.arcs {
-            let (src, dst) = match dir {
-                Direction::Forward => (from as usize, to as usize),
-                Direction::Adjoint => (to as usize, from as usize),
-            };
-            let s = scale * w;
-            let xs = &x[src * p..(src + 1) * p];
-            let yd = &mut y[dst * p..(dst + 1) * p];
-            yd.iter_mut().zip(xs).for_each(|(a, b)| *a -= s * b);
+            for &(k, w) in &list[start[i]..start[i + 1]] {
+                let s = scale * w;
+                let xk = &x[k as usize * p..(k as usize + 1) * p];
+                yi.iter_mut().zip(xk).for_each(|(a, b)| *a -= s * b);
+            }
         }
     }
 
-    /// `y = A x` for the flow generator on grid interval `k`.
+    /// The neighbour lists of L (forward) or Lᵀ (adjoint).
+    fn neighbours(&self, dir: Direction) -> (&[usize], &[(u32, f64)]) {
+        match dir {
+            Direction::Forward => (&self.listen_start, &self.listens),
+            Direction::Adjoint => (&self.talk_start, &self.talks),
+        }
+    }
+
+    /// `y = A x` for the flow generator on grid interval `k`:
+    /// `y_i = −γ_c ψ_i (ψ_iᵀ x_i) − κ (d_i x_i − Σ_k a_ik x_k)` (or with Lᵀ),
+    /// one pass over the units.
     fn generator(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+        match self.schedule.p {
+            1 => self.generator_p::<1>(dir, k, x, y),
+            2 => self.generator_p::<2>(dir, k, x, y),
+            3 => self.generator_p::<3>(dir, k, x, y),
+            4 => self.generator_p::<4>(dir, k, x, y),
+            5 => self.generator_p::<5>(dir, k, x, y),
+            6 => self.generator_p::<6>(dir, k, x, y),
+            _ => self.generator_any(dir, k, x, y),
+        }
+    }
+
+    fn generator_p<const P: usize>(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+        let g = self.gains.flow_gain;
+        let kappa = self.gains.flow_coupling;
+        let n = self.schedule.n;
+        let rows = &self.schedule.rows[k * n..(k + 1) * n];
+        let (start, list) = self.neighbours(dir);
+        let block = |v: &[f64], i: usize| -> [f64; P] {
+            let mut out = [0.0; P];
+            out.copy_from_slice(&v[i * P..(i + 1) * P]);
+            out
+        };
+        for (i, yi) in y.chunks_exact_mut(P).enumerate() {
+            let xi = block(x, i);
+            let r = rows[i] as usize;
+            let psi = block(&self.schedule.psi[i], r);
+            let mut dot = 0.0;
+            for c in 0..P {
+                dot += psi[c] * xi[c];
+            }
+            let s = -g * dot;
+            let d = -kappa * self.in_degree[i];
+            let mut acc = [0.0; P];
+            for c in 0..P {
+                acc[c] = s * psi[c] + d * xi[c];
+            }
+            for &(nb, w) in &list[start[i]..start[i + 1]] {
+                let xk = block(x, nb as usize);
+                let kw = kappa * w;
+                for c in 0..P {
+                    acc[c] += kw * xk[c];
+                }
+            }
+            yi.copy_from_slice(&acc);
+        }
+    }
+
+    fn generator_any(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
         let p = self.schedule.p;
         let g = self.gains.flow_gain;
         let n = self.schedule.n;
@@ -345,8 +441,18 @@ impl<'a> ErrorSystem<'a> {
         drive: Option<&[f64]>,
         work: &mut Work,
     ) {
-        let bound = h * self.generator_norm(k);
+        let (sigma, shifted) = self.shifted[k];
+        let use_shift = drive.is_none() && shifted < self.generator_norm(k);
+        let (shift, bound) = if use_shift {
+            (sigma, h * shifted)
+        } else {
+            (0.0, h * self.generator_norm(k))
+        };
         if bound == 0.0 && drive.is_none() {
+            if shift > 0.0 {
+                let f = (-h * shift).exp();
+                x.iter_mut().for_each(|v| *v *= f);
+            }
             return;
         }
         let substeps = bound.ceil().max(1.0);
@@ -362,6 +468,12 @@ impl<'a> ErrorSystem<'a> {
             work.sum.copy_from_slice(x);
             for m in 1..=terms {
                 self.generator(dir, k, &work.term, &mut work.next);
+                if shift > 0.0 {
+                    work.next
+                        .iter_mut()
+                        .zip(&work.term)
+                        .for_each(|(v, t)| *v += shift * t);
+                }
                 if let (1, Some(b)) = (m, drive) {
                     work.next.iter_mut().zip(b).for_each(|(v, b)| *v += b);
                 }
@@ -376,7 +488,12 @@ impl<'a> ErrorSystem<'a> {
                     *s += *t;
                 }
             }
-            x.copy_from_slice(&work.sum);
+            if shift > 0.0 {
+                let f = (-hs * shift).exp();
+                x.iter_mut().zip(&work.sum).for_each(|(v, s)| *v = f * s);
+            } else {
+                x.copy_from_slice(&work.sum);
+            }
         }
     }
 
