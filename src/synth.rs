@@ -398,3 +398,55 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
     Problem::from_parts(PathBuf::from("bench.toml"), settings, nodes, links)
         .expect("benchmark logs overlap")
 }
+
+/// The certificate benchmark: [`bench_problem_sized`] with a 10 s stride and
+/// jump coupling 0.1, and a link set made of a structural plan (5 s search)
+/// plus the cheapest other candidates until the digraph has about 4·n arcs.
+///
+/// # Panics
+/// Never for n ≥ 2 and 0 < dt ≤ 1.
+pub fn certificate_bench(n: usize, seed: u64, dt: f64) -> (Problem, crate::problem::LinkSet) {
+    use crate::problem::{LinkId, LinkSet};
+    let base = bench_problem_sized(n, seed, 0.03, dt);
+    let mut settings = base.settings.clone();
+    settings.stride = Some(10.0);
+    settings.gains.jump_coupling = 0.1;
+    let problem = Problem::from_parts(base.path.clone(), settings, base.nodes, base.links)
+        .expect("benchmark logs overlap");
+    let table = crate::ExcitationTable::build(&problem);
+    let plan = crate::search::plan(
+        &problem,
+        &table,
+        &crate::search::Options {
+            time_limit: Some(std::time::Duration::from_secs(5)),
+            progress: false,
+        },
+    );
+    let all = problem.all_links();
+    let mut ids: Vec<LinkId> = all
+        .ids()
+        .iter()
+        .copied()
+        .filter(|&l| plan.links.iter().any(|c| c.id == problem.link(l).id))
+        .collect();
+    let mut rest: Vec<LinkId> = all
+        .ids()
+        .iter()
+        .copied()
+        .filter(|l| !ids.contains(l))
+        .collect();
+    rest.sort_by(|&a, &b| {
+        problem
+            .link(a)
+            .cost
+            .total_cmp(&problem.link(b).cost)
+            .then(a.cmp(&b))
+    });
+    for l in rest {
+        if problem.arcs(&LinkSet::new(ids.clone())).len() >= 4 * n {
+            break;
+        }
+        ids.push(l);
+    }
+    (problem, LinkSet::new(ids))
+}

@@ -193,6 +193,7 @@ fn power_norm(
     steps: &[Step],
     x: &mut Vec<f64>,
     work: &mut Work,
+    tolerance: f64,
 ) -> WindowNorm {
     let d = x.len();
     let mut iterations = 0;
@@ -228,7 +229,7 @@ fn power_norm(
             let (t, s) = top_ritz(&alpha, &beta);
             theta = t;
             let residual = b * s[s.len() - 1].abs();
-            let done = residual <= LANCZOS_TOLERANCE * t || b <= f64::MIN_POSITIVE * 1e10;
+            let done = residual <= tolerance * t || b <= f64::MIN_POSITIVE * 1e10;
             if done || j + 1 == LANCZOS_DIMENSION || j + 1 == d {
                 // Ritz vector.
                 let mut v = vec![0.0; d];
@@ -311,7 +312,7 @@ fn window_norms(system: &ErrorSystem, windows: &[Window]) -> Vec<WindowNorm> {
                 .iter()
                 .map(|w| {
                     system.schedule().steps(w, &mut steps);
-                    power_norm(system, &steps, &mut x, &mut work)
+                    power_norm(system, &steps, &mut x, &mut work, LANCZOS_TOLERANCE)
                 })
                 .collect::<Vec<_>>()
         })
@@ -476,7 +477,7 @@ pub fn window_log_norm(system: &ErrorSystem, window: &Window) -> f64 {
     let mut steps = Vec::new();
     system.schedule().steps(window, &mut steps);
     let mut x = start_vector(system.dim());
-    power_norm(system, &steps, &mut x, &mut Work::default()).log_norm
+    power_norm(system, &steps, &mut x, &mut Work::default(), LANCZOS_TOLERANCE).log_norm
 }
 
 /// ln ‖Φ(h1, h0)‖₂ over the whole horizon.
@@ -489,7 +490,9 @@ fn horizon_log_norm(problem: &Problem, system: &ErrorSystem) -> f64 {
     let mut steps = Vec::new();
     system.schedule().steps(&w, &mut steps);
     let mut x = start_vector(system.dim());
-    power_norm(system, &steps, &mut x, &mut Work::default()).log_norm
+    // Informative only: a looser residual (the Ritz value is then still
+    // accurate to about its square, far below the rate's printed digits).
+    power_norm(system, &steps, &mut x, &mut Work::default(), 1e-3).log_norm
 }
 
 /// Certifies the convergence rate of `set` on the recorded data.
