@@ -20,6 +20,7 @@ fn benches(c: &mut Criterion) {
     let options = Options {
         time_limit: Some(Duration::from_secs(10)),
         progress: false,
+        ..Default::default()
     };
     let plan = search::plan(&demo, &table, &options);
     let ids: Vec<_> = demo

@@ -33,6 +33,7 @@ fn benches(c: &mut Criterion) {
     let limited = Options {
         time_limit: Some(Duration::from_secs(10)),
         progress: false,
+        ..Default::default()
     };
     let plan = search::plan(&problem, &table, &limited);
     eprintln!(

@@ -19,6 +19,7 @@ fn main() {
     let options = Options {
         time_limit: Some(Duration::from_secs_f64(limit)),
         progress: true,
+        ..Default::default()
     };
     let t = Instant::now();
     let plan = search::plan(&problem, &table, &options);

@@ -52,6 +52,9 @@ enum Command {
         /// Stop after this many seconds and return the best plan with its gap.
         #[arg(long, value_name = "SECONDS")]
         time_limit: Option<f64>,
+        /// Plan so that the condition still holds after any one link fails, or any one unit is lost.
+        #[arg(long, value_enum)]
+        survive: Option<SurviveArg>,
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
@@ -92,6 +95,14 @@ enum Command {
         #[arg(long)]
         skip_rate: bool,
     },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum SurviveArg {
+    /// Any one link failing.
+    Link,
+    /// Any one unit lost (its own estimate excepted).
+    Unit,
 }
 
 #[derive(Args)]
@@ -153,6 +164,7 @@ fn run() -> anyhow::Result<ExitCode> {
             problem,
             out: plan_path,
             time_limit,
+            survive,
             json,
         } => {
             let time_limit = match time_limit {
@@ -170,6 +182,11 @@ fn run() -> anyhow::Result<ExitCode> {
             let options = search::Options {
                 time_limit,
                 progress: true,
+                survive: match survive {
+                    None => search::Survive::Nothing,
+                    Some(SurviveArg::Link) => search::Survive::Link,
+                    Some(SurviveArg::Unit) => search::Survive::Unit,
+                },
             };
             let plan = search::plan(&problem, &table, &options);
             let feasible = plan.status != search::PlanStatus::Infeasible;

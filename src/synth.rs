@@ -420,6 +420,7 @@ pub fn certificate_bench(n: usize, seed: u64, dt: f64) -> (Problem, crate::probl
         &crate::search::Options {
             time_limit: Some(std::time::Duration::from_secs(5)),
             progress: false,
+            ..Default::default()
         },
     );
     let all = problem.all_links();

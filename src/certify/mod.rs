@@ -426,10 +426,10 @@ fn trial(
         .collect();
     let mut worst = None::<usize>;
     for (k, n) in norms.iter().enumerate() {
-        if let Some(n) = n {
-            if worst.is_none_or(|w| n.log_norm > upper[w]) {
-                worst = Some(k);
-            }
+        if let Some(n) = n
+            && worst.is_none_or(|w| n.log_norm > upper[w])
+        {
+            worst = Some(k);
         }
     }
     let worst = worst?;
@@ -477,7 +477,14 @@ pub fn window_log_norm(system: &ErrorSystem, window: &Window) -> f64 {
     let mut steps = Vec::new();
     system.schedule().steps(window, &mut steps);
     let mut x = start_vector(system.dim());
-    power_norm(system, &steps, &mut x, &mut Work::default(), LANCZOS_TOLERANCE).log_norm
+    power_norm(
+        system,
+        &steps,
+        &mut x,
+        &mut Work::default(),
+        LANCZOS_TOLERANCE,
+    )
+    .log_norm
 }
 
 /// ln ‖Φ(h1, h0)‖₂ over the whole horizon.
@@ -558,7 +565,12 @@ pub fn certify_with(
         let Some(t) = trial(problem, &system, m, trials.last()) else {
             break;
         };
-        cert.power_iterations += t.norms.iter().flatten().map(|w| w.iterations).sum::<usize>();
+        cert.power_iterations += t
+            .norms
+            .iter()
+            .flatten()
+            .map(|w| w.iterations)
+            .sum::<usize>();
         let improved = match (best.map(|b| &trials[b]), t.rate()) {
             (_, None) => false,
             (None, Some(_)) => true,
@@ -595,7 +607,10 @@ pub fn certify_with(
     cert.worst_windows = order.iter().take(3).map(|&k| t.windows[k]).collect();
     cert.unconverged_windows = t.norms.iter().flatten().filter(|w| !w.converged).count();
     let p = problem.settings.parameters;
-    let left = &t.norms[t.worst].as_ref().expect("the worst window is evaluated").left;
+    let left = &t.norms[t.worst]
+        .as_ref()
+        .expect("the worst window is evaluated")
+        .left;
     let mut units: Vec<UnitShare> = problem
         .nodes
         .iter()

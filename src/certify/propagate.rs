@@ -243,27 +243,25 @@ impl<'a> ErrorSystem<'a> {
         // Shifted: with R = max_i (γ_c|ψ_i|² + 2κ d_in) and σ = R/2, every
         // diagonal block σI − κ d_i I − γ_c ψψᵀ has norm σ − κ d_i, so block
         // rows sum to σ and block columns to σ − κ d_in + κ d_out.
-        let (norms, shifted): (Vec<f64>, Vec<(f64, f64)>) = (0..schedule
-            .grid
-            .len()
-            .saturating_sub(1))
-            .map(|k| {
-                let (mut row, mut col, mut skew) = (0.0f64, 0.0f64, f64::NEG_INFINITY);
-                for i in 0..n {
-                    let r = schedule.rows[k * n + i] as usize;
-                    let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
-                        .iter()
-                        .map(|v| v * v)
-                        .sum();
-                    row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
-                    col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
-                    skew = skew.max(kappa * (out_degree[i] - in_degree[i]));
-                }
-                let sigma = row / 2.0;
-                let shifted = (sigma * (sigma + skew).max(0.0)).sqrt();
-                ((row * col).sqrt(), (sigma, shifted))
-            })
-            .unzip();
+        let (norms, shifted): (Vec<f64>, Vec<(f64, f64)>) =
+            (0..schedule.grid.len().saturating_sub(1))
+                .map(|k| {
+                    let (mut row, mut col, mut skew) = (0.0f64, 0.0f64, f64::NEG_INFINITY);
+                    for i in 0..n {
+                        let r = schedule.rows[k * n + i] as usize;
+                        let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
+                            .iter()
+                            .map(|v| v * v)
+                            .sum();
+                        row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
+                        col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
+                        skew = skew.max(kappa * (out_degree[i] - in_degree[i]));
+                    }
+                    let sigma = row / 2.0;
+                    let shifted = (sigma * (sigma + skew).max(0.0)).sqrt();
+                    ((row * col).sqrt(), (sigma, shifted))
+                })
+                .unzip();
         let generator_norms = norms;
         let csr = |key: fn(&(u32, u32, f64)) -> (u32, u32)| {
             let mut start = vec![0usize; n + 1];

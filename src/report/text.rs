@@ -349,6 +349,20 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %",
         100.0 * gap
     )?;
+    if let Some(r) = &p.robustness {
+        let what = match r.survive {
+            crate::search::Survive::Link => "any one link failing",
+            crate::search::Survive::Unit => "the loss of any one unit",
+            crate::search::Survive::Nothing => "nothing",
+        };
+        match (r.plain_cost, r.extra_cost) {
+            (Some(plain), Some(extra)) => writeln!(
+                out,
+                "survives {what}; the plain plan costs {plain:.2}, so robustness costs {extra:.2} more"
+            )?,
+            _ => writeln!(out, "survives {what}")?,
+        }
+    }
     writeln!(out)?;
     let ends: Vec<String> = p
         .links

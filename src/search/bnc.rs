@@ -355,6 +355,11 @@ impl<'a, 'b> Search<'a, 'b> {
                 for c in self.inst.violations(&chosen) {
                     grown_rows(self.inst, &c, &mut rows);
                 }
+                for (set, failure) in self.inst.failures(&chosen, false) {
+                    if let Some(r) = self.inst.failure_row(&set, failure) {
+                        rows.push(r);
+                    }
+                }
             }
             let added = self.pool_add(rows);
             found = added

@@ -161,6 +161,31 @@ pub(crate) struct Instance<'a> {
     pub oracle: Rc<Oracle<'a>>,
     /// Every link cost is a whole number (bounds can be rounded up).
     pub integral_costs: bool,
+    /// Which single failure the plan must survive.
+    pub survive: Survive,
+}
+
+/// Which single failure a plan must survive (DESIGN §3, robust variants).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Survive {
+    /// No failure: the plain condition.
+    #[default]
+    Nothing,
+    /// Any one link failing.
+    Link,
+    /// Any one unit lost (its own estimate excepted).
+    Unit,
+}
+
+/// A failure scenario under which a set of units is a non-excited source
+/// component.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Failure {
+    /// Link k failed.
+    Link(usize),
+    /// Unit v was lost.
+    Unit(u32),
 }
 
 impl<'a> Instance<'a> {
@@ -201,6 +226,7 @@ impl<'a> Instance<'a> {
             heads,
             oracle,
             integral_costs,
+            survive: Survive::Nothing,
         }
     }
 
@@ -261,17 +287,100 @@ impl<'a> Instance<'a> {
     }
 
     /// Non-excited source components of a link set (empty: condition holds).
+    /// Non-excited source components of the chosen links, and, under a
+    /// survival requirement, those of every single failure (sorted sets,
+    /// no repeats).
     pub fn violations(&self, chosen: &[bool]) -> Vec<Vec<u32>> {
-        self.source_components(chosen)
+        let mut out: Vec<Vec<u32>> = self
+            .source_components(chosen)
             .into_iter()
             .filter(|c| !self.oracle.excited(c))
-            .collect()
+            .collect();
+        if self.survive != Survive::Nothing && out.is_empty() {
+            out.extend(self.failures(chosen, false).into_iter().map(|f| f.0));
+            out.sort();
+            out.dedup();
+        }
+        out
     }
 
     pub fn holds(&self, chosen: &[bool]) -> bool {
-        self.source_components(chosen)
+        let plain = self
+            .source_components(chosen)
             .iter()
-            .all(|c| self.oracle.excited(c))
+            .all(|c| self.oracle.excited(c));
+        plain && (self.survive == Survive::Nothing || self.failures(chosen, true).is_empty())
+    }
+
+    /// Failure scenarios under which a non-excited source component appears
+    /// (at most one when `first_only`).
+    pub fn failures(&self, chosen: &[bool], first_only: bool) -> Vec<(Vec<u32>, Failure)> {
+        let mut out = Vec::new();
+        let mut mask = chosen.to_vec();
+        match self.survive {
+            Survive::Nothing => {}
+            Survive::Link => {
+                for k in (0..self.links.len()).filter(|&k| chosen[k]) {
+                    mask[k] = false;
+                    for c in self.source_components(&mask) {
+                        if !self.oracle.excited(&c) {
+                            out.push((c, Failure::Link(k)));
+                            if first_only {
+                                return out;
+                            }
+                        }
+                    }
+                    mask[k] = true;
+                }
+            }
+            Survive::Unit => {
+                for v in 0..self.n as u32 {
+                    for (k, l) in self.links.iter().enumerate() {
+                        mask[k] = chosen[k] && !l.arcs.iter().any(|&(a, b)| a == v || b == v);
+                    }
+                    for c in self.source_components(&mask) {
+                        if c != [v] && !self.oracle.excited(&c) {
+                            out.push((c, Failure::Unit(v)));
+                            if first_only {
+                                return out;
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// The row a failure scenario violates: two distinct links entering U
+    /// (any one link failing), or one entering link whose tail is not the
+    /// lost unit. Installed links count as chosen. `None` when installed
+    /// links already satisfy it.
+    pub fn failure_row(&self, set: &[u32], failure: Failure) -> Option<super::cuts::Row> {
+        let mut inside = vec![false; self.n];
+        set.iter().for_each(|&v| inside[v as usize] = true);
+        let (lost, mut rhs) = match failure {
+            Failure::Link(_) => (None, 2i64),
+            Failure::Unit(v) => (Some(v), 1i64),
+        };
+        let mut links = Vec::new();
+        for (k, l) in self.links.iter().enumerate() {
+            let enters = l
+                .arcs
+                .iter()
+                .any(|&(a, b)| inside[b as usize] && !inside[a as usize] && Some(a) != lost);
+            if enters {
+                if l.installed {
+                    rhs -= 1;
+                } else {
+                    links.push(k as u32);
+                }
+            }
+        }
+        (rhs > 0).then_some(super::cuts::Row {
+            links,
+            rhs: rhs as u32,
+        })
     }
 }
 

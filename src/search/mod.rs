@@ -15,7 +15,8 @@ pub mod rate;
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;
 use crate::problem::{Ends, LinkId, LinkSet, Problem};
-use instance::Instance;
+pub use instance::Survive;
+use instance::{Failure, Instance};
 use serde::Serialize;
 use std::time::{Duration, Instant};
 
@@ -26,6 +27,8 @@ pub struct Options {
     pub time_limit: Option<Duration>,
     /// Print a progress line on stderr (only when stderr is a terminal).
     pub progress: bool,
+    /// Single failure the plan must survive.
+    pub survive: Survive,
 }
 
 /// How the search ended.
@@ -72,6 +75,20 @@ pub struct Shortfall {
     pub weakest_window_start: f64,
     /// What would fix it.
     pub remedy: String,
+}
+
+/// The price of surviving a failure.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Robustness {
+    /// Which failure the plan survives.
+    pub survive: Survive,
+    /// Cost of the plain plan (no survival requirement), planned separately
+    /// with the same options.
+    pub plain_cost: Option<f64>,
+    /// Status of that plain plan.
+    pub plain_status: PlanStatus,
+    /// This plan's cost minus the plain plan's.
+    pub extra_cost: Option<f64>,
 }
 
 /// Search figures (deterministic: no timings).
@@ -140,6 +157,9 @@ pub struct Plan {
     pub source_components: Vec<SourceComponent>,
     /// When infeasible: the groups no candidate set can excite.
     pub shortfalls: Vec<Shortfall>,
+    /// Price of the survival requirement, when one is set.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub robustness: Option<Robustness>,
     /// The rate stage, when the problem sets `target_rate`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub rate: Option<rate::RatePlan>,
@@ -162,13 +182,48 @@ pub struct Plan {
 /// one-way special case); Chopra, "On the spanning tree polyhedron",
 /// Oper. Res. Letters 8, 1989 (partition inequalities).
 pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Plan {
+    let mut result = plan_once(problem, table, options);
+    if options.survive != Survive::Nothing {
+        let plain = plan_once(
+            problem,
+            table,
+            &Options {
+                survive: Survive::Nothing,
+                progress: false,
+                ..options.clone()
+            },
+        );
+        result.robustness = Some(Robustness {
+            survive: options.survive,
+            plain_cost: plain.cost,
+            plain_status: plain.status,
+            extra_cost: match (result.cost, plain.cost) {
+                (Some(a), Some(b)) => Some(a - b),
+                _ => None,
+            },
+        });
+    }
+    result
+}
+
+fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> Plan {
     let started = Instant::now();
     let deadline = options.time_limit.map(|d| started + d);
-    let inst = Instance::new(problem, table);
+    let mut inst = Instance::new(problem, table);
+    inst.survive = options.survive;
     let all = vec![true; inst.links.len()];
     let bad = inst.violations(&all);
     if !bad.is_empty() {
-        let shortfalls = bad.iter().map(|c| shortfall(problem, table, c)).collect();
+        let plain: Vec<Vec<u32>> = inst
+            .source_components(&all)
+            .into_iter()
+            .filter(|c| !inst.oracle.excited(c))
+            .collect();
+        let shortfalls = if plain.is_empty() {
+            failure_shortfalls(problem, table, &inst.failures(&all, false))
+        } else {
+            plain.iter().map(|c| shortfall(problem, table, c)).collect()
+        };
         let check = analysis::check(problem, table, &problem.all_links());
         return Plan {
             network: problem.settings.name.clone(),
@@ -182,6 +237,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             links: Vec::new(),
             source_components: check.source_components,
             shortfalls,
+            robustness: None,
             rate: None,
             stats: stats(&inst, None, f64::NAN),
             timings: Timings {
@@ -202,7 +258,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     let limits = bnc::Limits {
         deadline,
         nodes: None,
-        neighbourhood: inst.n >= lns::MIN_UNITS,
+        neighbourhood: inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing,
     };
     let result = bnc::search(&inst, greedy, limits, options.progress);
     let search_time = started.elapsed() - greedy_time;
@@ -230,10 +286,15 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             .collect(),
     );
     let rate_started = Instant::now();
+    let keep = |candidate: &LinkSet| {
+        let mut mask = vec![false; inst.links.len()];
+        candidate.ids().iter().for_each(|l| mask[l.index()] = true);
+        inst.holds(&mask)
+    };
     let rate = problem
         .settings
         .target_rate
-        .map(|target| rate::meet_target(problem, table, &set, target, deadline));
+        .map(|target| rate::meet_target(problem, table, &set, target, deadline, &keep));
     let (mut cost, mut gap) = (Some(cost), Some(gap));
     if let Some(r) = &rate {
         if r.met || r.timed_out {
@@ -281,6 +342,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             check.source_components
         },
         shortfalls: Vec::new(),
+        robustness: None,
         rate,
         stats: stats(&inst, Some(s), greedy_cost),
         timings: Timings {
@@ -331,6 +393,36 @@ pub fn chosen_links(problem: &Problem, set: &LinkSet) -> Vec<ChosenLink> {
             }
         })
         .collect()
+}
+
+/// Shortfalls of a survival requirement: the group left without excitation
+/// by each failure (first failure per group).
+fn failure_shortfalls(
+    problem: &Problem,
+    table: &ExcitationTable,
+    failures: &[(Vec<u32>, Failure)],
+) -> Vec<Shortfall> {
+    let mut seen: Vec<&[u32]> = Vec::new();
+    let mut out = Vec::new();
+    for (set, failure) in failures {
+        if seen.contains(&set.as_slice()) {
+            continue;
+        }
+        seen.push(set);
+        let mut s = shortfall(problem, table, set);
+        s.remedy = match *failure {
+            Failure::Link(k) => format!(
+                "if link {} fails, no other candidate link enters this group: add a second candidate link into it",
+                problem.links[k].id
+            ),
+            Failure::Unit(v) => format!(
+                "if unit {} is lost, no candidate link enters this group from any other unit: add a candidate link into it from elsewhere, or more excitation inside it",
+                problem.nodes[v as usize].id
+            ),
+        };
+        out.push(s);
+    }
+    out
 }
 
 fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {

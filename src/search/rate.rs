@@ -55,7 +55,8 @@ fn rate_of(c: &Certificate) -> f64 {
 }
 
 /// Adds and prunes links until the certified rate of `start` reaches
-/// `target` or no addition helps.
+/// `target` or no addition helps. Pruning only drops a link when `keep`
+/// accepts the smaller set (survival requirements).
 ///
 /// # Complexity
 /// Each addition screens the candidate links touching the units that carry
@@ -67,6 +68,7 @@ pub fn meet_target(
     start: &LinkSet,
     target: f64,
     deadline: Option<Instant>,
+    keep: &dyn Fn(&LinkSet) -> bool,
 ) -> RatePlan {
     let schedule = Schedule::new(problem);
     let structural_cost = problem.cost(start);
@@ -167,6 +169,9 @@ pub fn meet_target(
                 break;
             }
             let trial = without(&set, l);
+            if !keep(&trial) {
+                continue;
+            }
             let c = certify_with(problem, table, &schedule, &trial);
             if rate_of(&c) >= target {
                 set = trial;

@@ -8,3 +8,4 @@ mod external;
 mod fixtures;
 mod planning;
 mod props;
+mod robust;

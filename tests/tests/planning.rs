@@ -94,7 +94,7 @@ fn edmonds_optimum_branching_example() {
 
 /// Independent condition check: petgraph's condensation and the table's
 /// window scan per source component (not the planner's cached oracle).
-fn holds(problem: &Problem, table: &ExcitationTable, chosen: &[usize]) -> bool {
+pub(super) fn holds(problem: &Problem, table: &ExcitationTable, chosen: &[usize]) -> bool {
     let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
     let topo = Topology::analyse(problem.n(), &problem.arcs(&set));
     topo.sources()
@@ -372,6 +372,7 @@ fn large_network_plan_is_valid_under_a_time_limit() {
     let options = Options {
         time_limit: Some(std::time::Duration::from_secs(4)),
         progress: false,
+        ..Default::default()
     };
     let p = search::plan(&problem, &table, &options);
     assert!(
