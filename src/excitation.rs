@@ -224,6 +224,24 @@ impl ExcitationTable {
         )
     }
 
+    /// The table of the units `keep` only (in that order), on the same
+    /// windows and with the same μ_req.
+    pub fn restricted(&self, keep: &[NodeId]) -> Self {
+        let mut gram = Vec::with_capacity(self.windows().len() * keep.len() * packed_len(self.p()));
+        for w in 0..self.windows().len() {
+            for &i in keep {
+                gram.extend_from_slice(self.gramian(w, i));
+            }
+        }
+        Self::from_gramians(
+            keep.len(),
+            self.p(),
+            self.windows().to_vec(),
+            gram,
+            Some(self.min_excitation()),
+        )
+    }
+
     /// A table from given packed Gramians (index `(w * n + i) * q`), for
     /// synthetic studies and tests. The whole-horizon parts are taken as the
     /// sum over windows, all counted as flow.

@@ -82,6 +82,26 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Retire units: drop them, their logs and links, and re-plan with the links in place kept free.
+    Retire {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Unit to retire (repeat for several).
+        #[arg(long = "node", value_name = "ID", required = true)]
+        nodes: Vec<String>,
+        /// The links in place (a plan file); links marked `installed` count too.
+        #[arg(long, value_name = "INSTALLED.json")]
+        plan: Option<PathBuf>,
+        /// Write the new plan (JSON) to this file.
+        #[arg(long, value_name = "PLAN.json")]
+        out: Option<PathBuf>,
+        /// Stop the search after this many seconds.
+        #[arg(long, value_name = "SECONDS")]
+        time_limit: Option<f64>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Check a link set: are all source components jointly excited?
     Check {
         /// Problem file (TOML).
@@ -167,15 +187,9 @@ fn run() -> anyhow::Result<ExitCode> {
             survive,
             json,
         } => {
-            let time_limit = match time_limit {
-                Some(t) if t.is_finite() && t > 0.0 => Some(Duration::from_secs_f64(t)),
-                Some(t) => {
-                    eprintln!(
-                        "exmesh: error: --time-limit {t}: expected a positive number of seconds"
-                    );
-                    return Ok(ExitCode::from(2));
-                }
-                None => None,
+            let time_limit = match parse_time_limit(time_limit) {
+                Ok(t) => t,
+                Err(code) => return Ok(code),
             };
             let problem = problem::load(&problem)?;
             let table = ExcitationTable::build(&problem);
@@ -202,6 +216,61 @@ fn run() -> anyhow::Result<ExitCode> {
                 report::text::plan(&plan, &mut out)
             }
             .context("writing the plan")?;
+            if feasible {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(1)
+            }
+        }
+        Command::Retire {
+            problem,
+            nodes,
+            plan,
+            out: plan_path,
+            time_limit,
+            json,
+        } => {
+            let time_limit = match parse_time_limit(time_limit) {
+                Ok(t) => t,
+                Err(code) => return Ok(code),
+            };
+            let problem = problem::load(&problem)?;
+            let mut units = Vec::new();
+            for name in &nodes {
+                let id = problem.node_id(name).ok_or_else(|| {
+                    InputError::whole(
+                        Path::new("--node"),
+                        format!("unknown unit {name:?}; expected one of the problem's [[node]] ids"),
+                    )
+                })?;
+                if !units.contains(&id) {
+                    units.push(id);
+                }
+            }
+            let in_place = match &plan {
+                Some(path) => problem::read_link_set(&problem, path)?,
+                None => LinkSet::default(),
+            };
+            let options = search::Options {
+                time_limit,
+                progress: true,
+                ..Default::default()
+            };
+            let result = search::replan::retire(&problem, &units, &in_place, &options)
+                .map_err(|e| InputError::whole(&problem.path, e.to_string()))?;
+            let feasible = result.plan.status != search::PlanStatus::Infeasible;
+            if let (Some(path), true) = (plan_path, feasible) {
+                let mut bytes = Vec::new();
+                report::json::write(&result.plan, &mut bytes)?;
+                write_atomically(&path, &bytes)
+                    .with_context(|| format!("writing the plan to {}", path.display()))?;
+            }
+            if json {
+                report::json::write(&result, &mut out)
+            } else {
+                report::text::retirement(&result, &mut out)
+            }
+            .context("writing the re-plan")?;
             if feasible {
                 ExitCode::SUCCESS
             } else {
@@ -287,6 +356,18 @@ fn run() -> anyhow::Result<ExitCode> {
     };
     out.flush().context("writing to standard output")?;
     Ok(code)
+}
+
+/// Checks `--time-limit`: a positive number of seconds, or exit 2.
+fn parse_time_limit(t: Option<f64>) -> Result<Option<Duration>, ExitCode> {
+    match t {
+        Some(t) if t.is_finite() && t > 0.0 => Ok(Some(Duration::from_secs_f64(t))),
+        Some(t) => {
+            eprintln!("exmesh: error: --time-limit {t}: expected a positive number of seconds");
+            Err(ExitCode::from(2))
+        }
+        None => Ok(None),
+    }
 }
 
 /// Parses a comma-separated vector of finite numbers given on the command

@@ -224,6 +224,57 @@ impl Problem {
         })
     }
 
+    /// The problem without the `retired` units, their logs and every link
+    /// that touches them; links in `installed` (ids of this problem) are
+    /// marked installed. Returns the new problem and, for each link of the
+    /// new problem, its id in this one. `None` when no unit is left or the
+    /// remaining logs share no window.
+    pub fn without_units(
+        &self,
+        retired: &[NodeId],
+        installed: &LinkSet,
+    ) -> Option<(Problem, Vec<LinkId>)> {
+        let keep: Vec<bool> = (0..self.n())
+            .map(|i| !retired.contains(&NodeId(i as u32)))
+            .collect();
+        let mut new_id = vec![u32::MAX; self.n()];
+        let mut nodes = Vec::new();
+        for (i, node) in self.nodes.iter().enumerate() {
+            if keep[i] {
+                new_id[i] = nodes.len() as u32;
+                nodes.push(node.clone());
+            }
+        }
+        if nodes.is_empty() {
+            return None;
+        }
+        let map = |v: NodeId| NodeId(new_id[v.index()]);
+        let mut links = Vec::new();
+        let mut origin = Vec::new();
+        for (k, link) in self.links.iter().enumerate() {
+            let (a, b) = match link.ends {
+                Ends::TwoWay(a, b) => (a, b),
+                Ends::OneWay { from, to } => (from, to),
+            };
+            if !keep[a.index()] || !keep[b.index()] {
+                continue;
+            }
+            let mut l = link.clone();
+            l.ends = match link.ends {
+                Ends::TwoWay(a, b) => Ends::TwoWay(map(a), map(b)),
+                Ends::OneWay { from, to } => Ends::OneWay {
+                    from: map(from),
+                    to: map(to),
+                },
+            };
+            l.installed |= installed.ids().contains(&LinkId(k as u32));
+            links.push(l);
+            origin.push(LinkId(k as u32));
+        }
+        let problem = Problem::from_parts(self.path.clone(), self.settings.clone(), nodes, links)?;
+        Some((problem, origin))
+    }
+
     /// Number of units.
     pub fn n(&self) -> usize {
         self.nodes.len()

@@ -285,6 +285,32 @@ pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
     cautions(out)
 }
 
+/// Writes a retirement: the diff of links, the cost of the additions, then
+/// the new plan.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn retirement(r: &crate::search::replan::Retirement, out: &mut impl Write) -> io::Result<()> {
+    writeln!(out, "Retiring {}", r.retired.join(", "))?;
+    let list = |v: &[String]| {
+        if v.is_empty() {
+            "none".to_string()
+        } else {
+            v.join(", ")
+        }
+    };
+    writeln!(out, "  kept:               {}", list(&r.kept))?;
+    writeln!(out, "  added:              {}", list(&r.added))?;
+    writeln!(out, "  no longer needed:   {}", list(&r.no_longer_needed))?;
+    writeln!(out, "  gone with the units: {}", list(&r.removed_with_units))?;
+    match r.added_cost {
+        Some(c) => writeln!(out, "  cost of the additions: {c:.2}")?,
+        None => writeln!(out, "  no link set restores the condition")?,
+    }
+    writeln!(out)?;
+    plan(&r.plan, out)
+}
+
 /// Writes a plan: status, cost and bound, the chosen links, the source
 /// components, search figures and stage times.
 ///

@@ -11,6 +11,7 @@ mod heuristics;
 mod instance;
 mod lns;
 pub mod rate;
+pub mod replan;
 
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;

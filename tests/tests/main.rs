@@ -9,3 +9,4 @@ mod fixtures;
 mod planning;
 mod props;
 mod robust;
+mod whatif;

@@ -124,7 +124,7 @@ fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
         .collect()
 }
 
-fn instance_strategy() -> impl Strategy<Value = (usize, usize, Vec<Edge>, Vec<f64>)> {
+pub(super) fn instance_strategy() -> impl Strategy<Value = (usize, usize, Vec<Edge>, Vec<f64>)> {
     (3usize..=7, 2usize..=3).prop_flat_map(|(n, p)| {
         // A two-way spanning path (so most instances are feasible), then
         // random extra links of either kind, at most 12 links in all.
