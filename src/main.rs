@@ -82,6 +82,40 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Cost–rate front: the best certified rate each budget buys.
+    Budget {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Only plans costing at most this much; report the best rate within it.
+        #[arg(long, value_name = "B")]
+        max_cost: Option<f64>,
+        /// Most links added beyond the structural optimum.
+        #[arg(long, value_name = "N", default_value_t = 8)]
+        steps: usize,
+        /// Draw the front (SVG).
+        #[arg(long, value_name = "FRONT.svg")]
+        svg: Option<PathBuf>,
+        /// Stop after this many seconds (structural search and sweep).
+        #[arg(long, value_name = "SECONDS")]
+        time_limit: Option<f64>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Every single link failure and unit loss of a plan: does the condition hold, at what rate?
+    Stress {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list).
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Only the structural check of each failure: skip the certified rates.
+        #[arg(long)]
+        skip_rate: bool,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Retire units: drop them, their logs and links, and re-plan with the links in place kept free.
     Retire {
         /// Problem file (TOML).
@@ -222,6 +256,70 @@ fn run() -> anyhow::Result<ExitCode> {
                 ExitCode::from(1)
             }
         }
+        Command::Budget {
+            problem,
+            max_cost,
+            steps,
+            svg,
+            time_limit,
+            json,
+        } => {
+            let time_limit = match parse_time_limit(time_limit) {
+                Ok(t) => t,
+                Err(code) => return Ok(code),
+            };
+            if let Some(b) = max_cost
+                && !(b.is_finite() && b >= 0.0)
+            {
+                eprintln!("exmesh: error: --max-cost {b}: expected a cost of zero or more");
+                return Ok(ExitCode::from(2));
+            }
+            let problem = problem::load(&problem)?;
+            let table = ExcitationTable::build(&problem);
+            let options = search::Options {
+                time_limit,
+                progress: true,
+                ..Default::default()
+            };
+            let front = search::pareto::front(&problem, &table, &options, max_cost, steps);
+            if let Some(path) = svg {
+                let text = report::chart::front_svg(&front, problem.settings.target_rate)
+                    .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
+                write_atomically(&path, text.as_bytes())
+                    .with_context(|| format!("writing the figure to {}", path.display()))?;
+            }
+            if json {
+                report::json::write(&front, &mut out)
+            } else {
+                report::text::front(&front, &mut out)
+            }
+            .context("writing the front")?;
+            let ok = front.structural_cost.is_some()
+                && (max_cost.is_none() || front.best_within_budget.is_some());
+            if ok {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(1)
+            }
+        }
+        Command::Stress {
+            problem,
+            plan,
+            skip_rate,
+            json,
+        } => {
+            let problem = problem::load(&problem)?;
+            let set = problem::read_link_set(&problem, &plan)?;
+            let table = ExcitationTable::build(&problem);
+            let result = search::stress::stress(&problem, &table, &set, !skip_rate);
+            if json {
+                report::json::write(&result, &mut out)
+            } else {
+                report::text::stress(&result, &mut out)
+            }
+            .context("writing the failure report")?;
+            ExitCode::SUCCESS
+        }
         Command::Retire {
             problem,
             nodes,
@@ -240,7 +338,9 @@ fn run() -> anyhow::Result<ExitCode> {
                 let id = problem.node_id(name).ok_or_else(|| {
                     InputError::whole(
                         Path::new("--node"),
-                        format!("unknown unit {name:?}; expected one of the problem's [[node]] ids"),
+                        format!(
+                            "unknown unit {name:?}; expected one of the problem's [[node]] ids"
+                        ),
                     )
                 })?;
                 if !units.contains(&id) {

@@ -125,3 +125,120 @@ pub fn errors_svg(problem: &Problem, traj: &Trajectory) -> Result<String, String
     }
     Ok(svg)
 }
+
+/// Renders the cost–rate front as an SVG document: certified rate against
+/// cost, one marker per plan (labelled with its number of links), the
+/// budget and the target rate as dashed lines when given.
+///
+/// # Errors
+/// A message when plotting fails (it does not for finite data).
+pub fn front_svg(
+    front: &crate::search::pareto::Front,
+    target_rate: Option<f64>,
+) -> Result<String, String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 560)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let points: Vec<(f64, f64)> = front
+            .front
+            .iter()
+            .map(|p| (p.cost, p.rate.unwrap_or(0.0)))
+            .collect();
+        let (mut x0, mut x1) = points
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
+                (a.min(p.0), b.max(p.0))
+            });
+        if let Some(b) = front.max_cost {
+            x1 = x1.max(b);
+        }
+        if !x0.is_finite() {
+            (x0, x1) = (0.0, 1.0);
+        }
+        let pad = ((x1 - x0) * 0.08).max(1.0);
+        let mut y1 = points.iter().map(|p| p.1).fold(0.0f64, f64::max);
+        if let Some(t) = target_rate {
+            y1 = y1.max(t);
+        }
+        let y1 = if y1 > 0.0 { y1 * 1.15 } else { 1.0 };
+        let mut chart = ChartBuilder::on(&root)
+            .caption(
+                format!("{}: certified rate against cost", front.network),
+                ("sans-serif", 18),
+            )
+            .margin(16)
+            .x_label_area_size(40)
+            .y_label_area_size(80)
+            .build_cartesian_2d((x0 - pad)..(x1 + pad), 0.0..y1)
+            .map_err(|e| e.to_string())?;
+        chart
+            .configure_mesh()
+            .x_desc("cost of the links")
+            .y_desc("certified rate (1/s)")
+            .light_line_style(WHITE)
+            .y_label_formatter(&|v| format!("{v:.3e}"))
+            .draw()
+            .map_err(|e| e.to_string())?;
+        // The front is a staircase: a plan stays available at higher cost.
+        let mut stairs = Vec::new();
+        for (k, &(c, r)) in points.iter().enumerate() {
+            if k > 0 {
+                stairs.push((c, points[k - 1].1));
+            }
+            stairs.push((c, r));
+        }
+        if let Some(&(_, r)) = points.last() {
+            stairs.push((x1 + pad, r));
+        }
+        chart
+            .draw_series(LineSeries::new(stairs, BLACK.stroke_width(2)))
+            .map_err(|e| e.to_string())?
+            .label("best certified rate for the cost")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
+        chart
+            .draw_series(front.front.iter().zip(&points).map(|(p, &(c, r))| {
+                EmptyElement::at((c, r))
+                    + Circle::new((0, 0), 5, BLACK.filled())
+                    + Text::new(
+                        format!("{} links", p.links.len()),
+                        (6, -16),
+                        ("sans-serif", 12),
+                    )
+            }))
+            .map_err(|e| e.to_string())?;
+        if let Some(t) = target_rate {
+            chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(x0 - pad, t), (x1 + pad, t)],
+                    6,
+                    4,
+                    RGBColor(90, 90, 90).stroke_width(1),
+                ))
+                .map_err(|e| e.to_string())?
+                .label(format!("target rate {t:.3e} 1/s"))
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 8, y)], RGBColor(90, 90, 90)));
+        }
+        if let Some(b) = front.max_cost {
+            chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(b, 0.0), (b, y1)],
+                    3,
+                    3,
+                    BLACK.stroke_width(1),
+                ))
+                .map_err(|e| e.to_string())?
+                .label(format!("budget {b:.2}"))
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 4, y)], BLACK));
+        }
+        chart
+            .configure_series_labels()
+            .background_style(WHITE.mix(0.9))
+            .border_style(BLACK)
+            .position(SeriesLabelPosition::LowerRight)
+            .draw()
+            .map_err(|e| e.to_string())?;
+        root.present().map_err(|e| e.to_string())?;
+    }
+    Ok(svg)
+}

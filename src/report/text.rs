@@ -285,6 +285,104 @@ pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
     cautions(out)
 }
 
+/// Writes the cost–rate front as a table, and the answer for a budget.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn front(f: &crate::search::pareto::Front, out: &mut impl Write) -> io::Result<()> {
+    writeln!(out, "Cost–rate front for {}", f.network)?;
+    let Some(cost) = f.structural_cost else {
+        writeln!(
+            out,
+            "No link set meets the condition: run `exmesh plan` for the groups that cannot be excited."
+        )?;
+        return cautions(out);
+    };
+    writeln!(
+        out,
+        "structural optimum {cost:.2} (proven lower bound {:.2}); {} sets certified",
+        f.lower_bound.unwrap_or(cost),
+        f.certified_sets
+    )?;
+    writeln!(out)?;
+    writeln!(out, "{:>12}  {:>14}  {:>6}", "cost", "rate (1/s)", "links")?;
+    for p in &f.front {
+        let rate = p
+            .rate
+            .map_or("not certified".to_string(), |r| format!("{r:.4e}"));
+        writeln!(out, "{:>12.2}  {rate:>14}  {:>6}", p.cost, p.links.len())?;
+    }
+    if f.timed_out {
+        writeln!(out, "(the time limit stopped the sweep)")?;
+    }
+    if let Some(b) = f.max_cost {
+        writeln!(out)?;
+        match &f.best_within_budget {
+            Some(p) => {
+                writeln!(
+                    out,
+                    "Within {b:.2}: cost {:.2}, certified rate {}",
+                    p.cost,
+                    p.rate
+                        .map_or("none".to_string(), |r| format!("{r:.4e} 1/s"))
+                )?;
+                writeln!(out, "  links: {}", p.links.join(", "))?;
+            }
+            None => writeln!(
+                out,
+                "Budget {b:.2} is too small: the cheapest plan that meets the condition costs {cost:.2}."
+            )?,
+        }
+    }
+    cautions(out)
+}
+
+/// Writes the single-failure report, worst first.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn stress(s: &crate::search::stress::Stress, out: &mut impl Write) -> io::Result<()> {
+    use crate::search::stress::FailureKind;
+    writeln!(out, "Single failures of the plan for {}", s.network)?;
+    writeln!(
+        out,
+        "without failures: condition {}, certified rate {}",
+        if s.baseline_holds { "holds" } else { "FAILS" },
+        s.baseline_rate
+            .map_or("none".to_string(), |r| format!("{r:.4e} 1/s"))
+    )?;
+    let list = |v: &[String]| {
+        if v.is_empty() {
+            "none".to_string()
+        } else {
+            v.join(", ")
+        }
+    };
+    writeln!(out, "critical links: {}", list(&s.critical_links))?;
+    writeln!(out, "critical units: {}", list(&s.critical_units))?;
+    writeln!(out)?;
+    writeln!(
+        out,
+        "{:<6} {:<28} {:<10} {:>14}  units left unexcited",
+        "fails", "id", "condition", "rate (1/s)"
+    )?;
+    for sc in &s.scenarios {
+        let kind = match sc.kind {
+            FailureKind::Link => "link",
+            FailureKind::Unit => "unit",
+        };
+        let rate = sc.rate.map_or("-".to_string(), |r| format!("{r:.4e}"));
+        writeln!(
+            out,
+            "{kind:<6} {:<28} {:<10} {rate:>14}  {}",
+            sc.id,
+            if sc.condition_holds { "holds" } else { "FAILS" },
+            sc.units_left_unexcited.join(", ")
+        )?;
+    }
+    cautions(out)
+}
+
 /// Writes a retirement: the diff of links, the cost of the additions, then
 /// the new plan.
 ///
@@ -302,7 +400,11 @@ pub fn retirement(r: &crate::search::replan::Retirement, out: &mut impl Write) -
     writeln!(out, "  kept:               {}", list(&r.kept))?;
     writeln!(out, "  added:              {}", list(&r.added))?;
     writeln!(out, "  no longer needed:   {}", list(&r.no_longer_needed))?;
-    writeln!(out, "  gone with the units: {}", list(&r.removed_with_units))?;
+    writeln!(
+        out,
+        "  gone with the units: {}",
+        list(&r.removed_with_units)
+    )?;
     match r.added_cost {
         Some(c) => writeln!(out, "  cost of the additions: {c:.2}")?,
         None => writeln!(out, "  no link set restores the condition")?,

@@ -10,8 +10,10 @@ mod cuts;
 mod heuristics;
 mod instance;
 mod lns;
+pub mod pareto;
 pub mod rate;
 pub mod replan;
+pub mod stress;
 
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;

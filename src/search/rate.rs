@@ -40,7 +40,7 @@ pub struct RatePlan {
     pub set: LinkSet,
 }
 
-fn with(set: &LinkSet, extra: LinkId) -> LinkSet {
+pub(crate) fn with(set: &LinkSet, extra: LinkId) -> LinkSet {
     let mut ids = set.ids().to_vec();
     ids.push(extra);
     LinkSet::new(ids)
@@ -50,7 +50,59 @@ fn without(set: &LinkSet, drop: LinkId) -> LinkSet {
     LinkSet::new(set.ids().iter().copied().filter(|&l| l != drop).collect())
 }
 
-fn rate_of(c: &Certificate) -> f64 {
+/// The candidate link with the largest estimated rate gain per cost: links
+/// not in `set` nor `rejected`, ending at one of the units that carry most of
+/// the slowest mode, costing at most `budget` (when given), scored by the
+/// norm of the certificate's worst window with the link added (in
+/// parallel). `None` when no candidate is estimated to help.
+pub(crate) fn best_addition(
+    problem: &Problem,
+    schedule: &Schedule,
+    set: &LinkSet,
+    cert: &Certificate,
+    rejected: &[LinkId],
+    budget: Option<f64>,
+) -> Option<LinkId> {
+    let window = cert.worst_windows.first().copied()?;
+    let focus: Vec<&str> = cert
+        .units
+        .iter()
+        .take(FOCUS_UNITS)
+        .map(|u| u.node.as_str())
+        .collect();
+    let price = |l: LinkId| {
+        let link = problem.link(l);
+        if link.installed { 0.0 } else { link.cost }
+    };
+    let candidates: Vec<LinkId> = (0..problem.links.len() as u32)
+        .map(LinkId)
+        .filter(|l| !set.ids().contains(l) && !rejected.contains(l))
+        .filter(|&l| budget.is_none_or(|b| price(l) <= b))
+        .filter(|&l| {
+            problem
+                .link(l)
+                .arcs()
+                .any(|a| focus.contains(&problem.node_name(a.to)))
+        })
+        .collect();
+    let current = rate_of(cert);
+    let scored: Vec<(LinkId, f64, f64)> = candidates
+        .par_iter()
+        .map(|&l| {
+            let trial = with(set, l);
+            let system = ErrorSystem::of_links(schedule, problem, &trial);
+            let estimate = -window_log_norm(&system, &window) / cert.window;
+            (l, estimate, (estimate - current) / price(l).max(1e-9))
+        })
+        .collect();
+    scored
+        .iter()
+        .filter(|s| s.1 > current)
+        .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)))
+        .map(|s| s.0)
+}
+
+pub(crate) fn rate_of(c: &Certificate) -> f64 {
     c.rate.unwrap_or(0.0)
 }
 
@@ -83,44 +135,10 @@ pub fn meet_target(
             timed_out = true;
             break;
         }
-        let Some(window) = cert.worst_windows.first().copied() else {
+        let Some(l) = best_addition(problem, &schedule, &set, &cert, &rejected, None) else {
             break;
         };
-        let focus: Vec<&str> = cert
-            .units
-            .iter()
-            .take(FOCUS_UNITS)
-            .map(|u| u.node.as_str())
-            .collect();
-        let touches = |l: LinkId| {
-            let link = problem.link(l);
-            link.arcs()
-                .any(|a| focus.contains(&problem.node_name(a.to)))
-        };
-        let candidates: Vec<LinkId> = (0..problem.links.len() as u32)
-            .map(LinkId)
-            .filter(|l| !set.ids().contains(l) && !rejected.contains(l) && touches(*l))
-            .collect();
         let current = rate_of(&cert);
-        let length = cert.window;
-        let scored: Vec<(LinkId, f64, f64)> = candidates
-            .par_iter()
-            .map(|&l| {
-                let trial = with(&set, l);
-                let system = ErrorSystem::of_links(&schedule, problem, &trial);
-                let estimate = -window_log_norm(&system, &window) / length;
-                let link = problem.link(l);
-                let cost = if link.installed { 0.0 } else { link.cost };
-                (l, estimate, (estimate - current) / cost.max(1e-9))
-            })
-            .collect();
-        let best = scored
-            .iter()
-            .filter(|s| s.1 > current)
-            .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)));
-        let Some(&(l, _, _)) = best else {
-            break;
-        };
         let trial = with(&set, l);
         let full = certify_with(problem, table, &schedule, &trial);
         if rate_of(&full) > current {

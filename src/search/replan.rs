@@ -119,12 +119,8 @@ pub fn retire_with(
         .copied()
         .filter(|l| !before.ids().contains(l))
         .collect();
-    let added_cost = feasible.then(|| {
-        0.0 + added_ids
-            .iter()
-            .map(|&l| problem.link(l).cost)
-            .sum::<f64>()
-    });
+    let added_cost =
+        feasible.then(|| 0.0 + added_ids.iter().map(|&l| problem.link(l).cost).sum::<f64>());
     Ok(Retirement {
         retired: units
             .iter()

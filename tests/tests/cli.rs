@@ -421,7 +421,7 @@ fn both_demos_run() {
 }
 
 /// A plan file for the small problem: a<->b and b->c.
-const SMALL_PLAN: &str = r#"{"links": [
+pub(super) const SMALL_PLAN: &str = r#"{"links": [
   {"from": "a", "to": "b", "two_way": true},
   {"from": "b", "to": "c", "two_way": false}
 ]}"#;

@@ -41,3 +41,103 @@ proptest! {
         }
     }
 }
+
+use super::cli::SMALL_PLAN;
+use super::fixtures::{Folder, exmesh, small_problem};
+
+/// The small problem (a excites e1, b excites e2, c nothing; plan a<->b,
+/// b->c): reasoning by hand from the condition (common practice) gives the
+/// critical links and units. Losing b leaves {a} and {c} unexcited, the
+/// failing a<->b leaves {a} and {b}, losing a leaves {b}, the failing b->c
+/// leaves {c}; losing c leaves a<->b excited.
+#[test]
+fn stress_names_the_critical_links_and_units() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    folder.write("plan.json", SMALL_PLAN);
+    let run = exmesh(
+        folder.dir.path(),
+        &["stress", "problem.toml", "--plan", "plan.json", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["baseline_holds"], true);
+    assert!(v["baseline_rate"].as_f64().unwrap() > 0.0);
+    assert_eq!(v["critical_links"], serde_json::json!(["a<->b", "b->c"]));
+    assert_eq!(v["critical_units"], serde_json::json!(["b", "a"]));
+    let last = v["scenarios"].as_array().unwrap().last().unwrap().clone();
+    assert_eq!(last["id"], "c");
+    assert_eq!(last["condition_holds"], true);
+    assert!(last["rate"].as_f64().unwrap() > 0.0);
+}
+
+/// The front starts at `plan`'s structural optimum and is monotone: more
+/// cost, strictly more certified rate. A budget below the optimum exits 1.
+#[test]
+fn budget_front_is_monotone_and_starts_at_the_optimum() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    let plan = exmesh(dir, &["plan", "problem.toml", "--json"]);
+    let plan: serde_json::Value = serde_json::from_str(&plan.stdout).unwrap();
+    let run = exmesh(
+        dir,
+        &["budget", "problem.toml", "--json", "--svg", "front.svg"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let front = v["front"].as_array().unwrap();
+    assert!(!front.is_empty());
+    assert_eq!(front[0]["cost"], plan["cost"]);
+    for pair in front.windows(2) {
+        assert!(pair[1]["cost"].as_f64() > pair[0]["cost"].as_f64());
+        assert!(pair[1]["rate"].as_f64() > pair[0]["rate"].as_f64());
+    }
+    for p in front {
+        assert!(p["links"].is_array());
+    }
+    let svg = std::fs::read_to_string(folder.path("front.svg")).unwrap();
+    assert!(svg.starts_with("<svg"));
+    let small = exmesh(dir, &["budget", "problem.toml", "--max-cost", "1"]);
+    assert_eq!(small.code, 1);
+    assert!(small.stdout.contains("too small"), "{}", small.stdout);
+}
+
+/// Retiring c: b->c goes with it, a<->b (installed) stays, nothing is
+/// added; an unknown unit exits 2 naming the flag.
+#[test]
+fn retire_reports_the_diff() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    folder.write("plan.json", SMALL_PLAN);
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &[
+            "retire",
+            "problem.toml",
+            "--node",
+            "c",
+            "--plan",
+            "plan.json",
+            "--json",
+            "--out",
+            "new.json",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["retired"], serde_json::json!(["c"]));
+    assert_eq!(v["kept"], serde_json::json!(["a<->b"]));
+    assert_eq!(v["added"], serde_json::json!([]));
+    assert_eq!(v["removed_with_units"], serde_json::json!(["b->c"]));
+    assert_eq!(v["added_cost"], 0.0);
+    assert!(folder.path("new.json").exists());
+    let bad = exmesh(dir, &["retire", "problem.toml", "--node", "zz"]);
+    assert_eq!(bad.code, 2);
+    assert!(
+        bad.stderr.contains("--node") && bad.stderr.contains("zz"),
+        "{}",
+        bad.stderr
+    );
+}

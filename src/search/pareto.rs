@@ -1,0 +1,189 @@
+//! The cost–rate front (DESIGN §5 step 5): from the structural optimum,
+//! links are added one at a time by estimated certified-rate gain per cost;
+//! every set is certified and the non-dominated ones form the front.
+
+use super::rate::{best_addition, meet_target, rate_of, with};
+use super::{Options, PlanStatus, plan};
+use crate::certify::certify_with;
+use crate::certify::propagate::Schedule;
+use crate::excitation::ExcitationTable;
+use crate::problem::{LinkId, LinkSet, Problem};
+use rayon::prelude::*;
+use serde::Serialize;
+use std::io::IsTerminal;
+use std::time::Instant;
+
+/// One point of the front.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FrontPoint {
+    /// Cost of the links (installed ones count 0).
+    pub cost: f64,
+    /// Certified rate (1/s); null when not certified on this horizon.
+    pub rate: Option<f64>,
+    /// Link ids.
+    pub links: Vec<String>,
+}
+
+/// The answer of a budget question.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Front {
+    /// Network name.
+    pub network: String,
+    /// Status of the structural plan the front starts from.
+    pub structural_status: PlanStatus,
+    /// Cost of the structural plan (null when infeasible).
+    pub structural_cost: Option<f64>,
+    /// Proven lower bound of any plan meeting the condition.
+    pub lower_bound: Option<f64>,
+    /// Non-dominated plans by increasing cost (more cost, more rate).
+    pub front: Vec<FrontPoint>,
+    /// The budget asked about.
+    pub max_cost: Option<f64>,
+    /// With a budget: the point with the best certified rate within it
+    /// (null when even the structural plan costs more).
+    pub best_within_budget: Option<FrontPoint>,
+    /// Sets certified along the way.
+    pub certified_sets: usize,
+    /// The time limit stopped the sweep.
+    pub timed_out: bool,
+}
+
+fn set_of(problem: &Problem, ids: &[String]) -> Vec<LinkId> {
+    ids.iter()
+        .filter_map(|id| {
+            problem
+                .links
+                .iter()
+                .position(|l| &l.id == id)
+                .map(|k| LinkId(k as u32))
+        })
+        .collect()
+}
+
+/// Builds the cost–rate front with at most `steps` additions (each costing
+/// at most what `max_cost` leaves).
+///
+/// # Complexity
+/// One structural plan, then per step one screening of candidate links (in
+/// parallel) and one certificate.
+pub fn front(
+    problem: &Problem,
+    table: &ExcitationTable,
+    options: &Options,
+    max_cost: Option<f64>,
+    steps: usize,
+) -> Front {
+    let started = Instant::now();
+    let deadline = options.time_limit.map(|d| started + d);
+    let mut structural_problem = problem.clone();
+    structural_problem.settings.target_rate = None;
+    let base = plan(&structural_problem, table, options);
+    let mut out = Front {
+        network: problem.settings.name.clone(),
+        structural_status: base.status,
+        structural_cost: base.cost,
+        lower_bound: base.lower_bound,
+        front: Vec::new(),
+        max_cost,
+        best_within_budget: None,
+        certified_sets: 0,
+        timed_out: false,
+    };
+    let Some(base_cost) = base.cost else {
+        return out;
+    };
+    let ids: Vec<String> = base.links.iter().map(|c| c.id.clone()).collect();
+    let mut set = LinkSet::new(set_of(problem, &ids));
+    let schedule = Schedule::new(problem);
+    let mut cert = certify_with(problem, table, &schedule, &set);
+    out.certified_sets += 1;
+    let point = |set: &LinkSet, rate: Option<f64>| FrontPoint {
+        cost: problem.cost(set),
+        rate,
+        links: set
+            .ids()
+            .iter()
+            .map(|&l| problem.link(l).id.clone())
+            .collect(),
+    };
+    let mut visited = vec![point(&set, cert.rate)];
+    let mut rejected: Vec<LinkId> = Vec::new();
+    let progress = options.progress && std::io::stderr().is_terminal();
+    let mut step = 0;
+    while step < steps && max_cost.is_none_or(|b| base_cost <= b) {
+        if deadline.is_some_and(|d| Instant::now() >= d) {
+            out.timed_out = true;
+            break;
+        }
+        let left = max_cost.map(|b| b - problem.cost(&set));
+        let Some(l) = best_addition(problem, &schedule, &set, &cert, &rejected, left) else {
+            break;
+        };
+        let trial = with(&set, l);
+        let full = certify_with(problem, table, &schedule, &trial);
+        out.certified_sets += 1;
+        if rate_of(&full) > rate_of(&cert) {
+            set = trial;
+            cert = full;
+            visited.push(point(&set, cert.rate));
+            step += 1;
+            if progress {
+                eprint!(
+                    "\rfront: {step}/{steps} points, cost {:.2}, rate {:.4e} 1/s   ",
+                    problem.cost(&set),
+                    rate_of(&cert)
+                );
+            }
+        } else {
+            rejected.push(l);
+        }
+    }
+    if progress {
+        eprintln!();
+    }
+    // Sweep: for each rate reached by the chain, the rate stage of `plan`
+    // (additions, then pruning) from the structural plan, in parallel; its
+    // pruned sets are often cheaper than the chain's.
+    if !out.timed_out {
+        let start = LinkSet::new(set_of(problem, &visited[0].links));
+        let targets: Vec<f64> = visited.iter().skip(1).filter_map(|p| p.rate).collect();
+        let swept: Vec<FrontPoint> = targets
+            .par_iter()
+            .map(|&t| {
+                let r = meet_target(problem, table, &start, t, deadline, &|_| true);
+                point(&r.set, r.certified)
+            })
+            .collect();
+        out.certified_sets += swept.len();
+        visited.extend(swept);
+    }
+    // Non-dominated: each point faster than every cheaper one.
+    visited.sort_by(|a, b| {
+        a.cost
+            .total_cmp(&b.cost)
+            .then(b.rate.unwrap_or(0.0).total_cmp(&a.rate.unwrap_or(0.0)))
+            .then(a.links.cmp(&b.links))
+    });
+    let mut best = f64::NEG_INFINITY;
+    for p in visited {
+        let r = p.rate.unwrap_or(0.0);
+        if out.front.is_empty() || r > best {
+            best = best.max(r);
+            out.front.push(p);
+        }
+    }
+    if let Some(b) = max_cost {
+        out.best_within_budget = out
+            .front
+            .iter()
+            .filter(|p| p.cost <= b + 1e-9)
+            .max_by(|x, y| {
+                x.rate
+                    .unwrap_or(0.0)
+                    .total_cmp(&y.rate.unwrap_or(0.0))
+                    .then(y.cost.total_cmp(&x.cost))
+            })
+            .cloned();
+    }
+    out
+}

@@ -1,0 +1,152 @@
+//! Single failures of a plan: every link failing and every unit lost, one at
+//! a time, with the condition and the certified rate after each.
+
+use crate::analysis;
+use crate::certify::{Certificate, certify};
+use crate::excitation::ExcitationTable;
+use crate::problem::{LinkId, LinkSet, NodeId, Problem};
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// What fails.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum FailureKind {
+    /// A link stops carrying estimates (both ways for a two-way link).
+    Link,
+    /// A unit is lost with its links (its own estimate excepted).
+    Unit,
+}
+
+/// One failure scenario.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Scenario {
+    /// Link or unit.
+    pub kind: FailureKind,
+    /// Its id.
+    pub id: String,
+    /// Every source component is still excited.
+    pub condition_holds: bool,
+    /// Units in source components that are no longer excited.
+    pub units_left_unexcited: Vec<String>,
+    /// Certified rate after the failure (null when not certified or skipped).
+    pub rate: Option<f64>,
+}
+
+/// All single failures of a plan.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Stress {
+    /// Network name.
+    pub network: String,
+    /// Condition and rate without failures.
+    pub baseline_holds: bool,
+    /// Certified rate without failures (null when not certified or skipped).
+    pub baseline_rate: Option<f64>,
+    /// Scenarios, worst first: the condition failing first (more units left
+    /// unexcited first), then by certified rate, lowest first.
+    pub scenarios: Vec<Scenario>,
+    /// Links whose failure breaks the condition, worst first.
+    pub critical_links: Vec<String>,
+    /// Units whose loss breaks the condition, worst first.
+    pub critical_units: Vec<String>,
+}
+
+fn unexcited(c: &analysis::Check) -> Vec<String> {
+    c.source_components
+        .iter()
+        .filter(|s| !s.excited)
+        .flat_map(|s| s.nodes.iter().cloned())
+        .collect()
+}
+
+/// Runs every single failure of `set`; with `rates`, certifies each
+/// surviving network (in parallel).
+///
+/// # Complexity
+/// One structural check per scenario; with `rates`, one certificate per
+/// scenario whose condition holds.
+pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: bool) -> Stress {
+    let base = analysis::check(problem, table, set);
+    let rate_of = |p: &Problem, t: &ExcitationTable, s: &LinkSet, holds: bool| -> Option<f64> {
+        (rates && holds)
+            .then(|| certify(p, t, s))
+            .and_then(|c: Certificate| c.rate)
+    };
+    let baseline_rate = rate_of(problem, table, set, base.condition_holds);
+    let links: Vec<LinkId> = set.ids().to_vec();
+    let mut scenarios: Vec<Scenario> = links
+        .par_iter()
+        .map(|&l| {
+            let rest = LinkSet::new(set.ids().iter().copied().filter(|&k| k != l).collect());
+            let c = analysis::check(problem, table, &rest);
+            Scenario {
+                kind: FailureKind::Link,
+                id: problem.link(l).id.clone(),
+                condition_holds: c.condition_holds,
+                units_left_unexcited: unexcited(&c),
+                rate: rate_of(problem, table, &rest, c.condition_holds),
+            }
+        })
+        .collect();
+    let units: Vec<Scenario> = (0..problem.n() as u32)
+        .into_par_iter()
+        .filter_map(|v| {
+            let v = NodeId(v);
+            let (reduced, origin) = problem.without_units(&[v], &LinkSet::default())?;
+            let kept: Vec<NodeId> = (0..problem.n() as u32)
+                .map(NodeId)
+                .filter(|&u| u != v)
+                .collect();
+            // Same windows as the whole network when its horizon is kept,
+            // else the reduced network's own.
+            let t = if reduced.windows == problem.windows {
+                table.restricted(&kept)
+            } else {
+                ExcitationTable::build(&reduced)
+            };
+            let rest = LinkSet::new(
+                origin
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, o)| set.ids().contains(o))
+                    .map(|(k, _)| LinkId(k as u32))
+                    .collect(),
+            );
+            let c = analysis::check(&reduced, &t, &rest);
+            Some(Scenario {
+                kind: FailureKind::Unit,
+                id: problem.node_name(v).to_string(),
+                condition_holds: c.condition_holds,
+                units_left_unexcited: unexcited(&c),
+                rate: rate_of(&reduced, &t, &rest, c.condition_holds),
+            })
+        })
+        .collect();
+    scenarios.extend(units);
+    scenarios.sort_by(|a, b| {
+        a.condition_holds
+            .cmp(&b.condition_holds)
+            .then(
+                b.units_left_unexcited
+                    .len()
+                    .cmp(&a.units_left_unexcited.len()),
+            )
+            .then(a.rate.unwrap_or(0.0).total_cmp(&b.rate.unwrap_or(0.0)))
+            .then(a.id.cmp(&b.id))
+    });
+    let critical = |kind| {
+        scenarios
+            .iter()
+            .filter(|s| s.kind == kind && !s.condition_holds)
+            .map(|s| s.id.clone())
+            .collect()
+    };
+    Stress {
+        network: problem.settings.name.clone(),
+        baseline_holds: base.condition_holds,
+        baseline_rate,
+        critical_links: critical(FailureKind::Link),
+        critical_units: critical(FailureKind::Unit),
+        scenarios,
+    }
+}
