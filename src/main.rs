@@ -55,6 +55,8 @@ enum Command {
         /// Plan so that the condition still holds after any one link fails, or any one unit is lost.
         #[arg(long, value_enum)]
         survive: Option<SurviveArg>,
+        #[command(flatten)]
+        pictures: Pictures,
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
@@ -95,7 +97,7 @@ enum Command {
         /// Draw the front (SVG).
         #[arg(long, value_name = "FRONT.svg")]
         svg: Option<PathBuf>,
-        /// Stop after this many seconds (structural search and sweep).
+        /// Stop after this many seconds (half for the structural search, half for the sweep).
         #[arg(long, value_name = "SECONDS")]
         time_limit: Option<f64>,
         /// Print JSON instead of text.
@@ -115,6 +117,23 @@ enum Command {
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
+    },
+    /// One self-contained HTML report of a plan (map, links, components, certificate, errors).
+    Report {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list).
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Write the report here.
+        #[arg(long, value_name = "REPORT.html")]
+        out: PathBuf,
+        /// Include the cost–rate front (runs the budget sweep).
+        #[arg(long)]
+        front: bool,
+        /// True parameter for the error figure, comma-separated (else the logged y).
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true)]
+        truth: Option<String>,
     },
     /// Retire units: drop them, their logs and links, and re-plan with the links in place kept free.
     Retire {
@@ -142,6 +161,8 @@ enum Command {
         problem: PathBuf,
         #[command(flatten)]
         links: LinkChoice,
+        #[command(flatten)]
+        pictures: Pictures,
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
@@ -149,6 +170,35 @@ enum Command {
         #[arg(long)]
         skip_rate: bool,
     },
+}
+
+#[derive(Args)]
+struct Pictures {
+    /// Draw the map of the links (SVG).
+    #[arg(long = "svg", value_name = "MAP.svg")]
+    map: Option<PathBuf>,
+    /// Write the chosen digraph in Graphviz DOT.
+    #[arg(long, value_name = "FILE.dot")]
+    dot: Option<PathBuf>,
+}
+
+impl Pictures {
+    /// Writes the requested pictures of `set`.
+    fn write(&self, problem: &exmesh::Problem, table: &ExcitationTable, set: &LinkSet) -> anyhow::Result<()> {
+        if self.map.is_none() && self.dot.is_none() {
+            return Ok(());
+        }
+        let scene = report::map::Scene::new(problem, table, set);
+        if let Some(path) = &self.map {
+            write_atomically(path, report::map::svg(&scene).as_bytes())
+                .with_context(|| format!("writing the map to {}", path.display()))?;
+        }
+        if let Some(path) = &self.dot {
+            write_atomically(path, report::dot::dot(&scene).as_bytes())
+                .with_context(|| format!("writing the DOT file to {}", path.display()))?;
+        }
+        Ok(())
+    }
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -219,6 +269,7 @@ fn run() -> anyhow::Result<ExitCode> {
             out: plan_path,
             time_limit,
             survive,
+            pictures,
             json,
         } => {
             let time_limit = match parse_time_limit(time_limit) {
@@ -238,6 +289,13 @@ fn run() -> anyhow::Result<ExitCode> {
             };
             let plan = search::plan(&problem, &table, &options);
             let feasible = plan.status != search::PlanStatus::Infeasible;
+            // The picture of an infeasible problem shows every candidate.
+            let set = if feasible {
+                plan_links(&problem, &plan)
+            } else {
+                problem.all_links()
+            };
+            pictures.write(&problem, &table, &set)?;
             if let (Some(path), true) = (plan_path, feasible) {
                 let mut bytes = Vec::new();
                 report::json::write(&plan, &mut bytes)?;
@@ -318,6 +376,63 @@ fn run() -> anyhow::Result<ExitCode> {
                 report::text::stress(&result, &mut out)
             }
             .context("writing the failure report")?;
+            ExitCode::SUCCESS
+        }
+        Command::Report {
+            problem,
+            plan,
+            out: path,
+            front,
+            truth,
+        } => {
+            let truth = truth.map(|t| parse_vector("--truth", &t)).transpose()?;
+            let problem = problem::load(&problem)?;
+            let set = problem::read_link_set(&problem, &plan)?;
+            let facts = plan_facts(&plan);
+            let table = ExcitationTable::build(&problem);
+            let mut check = analysis::check(&problem, &table, &set);
+            let cert = certify::certify(&problem, &table, &set);
+            let options = simulate::SimOptions {
+                truth,
+                initial: None,
+            };
+            let simulation = simulate::simulate(&problem, &set, Some(&cert), &options)
+                .map_err(|e| e.to_string())
+                .and_then(|t| {
+                    let svg = report::chart::errors_svg(&problem, &t)?;
+                    Ok((t, svg))
+                });
+            check.certificate = Some(cert);
+            let front = if front {
+                let f = search::pareto::front(
+                    &problem,
+                    &table,
+                    &search::Options {
+                        progress: true,
+                        ..Default::default()
+                    },
+                    None,
+                    8,
+                );
+                let svg = report::chart::front_svg(&f, problem.settings.target_rate)
+                    .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
+                Some((f, svg))
+            } else {
+                None
+            };
+            let scene = report::map::Scene::new(&problem, &table, &set);
+            let html = report::html::report(&report::html::ReportInput {
+                problem: &problem,
+                set: &set,
+                check: &check,
+                facts,
+                map_svg: report::map::svg(&scene),
+                simulation,
+                front,
+            });
+            write_atomically(&path, html.as_bytes())
+                .with_context(|| format!("writing the report to {}", path.display()))?;
+            writeln!(out, "wrote {}", path.display()).context("writing to standard output")?;
             ExitCode::SUCCESS
         }
         Command::Retire {
@@ -426,6 +541,7 @@ fn run() -> anyhow::Result<ExitCode> {
         Command::Check {
             problem,
             links,
+            pictures,
             json,
             skip_rate,
         } => {
@@ -437,6 +553,7 @@ fn run() -> anyhow::Result<ExitCode> {
                 _ => unreachable!("clap requires one link choice"),
             };
             let table = ExcitationTable::build(&problem);
+            pictures.write(&problem, &table, &set)?;
             let mut check = analysis::check(&problem, &table, &set);
             if !skip_rate {
                 check.certificate = Some(certify::certify(&problem, &table, &set));
@@ -456,6 +573,37 @@ fn run() -> anyhow::Result<ExitCode> {
     };
     out.flush().context("writing to standard output")?;
     Ok(code)
+}
+
+/// Status, cost, bound and gap from a plan file written by `plan` (absent
+/// keys stay empty; the file was already validated by `read_link_set`).
+fn plan_facts(path: &Path) -> report::html::PlanFacts {
+    let value: serde_json::Value = std::fs::read_to_string(path)
+        .ok()
+        .and_then(|t| serde_json::from_str(&t).ok())
+        .unwrap_or_default();
+    report::html::PlanFacts {
+        status: value["status"].as_str().map(str::to_string),
+        cost: value["cost"].as_f64(),
+        lower_bound: value["lower_bound"].as_f64(),
+        gap: value["gap"].as_f64(),
+    }
+}
+
+/// The link set of a plan.
+fn plan_links(problem: &exmesh::Problem, plan: &search::Plan) -> LinkSet {
+    LinkSet::new(
+        plan.links
+            .iter()
+            .filter_map(|c| {
+                problem
+                    .links
+                    .iter()
+                    .position(|l| l.id == c.id)
+                    .map(|k| exmesh::problem::LinkId(k as u32))
+            })
+            .collect(),
+    )
 }
 
 /// Checks `--time-limit`: a positive number of seconds, or exit 2.

@@ -1,7 +1,11 @@
 //! Output writers: one module per format, all generic over `io::Write`.
 
 pub mod chart;
+pub mod dot;
+pub mod html;
 pub mod json;
+pub mod map;
+pub mod svg;
 pub mod text;
 
 /// Cautions printed with every result.

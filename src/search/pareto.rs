@@ -77,7 +77,15 @@ pub fn front(
     let deadline = options.time_limit.map(|d| started + d);
     let mut structural_problem = problem.clone();
     structural_problem.settings.target_rate = None;
-    let base = plan(&structural_problem, table, options);
+    // The structural search gets half of the time limit, the sweep the rest.
+    let base = plan(
+        &structural_problem,
+        table,
+        &Options {
+            time_limit: options.time_limit.map(|d| d / 2),
+            ..options.clone()
+        },
+    );
     let mut out = Front {
         network: problem.settings.name.clone(),
         structural_status: base.status,
