@@ -35,6 +35,11 @@ fn main() {
         started.elapsed()
     );
     for p in &front.front {
-        println!("  cost {:.0}  rate {:?}  links {}", p.cost, p.rate, p.links.len());
+        println!(
+            "  cost {:.0}  rate {:?}  links {}",
+            p.cost,
+            p.rate,
+            p.links.len()
+        );
     }
 }

@@ -184,7 +184,12 @@ struct Pictures {
 
 impl Pictures {
     /// Writes the requested pictures of `set`.
-    fn write(&self, problem: &exmesh::Problem, table: &ExcitationTable, set: &LinkSet) -> anyhow::Result<()> {
+    fn write(
+        &self,
+        problem: &exmesh::Problem,
+        table: &ExcitationTable,
+        set: &LinkSet,
+    ) -> anyhow::Result<()> {
         if self.map.is_none() && self.dot.is_none() {
             return Ok(());
         }

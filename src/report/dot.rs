@@ -40,7 +40,11 @@ pub fn dot(scene: &Scene) -> String {
         for &u in &c.units {
             in_component[u] = Some(k);
         }
-        let _ = writeln!(out, "  subgraph {} {{", quote(&format!("cluster_S{}", k + 1)));
+        let _ = writeln!(
+            out,
+            "  subgraph {} {{",
+            quote(&format!("cluster_S{}", k + 1))
+        );
         let _ = writeln!(
             out,
             "    label={}; style={}; excitation=\"{:.6e}\"; excited={};",
@@ -65,7 +69,11 @@ pub fn dot(scene: &Scene) -> String {
             out,
             "  {} [style={}, excited_alone={}, component={}{}];",
             quote(id),
-            if scene.excited_alone[k] { "filled" } else { "solid" },
+            if scene.excited_alone[k] {
+                "filled"
+            } else {
+                "solid"
+            },
             scene.excited_alone[k],
             in_component[k].map_or("\"\"".to_string(), |c| quote(&format!("S{}", c + 1))),
             if scene.geographic {

@@ -66,7 +66,11 @@ pub fn report(r: &ReportInput) -> String {
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<title>{} — link plan report</title>\n<style>{STYLE}</style>\n</head>\n<body>\n",
         escape(&p.settings.name)
     );
-    let _ = writeln!(h, "<h1>{} — link plan report</h1>", escape(&p.settings.name));
+    let _ = writeln!(
+        h,
+        "<h1>{} — link plan report</h1>",
+        escape(&p.settings.name)
+    );
     let _ = writeln!(
         h,
         "<p>Every unit estimates the same {}-parameter vector from its own recorded regressor; \
@@ -220,7 +224,11 @@ pub fn report(r: &ReportInput) -> String {
                 let _ = writeln!(
                     h,
                     "<p class=\"warn\">Not certified on this horizon: {}</p>",
-                    escape(cert.reason.as_deref().unwrap_or("no window shows contraction"))
+                    escape(
+                        cert.reason
+                            .as_deref()
+                            .unwrap_or("no window shows contraction")
+                    )
                 );
             }
         }

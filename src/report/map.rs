@@ -159,7 +159,12 @@ const UNIT_R: f64 = 6.0;
 
 /// Renders the map.
 pub fn svg(scene: &Scene) -> String {
-    let (mut x0, mut x1, mut y0, mut y1) = (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY);
+    let (mut x0, mut x1, mut y0, mut y1) = (
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    );
     for &(x, y) in &scene.positions {
         x0 = x0.min(x);
         x1 = x1.max(x);
@@ -214,7 +219,11 @@ pub fn svg(scene: &Scene) -> String {
                 (_, false) => "#ffffff",
             };
             let inside = |u: usize| c.units.contains(&u);
-            for l in scene.links.iter().filter(|l| l.chosen && inside(l.a) && inside(l.b)) {
+            for l in scene
+                .links
+                .iter()
+                .filter(|l| l.chosen && inside(l.a) && inside(l.b))
+            {
                 doc.line(
                     at(l.a),
                     at(l.b),
@@ -231,11 +240,13 @@ pub fn svg(scene: &Scene) -> String {
         }
     }
     for (k, c) in scene.components.iter().enumerate() {
-        let (lx, ly) = c
-            .units
-            .iter()
-            .map(|&u| at(u))
-            .fold((f64::INFINITY, f64::INFINITY), |m, p| if p.1 < m.1 { p } else { m });
+        let (lx, ly) =
+            c.units
+                .iter()
+                .map(|&u| at(u))
+                .fold((f64::INFINITY, f64::INFINITY), |m, p| {
+                    if p.1 < m.1 { p } else { m }
+                });
         let label = format!(
             "S{}: level {:.3e}{}",
             k + 1,
@@ -259,18 +270,17 @@ pub fn svg(scene: &Scene) -> String {
     for l in scene.links.iter().filter(|l| l.chosen) {
         let (a, b) = (at(l.a), at(l.b));
         let len = ((b.0 - a.0).powi(2) + (b.1 - a.1).powi(2)).sqrt().max(1e-9);
-        let shrink = |p: (f64, f64), d: f64| {
-            (
-                p.0 + (b.0 - a.0) / len * d,
-                p.1 + (b.1 - a.1) / len * d,
-            )
-        };
+        let shrink =
+            |p: (f64, f64), d: f64| (p.0 + (b.0 - a.0) / len * d, p.1 + (b.1 - a.1) / len * d);
         let (a2, b2) = if l.two_way {
             (a, b)
         } else {
             (a, shrink(b, -(UNIT_R + 2.0)))
         };
-        let mut style = vec![s("stroke", "#000000"), s("stroke-width", if l.installed { "5" } else { "2.5" })];
+        let mut style = vec![
+            s("stroke", "#000000"),
+            s("stroke-width", if l.installed { "5" } else { "2.5" }),
+        ];
         if !l.two_way {
             style.push(s("marker-end", "url(#arrow)"));
         }
@@ -285,7 +295,14 @@ pub fn svg(scene: &Scene) -> String {
             p,
             UNIT_R,
             &[
-                s("fill", if scene.excited_alone[k] { "#000000" } else { "#ffffff" }),
+                s(
+                    "fill",
+                    if scene.excited_alone[k] {
+                        "#000000"
+                    } else {
+                        "#ffffff"
+                    },
+                ),
                 s("stroke", "#000000"),
                 s("stroke-width", "1.5"),
             ],
@@ -297,11 +314,24 @@ pub fn svg(scene: &Scene) -> String {
     if scene.geographic {
         let km = nice(span / 5.0);
         let px = km * scale;
-        doc.line((MARGIN, base_y), (MARGIN + px, base_y), &[s("stroke", "#000000"), s("stroke-width", "2")]);
+        doc.line(
+            (MARGIN, base_y),
+            (MARGIN + px, base_y),
+            &[s("stroke", "#000000"), s("stroke-width", "2")],
+        );
         for x in [MARGIN, MARGIN + px] {
-            doc.line((x, base_y - 5.0), (x, base_y + 5.0), &[s("stroke", "#000000"), s("stroke-width", "1.5")]);
+            doc.line(
+                (x, base_y - 5.0),
+                (x, base_y + 5.0),
+                &[s("stroke", "#000000"), s("stroke-width", "1.5")],
+            );
         }
-        doc.text((MARGIN + px + 8.0, base_y + 4.0), 12.0, &format!("{km} km"), &[]);
+        doc.text(
+            (MARGIN + px + 8.0, base_y + 4.0),
+            12.0,
+            &format!("{km} km"),
+            &[],
+        );
     } else {
         doc.text(
             (MARGIN, base_y + 4.0),
@@ -326,30 +356,73 @@ fn legend(doc: &mut Svg, x: f64, y: f64) {
             s("stroke", "#000000"),
         ],
     );
-    doc.text((x + 10.0, y + 20.0), 13.0, "Legend", &[s("font-weight", "bold")]);
+    doc.text(
+        (x + 10.0, y + 20.0),
+        13.0,
+        "Legend",
+        &[s("font-weight", "bold")],
+    );
     let row = |k: usize| y + 45.0 + 30.0 * k as f64;
     let (a, b) = (x + 10.0, x + 50.0);
-    doc.line((a, row(0)), (b, row(0)), &[s("stroke", "#c8c8c8"), s("stroke-width", "1")]);
+    doc.line(
+        (a, row(0)),
+        (b, row(0)),
+        &[s("stroke", "#c8c8c8"), s("stroke-width", "1")],
+    );
     doc.text((b + 10.0, row(0) + 4.0), 11.0, "candidate link", &[]);
-    doc.line((a, row(1)), (b, row(1)), &[s("stroke", "#000000"), s("stroke-width", "2.5")]);
+    doc.line(
+        (a, row(1)),
+        (b, row(1)),
+        &[s("stroke", "#000000"), s("stroke-width", "2.5")],
+    );
     doc.text((b + 10.0, row(1) + 4.0), 11.0, "new link, two-way", &[]);
     doc.line(
         (a, row(2)),
         (b, row(2)),
-        &[s("stroke", "#000000"), s("stroke-width", "2.5"), s("marker-end", "url(#arrow)")],
+        &[
+            s("stroke", "#000000"),
+            s("stroke-width", "2.5"),
+            s("marker-end", "url(#arrow)"),
+        ],
     );
-    doc.text((b + 10.0, row(2) + 4.0), 11.0, "new link, one-way (talks →)", &[]);
-    doc.line((a, row(3)), (b, row(3)), &[s("stroke", "#000000"), s("stroke-width", "5")]);
-    doc.line((a, row(3)), (b, row(3)), &[s("stroke", "#ffffff"), s("stroke-width", "1.6")]);
+    doc.text(
+        (b + 10.0, row(2) + 4.0),
+        11.0,
+        "new link, one-way (talks →)",
+        &[],
+    );
+    doc.line(
+        (a, row(3)),
+        (b, row(3)),
+        &[s("stroke", "#000000"), s("stroke-width", "5")],
+    );
+    doc.line(
+        (a, row(3)),
+        (b, row(3)),
+        &[s("stroke", "#ffffff"), s("stroke-width", "1.6")],
+    );
     doc.text((b + 10.0, row(3) + 4.0), 11.0, "installed link", &[]);
-    doc.circle((a + 20.0, row(4)), UNIT_R, &[s("fill", "#000000"), s("stroke", "#000000")]);
+    doc.circle(
+        (a + 20.0, row(4)),
+        UNIT_R,
+        &[s("fill", "#000000"), s("stroke", "#000000")],
+    );
     doc.text((b + 10.0, row(4) + 4.0), 11.0, "unit excited alone", &[]);
     doc.circle(
         (a + 20.0, row(5)),
         UNIT_R,
-        &[s("fill", "#ffffff"), s("stroke", "#000000"), s("stroke-width", "1.5")],
+        &[
+            s("fill", "#ffffff"),
+            s("stroke", "#000000"),
+            s("stroke-width", "1.5"),
+        ],
     );
-    doc.text((b + 10.0, row(5) + 4.0), 11.0, "unit not excited alone", &[]);
+    doc.text(
+        (b + 10.0, row(5) + 4.0),
+        11.0,
+        "unit not excited alone",
+        &[],
+    );
     for (k, fill, stroke, label) in [
         (6, "#e6e6e6", "#666666", "source component, excited"),
         (7, "#ffffff", "#000000", "source component, NOT excited"),
