@@ -294,10 +294,17 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
         candidate.ids().iter().for_each(|l| mask[l.index()] = true);
         inst.holds(&mask)
     };
-    let rate = problem
-        .settings
-        .target_rate
-        .map(|target| rate::meet_target(problem, table, &set, target, deadline, &keep));
+    let rate = problem.settings.target_rate.map(|target| {
+        rate::meet_target(
+            problem,
+            table,
+            &set,
+            target,
+            deadline,
+            &keep,
+            options.progress,
+        )
+    });
     let (mut cost, mut gap) = (Some(cost), Some(gap));
     if let Some(r) = &rate {
         if r.met || r.timed_out {

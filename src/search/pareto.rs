@@ -158,7 +158,7 @@ pub fn front(
         let swept: Vec<FrontPoint> = targets
             .par_iter()
             .map(|&t| {
-                let r = meet_target(problem, table, &start, t, deadline, &|_| true);
+                let r = meet_target(problem, table, &start, t, deadline, &|_| true, false);
                 point(&r.set, r.certified)
             })
             .collect();

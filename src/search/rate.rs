@@ -9,6 +9,7 @@ use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, Problem};
 use rayon::prelude::*;
 use serde::Serialize;
+use std::io::IsTerminal;
 use std::time::Instant;
 
 /// Units whose share of the slowest mode makes their links candidates for
@@ -121,7 +122,9 @@ pub fn meet_target(
     target: f64,
     deadline: Option<Instant>,
     keep: &dyn Fn(&LinkSet) -> bool,
+    progress: bool,
 ) -> RatePlan {
+    let progress = progress && std::io::stderr().is_terminal();
     let schedule = Schedule::new(problem);
     let structural_cost = problem.cost(start);
     let mut set = start.clone();
@@ -145,9 +148,19 @@ pub fn meet_target(
             set = trial;
             cert = full;
             added.push(l);
+            if progress {
+                eprint!(
+                    "\rrate stage: {} link(s) added, certified {:.4e} of {target:.4e} 1/s   ",
+                    added.len(),
+                    rate_of(&cert)
+                );
+            }
         } else {
             rejected.push(l);
         }
+    }
+    if !added.is_empty() && progress {
+        eprintln!();
     }
     let mut best_reachable = None;
     if rate_of(&cert) < target && !timed_out {

@@ -7,6 +7,8 @@ use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, NodeId, Problem};
 use rayon::prelude::*;
 use serde::Serialize;
+use std::io::IsTerminal;
+use std::sync::atomic::{AtomicUsize, Ordering};
 
 /// What fails.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -66,6 +68,15 @@ fn unexcited(c: &analysis::Check) -> Vec<String> {
 /// One structural check per scenario; with `rates`, one certificate per
 /// scenario whose condition holds.
 pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: bool) -> Stress {
+    let total = set.ids().len() + problem.n();
+    let done = AtomicUsize::new(0);
+    let progress = std::io::stderr().is_terminal();
+    let tick = || {
+        let k = done.fetch_add(1, Ordering::Relaxed) + 1;
+        if progress {
+            eprint!("\rstress: {k}/{total} failures checked   ");
+        }
+    };
     let base = analysis::check(problem, table, set);
     let rate_of = |p: &Problem, t: &ExcitationTable, s: &LinkSet, holds: bool| -> Option<f64> {
         (rates && holds)
@@ -79,12 +90,14 @@ pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: 
         .map(|&l| {
             let rest = LinkSet::new(set.ids().iter().copied().filter(|&k| k != l).collect());
             let c = analysis::check(problem, table, &rest);
+            let rate = rate_of(problem, table, &rest, c.condition_holds);
+            tick();
             Scenario {
                 kind: FailureKind::Link,
                 id: problem.link(l).id.clone(),
                 condition_holds: c.condition_holds,
                 units_left_unexcited: unexcited(&c),
-                rate: rate_of(problem, table, &rest, c.condition_holds),
+                rate,
             }
         })
         .collect();
@@ -113,16 +126,21 @@ pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: 
                     .collect(),
             );
             let c = analysis::check(&reduced, &t, &rest);
+            let rate = rate_of(&reduced, &t, &rest, c.condition_holds);
+            tick();
             Some(Scenario {
                 kind: FailureKind::Unit,
                 id: problem.node_name(v).to_string(),
                 condition_holds: c.condition_holds,
                 units_left_unexcited: unexcited(&c),
-                rate: rate_of(&reduced, &t, &rest, c.condition_holds),
+                rate,
             })
         })
         .collect();
     scenarios.extend(units);
+    if progress {
+        eprintln!();
+    }
     scenarios.sort_by(|a, b| {
         a.condition_holds
             .cmp(&b.condition_holds)

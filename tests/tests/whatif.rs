@@ -141,3 +141,39 @@ fn retire_reports_the_diff() {
         bad.stderr
     );
 }
+
+/// Byte-identical JSON across runs for the what-if commands, the rate stage
+/// and simulation.
+#[test]
+fn what_if_json_is_deterministic() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    folder.write("plan.json", SMALL_PLAN);
+    let text = super::fixtures::SMALL_PROBLEM.replace(
+        "min_excitation = 0.5\n",
+        "min_excitation = 0.5\ntarget_rate = 0.3\n",
+    );
+    folder.write("target.toml", &text);
+    let dir = folder.dir.path();
+    for args in [
+        &["stress", "problem.toml", "--plan", "plan.json", "--json"][..],
+        &["budget", "problem.toml", "--json"][..],
+        &["plan", "target.toml", "--json", "--survive", "link"][..],
+        &["retire", "problem.toml", "--node", "a", "--json"][..],
+        &[
+            "simulate",
+            "problem.toml",
+            "--plan",
+            "plan.json",
+            "--truth",
+            "1,1",
+            "--json",
+        ][..],
+    ] {
+        let a = exmesh(dir, args);
+        let b = exmesh(dir, args);
+        assert!(!a.stdout.is_empty(), "{args:?}: {}", a.stderr);
+        assert_eq!(a.code, b.code);
+        assert_eq!(a.stdout, b.stdout, "{args:?}");
+    }
+}
