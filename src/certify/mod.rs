@@ -101,6 +101,10 @@ pub struct Certificate {
     /// The worst certificate windows, worst first (at most three).
     #[serde(skip)]
     pub worst_windows: Vec<Window>,
+    /// The right singular vector of the worst window (a warm start for
+    /// nearby systems).
+    #[serde(skip)]
+    pub worst_vector: Vec<f64>,
     /// Wall-clock split (text and benchmarks only, never JSON).
     #[serde(skip)]
     pub timing: CertTiming,
@@ -463,12 +467,16 @@ fn log_partial_bound(system: &ErrorSystem, windows: &[Window]) -> f64 {
     two.min(sup + 0.5 * (system.schedule().n() as f64).ln())
 }
 
-/// ln ‖Φ(w)‖₂ of one window for the error system (Lanczos from a fixed
-/// start vector).
-pub fn window_log_norm(system: &ErrorSystem, window: &Window) -> f64 {
+/// ln ‖Φ(w)‖₂ of one window for the error system (Lanczos from `start`,
+/// or a fixed vector when it is empty or of the wrong length).
+pub fn window_log_norm(system: &ErrorSystem, window: &Window, start: &[f64]) -> f64 {
     let mut steps = Vec::new();
     system.schedule().steps(window, &mut steps);
-    let mut x = start_vector(system.dim());
+    let mut x = if start.len() == system.dim() {
+        start.to_vec()
+    } else {
+        start_vector(system.dim())
+    };
     power_norm(
         system,
         &steps,
@@ -534,6 +542,7 @@ pub fn certify_with(
         unconverged_windows: 0,
         power_iterations: 0,
         worst_windows: Vec::new(),
+        worst_vector: Vec::new(),
         timing: CertTiming::default(),
     };
     let started = std::time::Instant::now();
@@ -601,11 +610,12 @@ pub fn certify_with(
     let p = problem.settings.parameters;
     // The left singular vector of the worst window: the image of its right
     // one, normalised.
-    let mut left = t.norms[t.worst]
+    cert.worst_vector = t.norms[t.worst]
         .as_ref()
         .expect("the worst window is evaluated")
         .right
         .clone();
+    let mut left = cert.worst_vector.clone();
     let mut steps = Vec::new();
     schedule.steps(&t.windows[t.worst], &mut steps);
     system.propagate(Direction::Forward, &steps, &mut left, &mut Work::default());

@@ -92,7 +92,7 @@ pub(crate) fn best_addition(
         .map(|&l| {
             let trial = with(set, l);
             let system = ErrorSystem::of_links(schedule, problem, &trial);
-            let estimate = -window_log_norm(&system, &window) / cert.window;
+            let estimate = -window_log_norm(&system, &window, &cert.worst_vector) / cert.window;
             (l, estimate, (estimate - current) / price(l).max(1e-9))
         })
         .collect();
