@@ -302,12 +302,20 @@ fn top_ritz(a: &[f64], b: &[f64]) -> (f64, Vec<f64>) {
 }
 
 /// ln ‖Φ(w)‖₂ for every window, in parallel over fixed chunks.
-fn window_norms(system: &ErrorSystem, windows: &[Window]) -> Vec<WindowNorm> {
+/// The first window of each chunk starts from `warm(window)` when given
+/// (a singular vector of a related window), else from a fixed vector.
+fn window_norms(
+    system: &ErrorSystem,
+    windows: &[Window],
+    warm: &(dyn Fn(&Window) -> Option<Vec<f64>> + Sync),
+) -> Vec<WindowNorm> {
     let d = system.dim();
     windows
         .par_chunks(windows.len().div_ceil(PIECES).clamp(1, CHUNK))
         .flat_map_iter(|chunk| {
-            let mut x = start_vector(d);
+            let mut x = warm(&chunk[0])
+                .filter(|v| v.len() == d)
+                .unwrap_or_else(|| start_vector(d));
             let mut work = Work::default();
             let mut steps = Vec::new();
             chunk
@@ -365,14 +373,19 @@ impl Trial {
         (self.log_rho < 0.0).then(|| -self.log_rho / self.length)
     }
 
-    /// `upper` of the window starting at `t`, or +∞ when there is none.
-    fn upper_at(&self, t: f64) -> f64 {
+    /// Index of the window starting at `t`, if any.
+    fn index_at(&self, t: f64) -> Option<usize> {
         let tol = 1e-7 * self.length.max(1.0);
         let k = self.windows.partition_point(|w| w.start < t - tol);
-        match self.windows.get(k) {
-            Some(w) if (w.start - t).abs() <= tol => self.upper[k],
-            _ => f64::INFINITY,
-        }
+        self.windows
+            .get(k)
+            .filter(|w| (w.start - t).abs() <= tol)
+            .map(|_| k)
+    }
+
+    /// `upper` of the window starting at `t`, or +∞ when there is none.
+    fn upper_at(&self, t: f64) -> f64 {
+        self.index_at(t).map_or(f64::INFINITY, |k| self.upper[k])
     }
 }
 
@@ -416,7 +429,14 @@ fn trial(
         todo.truncate(unbounded.max(BATCH));
         todo.sort_unstable();
         let batch: Vec<Window> = todo.iter().map(|&k| windows[k]).collect();
-        for (k, r) in todo.into_iter().zip(window_norms(system, &batch)) {
+        // Warm start: the right singular vector of the half-length window at
+        // the same start (the slow direction there), when evaluated.
+        let warm = |w: &Window| -> Option<Vec<f64>> {
+            let p = prev?;
+            let k = p.index_at(w.start)?;
+            p.norms[k].as_ref().map(|n| n.right.clone())
+        };
+        for (k, r) in todo.into_iter().zip(window_norms(system, &batch, &warm)) {
             best = best.max(r.log_norm);
             norms[k] = Some(r);
         }
