@@ -239,25 +239,63 @@ pub fn svg(scene: &Scene) -> String {
             }
         }
     }
+    // Component labels: above the topmost unit, else below the lowest, else
+    // beside; the first place that does not overlap a label already placed
+    // or a unit's own label (approximate text boxes).
+    let mut boxes: Vec<(f64, f64, f64, f64)> = (0..scene.units.len())
+        .map(|k| {
+            let (x, y) = at(k);
+            let w = 6.5 * scene.units[k].chars().count() as f64;
+            (x + 8.0, y - 19.0, x + 8.0 + w, y - 6.0)
+        })
+        .collect();
+    let overlaps = |b: &(f64, f64, f64, f64), boxes: &[(f64, f64, f64, f64)]| {
+        boxes
+            .iter()
+            .any(|o| b.0 < o.2 && o.0 < b.2 && b.1 < o.3 && o.1 < b.3)
+    };
     for (k, c) in scene.components.iter().enumerate() {
-        let (lx, ly) =
-            c.units
-                .iter()
-                .map(|&u| at(u))
-                .fold((f64::INFINITY, f64::INFINITY), |m, p| {
-                    if p.1 < m.1 { p } else { m }
-                });
         let label = format!(
             "S{}: level {:.3e}{}",
             k + 1,
             c.level,
             if c.excited { "" } else { " — NOT excited" }
         );
+        let width = 6.3 * label.chars().count() as f64;
+        let pts: Vec<(f64, f64)> = c.units.iter().map(|&u| at(u)).collect();
+        let top = pts
+            .iter()
+            .fold((0.0, f64::INFINITY), |m, p| if p.1 < m.1 { *p } else { m });
+        let bottom = pts.iter().fold(
+            (0.0, f64::NEG_INFINITY),
+            |m, p| if p.1 > m.1 { *p } else { m },
+        );
+        let left = pts
+            .iter()
+            .fold((f64::INFINITY, 0.0), |m, p| if p.0 < m.0 { *p } else { m });
+        let right = pts.iter().fold(
+            (f64::NEG_INFINITY, 0.0),
+            |m, p| if p.0 > m.0 { *p } else { m },
+        );
+        let candidates = [
+            (top.0 - 24.0, top.1 - 24.0),
+            (bottom.0 - 24.0, bottom.1 + 34.0),
+            (right.0 + 24.0, right.1 + 4.0),
+            (left.0 - 24.0 - width, left.1 + 4.0),
+            (top.0 - 24.0, top.1 - 38.0),
+        ];
+        let boxed = |(x, y): (f64, f64)| (x, y - 11.0, x + width, y + 3.0);
+        let place = candidates
+            .iter()
+            .copied()
+            .find(|&p| !overlaps(&boxed(p), &boxes))
+            .unwrap_or(candidates[0]);
+        boxes.push(boxed(place));
         let mut style = vec![s("fill", "#222222")];
         if !c.excited {
             style.push(s("font-weight", "bold"));
         }
-        doc.text((lx - 24.0, ly - 24.0), 11.0, &label, &style);
+        doc.text(place, 11.0, &label, &style);
     }
     // Candidates first (faint), then chosen links on top.
     for l in scene.links.iter().filter(|l| !l.chosen) {
