@@ -22,6 +22,7 @@ use crate::signal::{Window, WindowKind, window_at};
 use propagate::{Direction, ErrorSystem, Schedule, Step, Work};
 use rayon::prelude::*;
 use serde::Serialize;
+use std::io::IsTerminal;
 
 /// Windows handled one after another by one thread, each warm-starting the
 /// Lanczos iteration from the previous one's singular vector: at most this
@@ -583,6 +584,10 @@ pub fn certify_with(
     }
     let system = ErrorSystem::of_links(schedule, problem, set);
     let horizon = problem.domain.h1 - problem.domain.h0;
+    // A progress line on a terminal when the network is large enough for
+    // the certificate to take a while.
+    let progress =
+        std::io::stderr().is_terminal() && system.dim() * problem.domain.grid.len() > 2_000_000;
     // The whole-horizon norm runs beside the window trials.
     let ((trials, best, iterations, windows_time), (log_h, horizon_time)) = rayon::join(
         || {
@@ -593,6 +598,13 @@ pub fn certify_with(
             for &m in &MULTIPLES {
                 if m > 1 && problem.settings.window * m as f64 > horizon / 2.0 {
                     break;
+                }
+                if progress {
+                    eprint!(
+                        "\rcertificate: windows of {} s ({} tried so far)   ",
+                        problem.settings.window * m as f64,
+                        trials.len()
+                    );
                 }
                 let Some(t) = trial(problem, &system, m, trials.last()) else {
                     break;
@@ -624,6 +636,9 @@ pub fn certify_with(
             (horizon_log_norm(problem, &system), t0.elapsed())
         },
     );
+    if progress {
+        eprintln!();
+    }
     cert.power_iterations += iterations;
     cert.timing.windows = windows_time;
     cert.timing.horizon = horizon_time;
