@@ -331,8 +331,8 @@ fn window_norms(
 }
 
 /// Certificate windows of `multiple` × T: every excitation-window start whose
-/// longer window fits, plus (time windows) the chain `h0 + k·T_c` so that the
-/// bound holds from the start of the horizon.
+/// longer window fits, plus the chain `h0 + k·T_c` so that the bound holds
+/// from the start of the horizon.
 fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
     let s = &problem.settings;
     let length = s.window * multiple as f64;
@@ -341,20 +341,32 @@ fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
         .iter()
         .filter_map(|w| window_at(&problem.domain, s.window_kind, length, w.start))
         .collect();
-    if s.window_kind == WindowKind::Time {
+    // The chain from h0: windows of the trial's length for time windows;
+    // for hybrid windows, time windows as long as the longest hybrid one
+    // (the rate is per second of that length).
+    let chain = match s.window_kind {
+        WindowKind::Time => length,
+        WindowKind::Hybrid => out.iter().map(|w| w.end - w.start).fold(0.0, f64::max),
+    };
+    if chain > 0.0 {
         let mut k = 0usize;
         while let Some(w) = window_at(
             &problem.domain,
-            s.window_kind,
-            length,
-            problem.domain.h0 + k as f64 * length,
+            WindowKind::Time,
+            chain,
+            problem.domain.h0 + k as f64 * chain,
         ) {
             out.push(w);
             k += 1;
         }
     }
-    out.sort_by(|a, b| a.start.total_cmp(&b.start));
-    out.dedup_by(|a, b| a.start == b.start);
+    out.sort_by(|a, b| {
+        a.start
+            .total_cmp(&b.start)
+            .then(a.end.total_cmp(&b.end))
+            .then(a.jumps_through_end.cmp(&b.jumps_through_end))
+    });
+    out.dedup();
     out
 }
 

@@ -310,6 +310,7 @@ proptest! {
         n in 2usize..5,
         p in 1usize..4,
         one_way in proptest::bool::ANY,
+        hybrid in proptest::bool::ANY,
     ) {
         let mut rng = Rng(seed);
         let logs: Vec<Log> = (0..n)
@@ -335,6 +336,13 @@ proptest! {
                     l.ends = Ends::OneWay { from: a, to: b };
                 }
             }
+        }
+        if hybrid {
+            // Hybrid windows: 2 s of flow plus jumps.
+            let mut settings = problem.settings.clone();
+            settings.window_kind = WindowKind::Hybrid;
+            settings.window = 3.0;
+            problem = Problem::from_parts(problem.path.clone(), settings, problem.nodes.clone(), problem.links.clone()).unwrap();
         }
         let table = ExcitationTable::build(&problem);
         let set = problem.all_links();
