@@ -224,6 +224,15 @@ impl ExcitationTable {
         )
     }
 
+    /// The same table with another required excitation μ_req (marked as
+    /// given).
+    pub fn with_min_excitation(&self, min_excitation: f64) -> Self {
+        let mut t = self.clone();
+        t.min_excitation = min_excitation;
+        t.min_excitation_given = true;
+        t
+    }
+
     /// The table of the units `keep` only (in that order), on the same
     /// windows and with the same μ_req.
     pub fn restricted(&self, keep: &[NodeId]) -> Self {

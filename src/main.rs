@@ -291,6 +291,7 @@ fn run() -> anyhow::Result<ExitCode> {
                     Some(SurviveArg::Link) => search::Survive::Link,
                     Some(SurviveArg::Unit) => search::Survive::Unit,
                 },
+                node_limit: None,
             };
             let plan = search::plan(&problem, &table, &options);
             let feasible = plan.status != search::PlanStatus::Infeasible;

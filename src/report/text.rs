@@ -538,6 +538,12 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
                 format!(" ({})", r.added_links.join(", "))
             }
         )?;
+        if let Some(mu) = r.raised_min_excitation {
+            writeln!(
+                out,
+                "  (from the structural optimum at a raised required excitation μ_req = {mu:.4e}, then pruned)"
+            )?;
+        }
         if r.timed_out {
             writeln!(out, "  (the time limit stopped the rate stage)")?;
         }

@@ -32,6 +32,9 @@ pub struct Options {
     pub progress: bool,
     /// Single failure the plan must survive.
     pub survive: Survive,
+    /// Stop after this many branch-and-bound nodes (a deterministic effort
+    /// limit; the plan then carries its gap).
+    pub node_limit: Option<u64>,
 }
 
 /// How the search ended.
@@ -260,7 +263,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
     let greedy_time = started.elapsed();
     let limits = bnc::Limits {
         deadline,
-        nodes: None,
+        nodes: options.node_limit,
         neighbourhood: inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing,
     };
     let result = bnc::search(&inst, greedy, limits, options.progress);

@@ -16,6 +16,14 @@ use std::time::Instant;
 /// speed (the rest cannot move that mode much).
 const FOCUS_UNITS: usize = 6;
 
+/// Raised levels of μ_req tried for structural plans that may be faster,
+/// spread geometrically between μ_req and the pooled level of all units.
+const RAISE_STEPS: usize = 4;
+
+/// Branch-and-bound nodes per raised μ_req (a deterministic effort limit:
+/// these plans only seed the rate stage).
+const RAISE_NODES: u64 = 200;
+
 /// The outcome of the rate stage.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RatePlan {
@@ -34,6 +42,9 @@ pub struct RatePlan {
     pub best_reachable: Option<f64>,
     /// True when the time limit cut the stage short.
     pub timed_out: bool,
+    /// When the returned links come from a structural plan at a raised
+    /// required excitation: that μ_req.
+    pub raised_min_excitation: Option<f64>,
     /// The certificate of the returned links.
     pub certificate: Certificate,
     /// The returned link set.
@@ -180,35 +191,76 @@ pub fn meet_target(
         }
     }
     if rate_of(&cert) >= target {
-        // Prune: most expensive first, keep the target.
-        let mut order: Vec<LinkId> = set
-            .ids()
-            .iter()
-            .copied()
-            .filter(|&l| !problem.link(l).installed)
+        let (s2, c2, late_now) = prune(problem, table, &schedule, set, cert, target, keep, &late);
+        timed_out |= late_now;
+        set = s2;
+        cert = c2;
+        added.retain(|l| set.ids().contains(l));
+    }
+    // Raising the required excitation: a structural optimum at a higher
+    // μ_req carries more excitation in each source component and often
+    // certifies faster; keep it when it meets the target for less.
+    let mut raised = None;
+    if !timed_out {
+        let mut plain = problem.clone();
+        plain.settings.target_rate = None;
+        // Levels between μ_req and the level of all units pooled (no
+        // source component can be more excited than that).
+        let all: Vec<crate::problem::NodeId> = (0..problem.n() as u32)
+            .map(crate::problem::NodeId)
             .collect();
-        order.sort_by(|&a, &b| {
-            problem
-                .link(b)
-                .cost
-                .total_cmp(&problem.link(a).cost)
-                .then(a.cmp(&b))
-        });
-        for l in order {
+        let top = table.level(&all).value.max(table.min_excitation());
+        let base = table.min_excitation();
+        for step in 1..=RAISE_STEPS {
             if late() {
                 timed_out = true;
                 break;
             }
-            let trial = without(&set, l);
-            if !keep(&trial) {
+            let mu = base * (top / base).powf(step as f64 / (RAISE_STEPS + 1) as f64);
+            let stronger = table.with_min_excitation(mu);
+            let options = super::Options {
+                time_limit: deadline.map(|d| d.saturating_duration_since(Instant::now())),
+                node_limit: Some(RAISE_NODES),
+                ..super::Options::default()
+            };
+            let p = super::plan_once(&plain, &stronger, &options);
+            if p.status == super::PlanStatus::Infeasible {
+                break;
+            }
+            let candidate = LinkSet::new(
+                p.links
+                    .iter()
+                    .filter_map(|c| {
+                        problem
+                            .links
+                            .iter()
+                            .position(|l| l.id == c.id)
+                            .map(|k| LinkId(k as u32))
+                    })
+                    .collect(),
+            );
+            if !keep(&candidate) {
                 continue;
             }
-            let c = certify_with(problem, table, &schedule, &trial);
-            if rate_of(&c) >= target {
-                set = trial;
-                cert = c;
-                added.retain(|&a| a != l);
+            let c = certify_with(problem, table, &schedule, &candidate);
+            if rate_of(&c) < target {
+                continue;
             }
+            let (s2, c2, late_now) =
+                prune(problem, table, &schedule, candidate, c, target, keep, &late);
+            timed_out |= late_now;
+            if rate_of(&cert) < target || problem.cost(&s2) < problem.cost(&set) - 1e-9 {
+                added = s2
+                    .ids()
+                    .iter()
+                    .copied()
+                    .filter(|l| !start.ids().contains(l))
+                    .collect();
+                set = s2;
+                cert = c2;
+                raised = Some(mu);
+            }
+            break;
         }
     }
     let met = rate_of(&cert) >= target;
@@ -225,7 +277,52 @@ pub fn meet_target(
         added_links: added.iter().map(|&l| problem.link(l).id.clone()).collect(),
         best_reachable,
         timed_out,
+        raised_min_excitation: raised,
         certificate: cert,
         set,
     }
+}
+
+/// Drops links, dearest first, while the target still holds and `keep`
+/// accepts the smaller set. Returns the set, its certificate and whether the
+/// deadline cut the pass short.
+#[allow(clippy::too_many_arguments)]
+fn prune(
+    problem: &Problem,
+    table: &ExcitationTable,
+    schedule: &Schedule,
+    mut set: LinkSet,
+    mut cert: Certificate,
+    target: f64,
+    keep: &dyn Fn(&LinkSet) -> bool,
+    late: &dyn Fn() -> bool,
+) -> (LinkSet, Certificate, bool) {
+    let mut order: Vec<LinkId> = set
+        .ids()
+        .iter()
+        .copied()
+        .filter(|&l| !problem.link(l).installed)
+        .collect();
+    order.sort_by(|&a, &b| {
+        problem
+            .link(b)
+            .cost
+            .total_cmp(&problem.link(a).cost)
+            .then(a.cmp(&b))
+    });
+    for l in order {
+        if late() {
+            return (set, cert, true);
+        }
+        let trial = without(&set, l);
+        if !keep(&trial) {
+            continue;
+        }
+        let c = certify_with(problem, table, schedule, &trial);
+        if rate_of(&c) >= target {
+            set = trial;
+            cert = c;
+        }
+    }
+    (set, cert, false)
 }
