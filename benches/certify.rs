@@ -23,14 +23,7 @@ fn benches(c: &mut Criterion) {
         ..Default::default()
     };
     let plan = search::plan(&demo, &table, &options);
-    let ids: Vec<_> = demo
-        .all_links()
-        .ids()
-        .iter()
-        .copied()
-        .filter(|&l| plan.links.iter().any(|c| c.id == demo.link(l).id))
-        .collect();
-    let set = exmesh::LinkSet::new(ids);
+    let set = plan.link_set(&demo);
     group.bench_function("delta demo, structural plan (40 units, p = 4)", |b| {
         b.iter(|| certify(black_box(&demo), &table, &set))
     });

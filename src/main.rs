@@ -261,11 +261,9 @@ fn run() -> anyhow::Result<ExitCode> {
             let problem = problem::load(&problem)?;
             let table = ExcitationTable::build(&problem);
             let summary = analysis::excitation_summary(&problem, &table);
-            if json {
-                report::json::write(&summary, &mut out)
-            } else {
-                report::text::excitation(&summary, &mut out)
-            }
+            emit(&mut out, json, &summary, |o| {
+                report::text::excitation(&summary, o)
+            })
             .context("writing the excitation summary")?;
             ExitCode::SUCCESS
         }
@@ -297,28 +295,15 @@ fn run() -> anyhow::Result<ExitCode> {
             let feasible = plan.status != search::PlanStatus::Infeasible;
             // The picture of an infeasible problem shows every candidate.
             let set = if feasible {
-                plan_links(&problem, &plan)
+                plan.link_set(&problem)
             } else {
                 problem.all_links()
             };
             pictures.write(&problem, &table, &set)?;
-            if let (Some(path), true) = (plan_path, feasible) {
-                let mut bytes = Vec::new();
-                report::json::write(&plan, &mut bytes)?;
-                write_atomically(&path, &bytes)
-                    .with_context(|| format!("writing the plan to {}", path.display()))?;
-            }
-            if json {
-                report::json::write(&plan, &mut out)
-            } else {
-                report::text::plan(&plan, &mut out)
-            }
-            .context("writing the plan")?;
-            if feasible {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
-            }
+            write_plan_file(plan_path, &plan)?;
+            emit(&mut out, json, &plan, |o| report::text::plan(&plan, o))
+                .context("writing the plan")?;
+            verdict(feasible)
         }
         Command::Budget {
             problem,
@@ -352,19 +337,11 @@ fn run() -> anyhow::Result<ExitCode> {
                 write_atomically(&path, text.as_bytes())
                     .with_context(|| format!("writing the figure to {}", path.display()))?;
             }
-            if json {
-                report::json::write(&front, &mut out)
-            } else {
-                report::text::front(&front, &mut out)
-            }
-            .context("writing the front")?;
+            emit(&mut out, json, &front, |o| report::text::front(&front, o))
+                .context("writing the front")?;
             let ok = front.structural_cost.is_some()
                 && (max_cost.is_none() || front.best_within_budget.is_some());
-            if ok {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
-            }
+            verdict(ok)
         }
         Command::Stress {
             problem,
@@ -376,11 +353,9 @@ fn run() -> anyhow::Result<ExitCode> {
             let set = problem::read_link_set(&problem, &plan)?;
             let table = ExcitationTable::build(&problem);
             let result = search::stress::stress(&problem, &table, &set, !skip_rate);
-            if json {
-                report::json::write(&result, &mut out)
-            } else {
-                report::text::stress(&result, &mut out)
-            }
+            emit(&mut out, json, &result, |o| {
+                report::text::stress(&result, o)
+            })
             .context("writing the failure report")?;
             ExitCode::SUCCESS
         }
@@ -480,23 +455,12 @@ fn run() -> anyhow::Result<ExitCode> {
             let result = search::replan::retire(&problem, &units, &in_place, &options)
                 .map_err(|e| InputError::whole(&problem.path, e.to_string()))?;
             let feasible = result.plan.status != search::PlanStatus::Infeasible;
-            if let (Some(path), true) = (plan_path, feasible) {
-                let mut bytes = Vec::new();
-                report::json::write(&result.plan, &mut bytes)?;
-                write_atomically(&path, &bytes)
-                    .with_context(|| format!("writing the plan to {}", path.display()))?;
-            }
-            if json {
-                report::json::write(&result, &mut out)
-            } else {
-                report::text::retirement(&result, &mut out)
-            }
+            write_plan_file(plan_path, &result.plan)?;
+            emit(&mut out, json, &result, |o| {
+                report::text::retirement(&result, o)
+            })
             .context("writing the re-plan")?;
-            if feasible {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
-            }
+            verdict(feasible)
         }
         Command::Simulate {
             problem,
@@ -536,11 +500,9 @@ fn run() -> anyhow::Result<ExitCode> {
                 write_atomically(&path, text.as_bytes())
                     .with_context(|| format!("writing the figure to {}", path.display()))?;
             }
-            if json {
-                report::json::write(&traj, &mut out)
-            } else {
-                report::text::simulation(&traj, &mut out)
-            }
+            emit(&mut out, json, &traj, |o| {
+                report::text::simulation(&traj, o)
+            })
             .context("writing the simulation summary")?;
             ExitCode::SUCCESS
         }
@@ -564,17 +526,9 @@ fn run() -> anyhow::Result<ExitCode> {
             if !skip_rate {
                 check.certificate = Some(certify::certify(&problem, &table, &set));
             }
-            if json {
-                report::json::write(&check, &mut out)
-            } else {
-                report::text::check(&check, &mut out)
-            }
-            .context("writing the check")?;
-            if check.condition_holds {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
-            }
+            emit(&mut out, json, &check, |o| report::text::check(&check, o))
+                .context("writing the check")?;
+            verdict(check.condition_holds)
         }
     };
     out.flush().context("writing to standard output")?;
@@ -596,20 +550,39 @@ fn plan_facts(path: &Path) -> report::html::PlanFacts {
     }
 }
 
-/// The link set of a plan.
-fn plan_links(problem: &exmesh::Problem, plan: &search::Plan) -> LinkSet {
-    LinkSet::new(
-        plan.links
-            .iter()
-            .filter_map(|c| {
-                problem
-                    .links
-                    .iter()
-                    .position(|l| l.id == c.id)
-                    .map(|k| exmesh::problem::LinkId(k as u32))
-            })
-            .collect(),
-    )
+/// Prints `value` as JSON, or as text through `text`.
+fn emit<W: Write, T: serde::Serialize>(
+    out: &mut W,
+    json: bool,
+    value: &T,
+    text: impl FnOnce(&mut W) -> std::io::Result<()>,
+) -> std::io::Result<()> {
+    if json {
+        report::json::write(value, out)
+    } else {
+        text(out)
+    }
+}
+
+/// Exit 0 when the answer is yes, 1 when it is no.
+fn verdict(ok: bool) -> ExitCode {
+    if ok {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
+    }
+}
+
+/// Writes `plan` as a plan file (temporary file, then rename) when a path
+/// is given and the plan is not infeasible.
+fn write_plan_file(path: Option<PathBuf>, plan: &search::Plan) -> anyhow::Result<()> {
+    if let (Some(path), true) = (path, plan.status != search::PlanStatus::Infeasible) {
+        let mut bytes = Vec::new();
+        report::json::write(plan, &mut bytes)?;
+        write_atomically(&path, &bytes)
+            .with_context(|| format!("writing the plan to {}", path.display()))?;
+    }
+    Ok(())
 }
 
 /// Checks `--time-limit`: a positive number of seconds, or exit 2.

@@ -424,12 +424,7 @@ pub fn certificate_bench(n: usize, seed: u64, dt: f64) -> (Problem, crate::probl
         },
     );
     let all = problem.all_links();
-    let mut ids: Vec<LinkId> = all
-        .ids()
-        .iter()
-        .copied()
-        .filter(|&l| plan.links.iter().any(|c| c.id == problem.link(l).id))
-        .collect();
+    let mut ids: Vec<LinkId> = plan.link_set(&problem).ids().to_vec();
     let mut rest: Vec<LinkId> = all
         .ids()
         .iter()

@@ -288,6 +288,14 @@ impl Problem {
             .map(|k| NodeId(k as u32))
     }
 
+    /// Looks a candidate link up by its id.
+    pub fn link_id(&self, id: &str) -> Option<LinkId> {
+        self.links
+            .iter()
+            .position(|l| l.id == id)
+            .map(|k| LinkId(k as u32))
+    }
+
     /// The unit's name.
     pub fn node_name(&self, id: NodeId) -> &str {
         &self.nodes[id.index()].id

@@ -176,6 +176,19 @@ pub struct Plan {
     pub timings: Timings,
 }
 
+impl Plan {
+    /// The plan's links as a link set of `problem` (the problem it was
+    /// planned on).
+    pub fn link_set(&self, problem: &Problem) -> LinkSet {
+        LinkSet::new(
+            self.links
+                .iter()
+                .filter_map(|c| problem.link_id(&c.id))
+                .collect(),
+        )
+    }
+}
+
 /// Plans the cheapest link set for which every source component is excited.
 ///
 /// # Complexity

@@ -49,15 +49,7 @@ pub struct Front {
 }
 
 fn set_of(problem: &Problem, ids: &[String]) -> Vec<LinkId> {
-    ids.iter()
-        .filter_map(|id| {
-            problem
-                .links
-                .iter()
-                .position(|l| &l.id == id)
-                .map(|k| LinkId(k as u32))
-        })
-        .collect()
+    ids.iter().filter_map(|id| problem.link_id(id)).collect()
 }
 
 /// Builds the cost–rate front with at most `steps` additions (each costing

@@ -227,18 +227,7 @@ pub fn meet_target(
             if p.status == super::PlanStatus::Infeasible {
                 break;
             }
-            let candidate = LinkSet::new(
-                p.links
-                    .iter()
-                    .filter_map(|c| {
-                        problem
-                            .links
-                            .iter()
-                            .position(|l| l.id == c.id)
-                            .map(|k| LinkId(k as u32))
-                    })
-                    .collect(),
-            );
+            let candidate = p.link_set(problem);
             if !keep(&candidate) {
                 continue;
             }

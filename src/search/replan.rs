@@ -84,15 +84,10 @@ pub fn retire_with(
     let table = table_of(&reduced, &kept_units);
     let plan = plan(&reduced, &table, options);
     let chosen: Vec<LinkId> = plan
-        .links
+        .link_set(&reduced)
+        .ids()
         .iter()
-        .filter_map(|c| {
-            reduced
-                .links
-                .iter()
-                .position(|l| l.id == c.id)
-                .map(|k| origin[k])
-        })
+        .map(|l| origin[l.index()])
         .collect();
     let name = |l: &LinkId| problem.link(*l).id.clone();
     let feasible = plan.status != PlanStatus::Infeasible;
