@@ -124,6 +124,22 @@ fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
         .collect()
 }
 
+/// Packed rank-1 Gramians u uᵀ, one per (window, unit) entry of `present`
+/// (zero when absent), from consecutive p-vectors of `v`.
+pub(super) fn rank_one_grams(p: usize, v: &[f64], present: &[bool]) -> Vec<f64> {
+    let mut g = Vec::with_capacity(present.len() * p * (p + 1) / 2);
+    for (k, &on) in present.iter().enumerate() {
+        let u = &v[k * p..(k + 1) * p];
+        let s = if on { 1.0 } else { 0.0 };
+        for r in 0..p {
+            for c in r..p {
+                g.push(s * u[r] * u[c]);
+            }
+        }
+    }
+    g
+}
+
 pub(super) fn instance_strategy() -> impl Strategy<Value = (usize, usize, Vec<Edge>, Vec<f64>)> {
     (3usize..=7, 2usize..=3).prop_flat_map(|(n, p)| {
         // A two-way spanning path (so most instances are feasible), then
@@ -148,20 +164,7 @@ pub(super) fn instance_strategy() -> impl Strategy<Value = (usize, usize, Vec<Ed
             Just(n),
             Just(p),
             edges,
-            (vectors, present).prop_map(move |(v, on)| {
-                let q = p * (p + 1) / 2;
-                let mut g = Vec::with_capacity(2 * n * q);
-                for k in 0..2 * n {
-                    let u = &v[k * p..(k + 1) * p];
-                    let s = if on[k] { 1.0 } else { 0.0 };
-                    for r in 0..p {
-                        for c in r..p {
-                            g.push(s * u[r] * u[c]);
-                        }
-                    }
-                }
-                g
-            }),
+            (vectors, present).prop_map(move |(v, on)| rank_one_grams(p, &v, &on)),
         )
     })
 }

@@ -2,7 +2,7 @@
 //! force.
 
 use super::fixtures::{Edge, one_root, synthetic};
-use super::planning::holds;
+use super::planning::{holds, rank_one_grams};
 use exmesh::problem::{LinkId, LinkSet, NodeId};
 use exmesh::search::{self, Options, PlanStatus, Survive};
 use exmesh::topology::Topology;
@@ -131,19 +131,7 @@ fn dense_strategy(p_max: usize) -> impl Strategy<Value = (usize, usize, Vec<Edge
             Just(n),
             Just(p),
             links,
-            (vectors, present).prop_map(move |(v, on)| {
-                let mut g = Vec::new();
-                for k in 0..2 * n {
-                    let u = &v[k * p..(k + 1) * p];
-                    let s = if on[k] { 1.0 } else { 0.0 };
-                    for r in 0..p {
-                        for c in r..p {
-                            g.push(s * u[r] * u[c]);
-                        }
-                    }
-                }
-                g
-            }),
+            (vectors, present).prop_map(move |(v, on)| rank_one_grams(p, &v, &on)),
         )
     })
 }
