@@ -449,9 +449,22 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     }
     if p.status == PlanStatus::Infeasible {
         writeln!(out)?;
+        // Survival shortfalls: every candidate together meets the plain
+        // condition, a single failure breaks it.
+        let plain_ok = p.source_components.iter().all(|c| c.excited);
+        let after = match p
+            .robustness
+            .as_ref()
+            .map(|r| r.survive)
+            .filter(|_| plain_ok)
+        {
+            Some(crate::search::Survive::Link) => " after a single link failure",
+            Some(crate::search::Survive::Unit) => " after the loss of a single unit",
+            _ => "",
+        };
         writeln!(
             out,
-            "Even with every candidate link, {} group(s) of units form a source component that is not excited:",
+            "Even with every candidate link, {} group(s) of units form a source component that is not excited{after}:",
             p.shortfalls.len()
         )?;
         for s in &p.shortfalls {
