@@ -177,3 +177,51 @@ fn what_if_json_is_deterministic() {
         assert_eq!(a.stdout, b.stdout, "{args:?}");
     }
 }
+
+/// Losing a (the only unit exciting e1) leaves b and c without e1 whatever
+/// the links: `--survive unit` is infeasible and says which loss breaks it;
+/// `--survive link` also fails (a->c and b->c are one-way, a<->b is the only
+/// link between a and b).
+#[test]
+fn survival_shortfalls_name_the_failure() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &[
+            "plan",
+            "problem.toml",
+            "--survive",
+            "unit",
+            "--out",
+            "p.json",
+        ],
+    );
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    assert!(
+        run.stdout.contains("after the loss of a single unit"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        run.stdout.contains("if unit a is lost") || run.stdout.contains("if unit b is lost"),
+        "{}",
+        run.stdout
+    );
+    assert!(!folder.path("p.json").exists());
+    let run = exmesh(
+        dir,
+        &["plan", "problem.toml", "--survive", "link", "--json"],
+    );
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["status"], "infeasible");
+    assert_eq!(v["robustness"]["survive"], "link");
+    assert!(
+        v["shortfalls"][0]["remedy"]
+            .as_str()
+            .unwrap()
+            .contains("fails")
+    );
+}
