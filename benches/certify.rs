@@ -36,7 +36,7 @@ fn benches(c: &mut Criterion) {
         once.windows,
         once.window,
         once.evaluated_windows,
-        once.power_iterations,
+        once.lanczos_steps,
         once.timing.windows,
         once.timing.horizon
     );

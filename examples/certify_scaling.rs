@@ -21,7 +21,7 @@ fn main() {
         c.window,
         c.windows,
         c.evaluated_windows,
-        c.power_iterations,
+        c.lanczos_steps,
         started.elapsed(),
         c.timing.windows,
         c.timing.horizon

@@ -1,8 +1,9 @@
 //! Certified convergence rate of a link set on the recorded data (DESIGN §4)
 //! and the gain conditions.
 //!
-//! For every certificate window w, `‖Φ(w)‖₂` is found by power iteration on
-//! `ΦᵀΦ` (forward and adjoint propagation, see [`propagate`]). With
+//! For every certificate window w, `‖Φ(w)‖₂` is found by the Lanczos method
+//! (an accelerated power iteration) on `ΦᵀΦ` (forward and adjoint
+//! propagation, see [`propagate`]). With
 //! `ρ = max_w ‖Φ(w)‖₂ < 1` over windows of length `T_c`, the certified rate
 //! is `λ = −ln ρ / T_c`, and `|e(t)| ≤ c·e^{−λ(t−s)}|e(s)|` with the transient
 //! factor `c = M/ρ`, M a bound on `‖Φ‖₂` over partial windows.
@@ -100,11 +101,11 @@ pub struct Certificate {
     pub units: Vec<UnitShare>,
     /// Why there is no rate, when there is none.
     pub reason: Option<String>,
-    /// Power iterations that stopped at the iteration limit.
+    /// Windows whose Lanczos iteration stopped at its restart limit.
     pub unconverged_windows: usize,
     /// Lanczos steps (one forward and one adjoint pass each) over all
     /// windows of every window length tried.
-    pub power_iterations: usize,
+    pub lanczos_steps: usize,
     /// The worst certificate windows, worst first (at most three).
     #[serde(skip)]
     pub worst_windows: Vec<Window>,
@@ -155,7 +156,7 @@ pub fn gain_checks(problem: &Problem, set: &LinkSet) -> Vec<GainCheck> {
     ]
 }
 
-/// Result of the power iteration on one window.
+/// Result of the Lanczos iteration on one window.
 #[derive(Debug, Clone)]
 struct WindowNorm {
     log_norm: f64,
@@ -548,7 +549,7 @@ fn horizon_log_norm(problem: &Problem, system: &ErrorSystem) -> f64 {
 ///
 /// # Complexity
 /// For W windows of S steps, np unknowns and A arcs:
-/// O(W·S·I·m·(np + A·p)) with I power iterations (few, warm-started) and m
+/// O(W·S·I·m·(np + A·p)) with I Lanczos steps (few, warm-started) and m
 /// Taylor terms per step; windows run in parallel.
 pub fn certify(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Certificate {
     let schedule = Schedule::new(problem);
@@ -579,7 +580,7 @@ pub fn certify_with(
         units: Vec::new(),
         reason: None,
         unconverged_windows: 0,
-        power_iterations: 0,
+        lanczos_steps: 0,
         worst_windows: Vec::new(),
         worst_vector: Vec::new(),
         timing: CertTiming::default(),
@@ -651,7 +652,7 @@ pub fn certify_with(
     if progress {
         eprintln!();
     }
-    cert.power_iterations += iterations;
+    cert.lanczos_steps += iterations;
     cert.timing.windows = windows_time;
     cert.timing.horizon = horizon_time;
     if log_h < 0.0 {

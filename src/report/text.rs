@@ -201,7 +201,7 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
     if c.unconverged_windows > 0 {
         writeln!(
             out,
-            "  warning: the power iteration did not settle on {} window(s); their norms are estimates",
+            "  warning: the Lanczos iteration did not settle on {} window(s); their norms are estimates",
             c.unconverged_windows
         )?;
     }
