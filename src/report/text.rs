@@ -15,6 +15,15 @@ fn direction(v: &[f64]) -> String {
     format!("[{}]", parts.join(", "))
 }
 
+/// Ids joined by commas, or "none".
+fn names_or_none(v: &[String]) -> String {
+    if v.is_empty() {
+        "none".to_string()
+    } else {
+        v.join(", ")
+    }
+}
+
 fn yes_no(b: bool) -> &'static str {
     if b { "yes" } else { "no" }
 }
@@ -351,15 +360,8 @@ pub fn stress(s: &crate::search::stress::Stress, out: &mut impl Write) -> io::Re
         s.baseline_rate
             .map_or("none".to_string(), |r| format!("{r:.4e} 1/s"))
     )?;
-    let list = |v: &[String]| {
-        if v.is_empty() {
-            "none".to_string()
-        } else {
-            v.join(", ")
-        }
-    };
-    writeln!(out, "critical links: {}", list(&s.critical_links))?;
-    writeln!(out, "critical units: {}", list(&s.critical_units))?;
+    writeln!(out, "critical links: {}", names_or_none(&s.critical_links))?;
+    writeln!(out, "critical units: {}", names_or_none(&s.critical_units))?;
     writeln!(out)?;
     writeln!(
         out,
@@ -390,20 +392,17 @@ pub fn stress(s: &crate::search::stress::Stress, out: &mut impl Write) -> io::Re
 /// Any I/O error of `out`.
 pub fn retirement(r: &crate::search::replan::Retirement, out: &mut impl Write) -> io::Result<()> {
     writeln!(out, "Retiring {}", r.retired.join(", "))?;
-    let list = |v: &[String]| {
-        if v.is_empty() {
-            "none".to_string()
-        } else {
-            v.join(", ")
-        }
-    };
-    writeln!(out, "  kept:               {}", list(&r.kept))?;
-    writeln!(out, "  added:              {}", list(&r.added))?;
-    writeln!(out, "  no longer needed:   {}", list(&r.no_longer_needed))?;
+    writeln!(out, "  kept:               {}", names_or_none(&r.kept))?;
+    writeln!(out, "  added:              {}", names_or_none(&r.added))?;
+    writeln!(
+        out,
+        "  no longer needed:   {}",
+        names_or_none(&r.no_longer_needed)
+    )?;
     writeln!(
         out,
         "  gone with the units: {}",
-        list(&r.removed_with_units)
+        names_or_none(&r.removed_with_units)
     )?;
     match r.added_cost {
         Some(c) => writeln!(out, "  cost of the additions: {c:.2}")?,
