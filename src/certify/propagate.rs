@@ -32,15 +32,15 @@ struct NetJump {
 /// every unit holds on every interval of the merged grid, and the network
 /// jumps.
 #[derive(Debug, Clone)]
-pub struct Schedule {
+pub struct Schedule<'p> {
     n: usize,
     p: usize,
     grid: Vec<f64>,
     /// `rows[k * n + i]`: log row of unit i held on `[grid[k], grid[k+1])`.
     rows: Vec<u32>,
     jumps: Vec<NetJump>,
-    /// Per unit, its regressor rows (copy of the log, for locality).
-    psi: Vec<Vec<f64>>,
+    /// Per unit, its regressor rows (borrowed from the log).
+    psi: Vec<&'p [f64]>,
 }
 
 /// One step of a propagation.
@@ -60,12 +60,12 @@ pub enum Step {
     },
 }
 
-impl Schedule {
+impl<'p> Schedule<'p> {
     /// Builds the schedule of a problem.
     ///
     /// # Complexity
     /// O(n·G + R) for G grid points and R log rows.
-    pub fn new(problem: &Problem) -> Self {
+    pub fn new(problem: &'p Problem) -> Self {
         let n = problem.n();
         let p = problem.settings.parameters;
         let grid = problem.domain.grid.clone();
@@ -115,7 +115,7 @@ impl Schedule {
             }
             at = end;
         }
-        let psi = problem.nodes.iter().map(|v| v.log.psi.clone()).collect();
+        let psi = problem.nodes.iter().map(|v| v.log.psi.as_slice()).collect();
         Schedule {
             n,
             p,
@@ -186,7 +186,7 @@ impl Schedule {
 /// in-degree Laplacian and the gains.
 #[derive(Debug, Clone)]
 pub struct ErrorSystem<'a> {
-    schedule: &'a Schedule,
+    schedule: &'a Schedule<'a>,
     gains: Gains,
     /// Arcs `(from, to, weight)`: `to` listens to `from`.
     arcs: Vec<(u32, u32, f64)>,
@@ -199,8 +199,10 @@ pub struct ErrorSystem<'a> {
     talks: Vec<(u32, f64)>,
     /// Weighted in-degree of each unit.
     in_degree: Vec<f64>,
-    /// Weighted out-degree of each unit.
-    out_degree: Vec<f64>,
+    /// Bound on the logarithmic norm μ₂(A) of every flow generator:
+    /// κ·max(0, −λ_min(sym L)), with λ_min(sym L) ≥ min_i (d_in − d_out)/2 by
+    /// Gershgorin.
+    flow_growth: f64,
     /// Upper bound on ‖A‖₂ on each grid interval.
     generator_norms: Vec<f64>,
     /// Per grid interval, a shift σ ≥ 0 and a bound on ‖A + σI‖₂ (smaller
@@ -228,7 +230,7 @@ pub struct Work {
 
 impl<'a> ErrorSystem<'a> {
     /// The error system for the arcs `(from, to, weight)`.
-    pub fn new(schedule: &'a Schedule, gains: Gains, arcs: Vec<(u32, u32, f64)>) -> Self {
+    pub fn new(schedule: &'a Schedule<'a>, gains: Gains, arcs: Vec<(u32, u32, f64)>) -> Self {
         let n = schedule.n;
         let mut in_degree = vec![0.0; n];
         let mut out_degree = vec![0.0; n];
@@ -282,16 +284,21 @@ impl<'a> ErrorSystem<'a> {
         };
         let (listen_start, listens) = csr(|a| (a.1, a.0));
         let (talk_start, talks) = csr(|a| (a.0, a.1));
+        let flow_growth = -gains.flow_coupling
+            * in_degree
+                .iter()
+                .zip(&out_degree)
+                .fold(0.0f64, |m, (a, b)| m.min((a - b) / 2.0));
         ErrorSystem {
             schedule,
             gains,
+            flow_growth,
             listen_start,
             listens,
             talk_start,
             talks,
             arcs,
             in_degree,
-            out_degree,
             generator_norms,
             shifted,
         }
@@ -299,7 +306,7 @@ impl<'a> ErrorSystem<'a> {
 
     /// The error system of a problem's link set.
     pub fn of_links(
-        schedule: &'a Schedule,
+        schedule: &'a Schedule<'a>,
         problem: &Problem,
         set: &crate::problem::LinkSet,
     ) -> Self {
@@ -312,7 +319,7 @@ impl<'a> ErrorSystem<'a> {
     }
 
     /// The schedule.
-    pub fn schedule(&self) -> &Schedule {
+    pub fn schedule(&self) -> &Schedule<'a> {
         self.schedule
     }
 
@@ -381,7 +388,7 @@ impl<'a> ErrorSystem<'a> {
         for (i, yi) in y.chunks_exact_mut(P).enumerate() {
             let xi = block(x, i);
             let r = rows[i] as usize;
-            let psi = block(&self.schedule.psi[i], r);
+            let psi = block(self.schedule.psi[i], r);
             let mut dot = 0.0;
             for c in 0..P {
                 dot += psi[c] * xi[c];
@@ -592,15 +599,7 @@ impl<'a> ErrorSystem<'a> {
     /// 2-norm of the matrix of block norms, bounded by `√(‖·‖₁‖·‖_∞)`.
     pub fn step_bound(&self, step: &Step) -> f64 {
         match *step {
-            Step::Flow { h, .. } => {
-                // λ_min(sym L) ≥ min_i (d_in − (d_in + d_out)/2) by Gershgorin.
-                let low = self
-                    .in_degree
-                    .iter()
-                    .zip(&self.out_degree)
-                    .fold(0.0f64, |m, (a, b)| m.min((a - b) / 2.0));
-                (h * self.gains.flow_coupling * (-low)).exp()
-            }
+            Step::Flow { h, .. } => (h * self.flow_growth).exp(),
             Step::Jump { q } => {
                 let delta = self.gains.jump_coupling;
                 let diag = self.jump_diagonal_norms(q as usize);
