@@ -1,7 +1,9 @@
 //! The real binary on files: verdicts, exit codes, JSON keys, determinism,
 //! and every kind of bad input (exit 2, file and line named, no panic).
 
-use super::fixtures::{Folder, SMALL_PROBLEM, constant_log, exmesh, log_text, small_problem};
+use super::fixtures::{
+    Folder, SMALL_PROBLEM, constant_log, exmesh, log_text, small_problem, small_problem_with_plan,
+};
 
 fn line_of(text: &str, needle: &str) -> usize {
     text.lines()
@@ -420,17 +422,10 @@ fn both_demos_run() {
     }
 }
 
-/// A plan file for the small problem: a<->b and b->c.
-pub(super) const SMALL_PLAN: &str = r#"{"links": [
-  {"from": "a", "to": "b", "two_way": true},
-  {"from": "b", "to": "c", "two_way": false}
-]}"#;
-
 #[test]
 fn check_reports_the_certificate_keys() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let run = exmesh(
         folder.dir.path(),
         &["check", "problem.toml", "--plan", "plan.json", "--json"],
@@ -475,8 +470,7 @@ fn check_reports_the_certificate_keys() {
 #[test]
 fn simulate_writes_csv_and_svg() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let dir = folder.dir.path();
     let run = exmesh(
         dir,

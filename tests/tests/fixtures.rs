@@ -78,6 +78,18 @@ pub fn small_problem(folder: &Folder) -> PathBuf {
     folder.write("problem.toml", SMALL_PROBLEM)
 }
 
+/// The small problem with `plan.json` holding the links a<->b and b->c.
+pub fn small_problem_with_plan(folder: &Folder) -> PathBuf {
+    folder.write("plan.json", SMALL_PLAN);
+    small_problem(folder)
+}
+
+/// A plan file for the small problem: a<->b and b->c.
+pub const SMALL_PLAN: &str = r#"{"links": [
+  {"from": "a", "to": "b", "two_way": true},
+  {"from": "b", "to": "c", "two_way": false}
+]}"#;
+
 pub const SMALL_PROBLEM: &str = r#"[network]
 name = "three units"
 parameters = 2

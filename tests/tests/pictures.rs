@@ -2,8 +2,7 @@
 //! parsers (roxmltree for XML, html5ever through scraper for HTML5), hold
 //! every chosen link and unit, and are byte-identical across runs.
 
-use super::cli::SMALL_PLAN;
-use super::fixtures::{Folder, exmesh, small_problem};
+use super::fixtures::{Folder, exmesh, small_problem_with_plan};
 
 fn pictures(folder: &Folder) -> (String, String) {
     let run = exmesh(
@@ -30,8 +29,7 @@ fn pictures(folder: &Folder) -> (String, String) {
 #[test]
 fn map_and_dot_parse_and_hold_every_link() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let (svg, dot) = pictures(&folder);
     // The SVG is well-formed XML in the SVG namespace, with one circle per
     // unit label and the legend and scale note.
@@ -113,8 +111,7 @@ fn map_of_a_demo_has_a_scale_bar() {
 #[test]
 fn report_is_self_contained_html5() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let dir = folder.dir.path();
     let args = [
         "report",

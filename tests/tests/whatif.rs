@@ -42,8 +42,7 @@ proptest! {
     }
 }
 
-use super::cli::SMALL_PLAN;
-use super::fixtures::{Folder, exmesh, small_problem};
+use super::fixtures::{Folder, exmesh, small_problem, small_problem_with_plan};
 
 /// The small problem (a excites e1, b excites e2, c nothing; plan a<->b,
 /// b->c): reasoning by hand from the condition (common practice) gives the
@@ -53,8 +52,7 @@ use super::fixtures::{Folder, exmesh, small_problem};
 #[test]
 fn stress_names_the_critical_links_and_units() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let run = exmesh(
         folder.dir.path(),
         &["stress", "problem.toml", "--plan", "plan.json", "--json"],
@@ -108,8 +106,7 @@ fn budget_front_is_monotone_and_starts_at_the_optimum() {
 #[test]
 fn retire_reports_the_diff() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let dir = folder.dir.path();
     let run = exmesh(
         dir,
@@ -147,8 +144,7 @@ fn retire_reports_the_diff() {
 #[test]
 fn what_if_json_is_deterministic() {
     let folder = Folder::new();
-    small_problem(&folder);
-    folder.write("plan.json", SMALL_PLAN);
+    small_problem_with_plan(&folder);
     let text = super::fixtures::SMALL_PROBLEM.replace(
         "min_excitation = 0.5\n",
         "min_excitation = 0.5\ntarget_rate = 0.3\n",
