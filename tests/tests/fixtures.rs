@@ -84,6 +84,15 @@ pub fn small_problem_with_plan(folder: &Folder) -> PathBuf {
     small_problem(folder)
 }
 
+/// The small problem's text with a required convergence rate.
+pub fn small_problem_with_target(rate: &str) -> String {
+    SMALL_PROBLEM.replacen(
+        "min_excitation = 0.5\n",
+        &format!("min_excitation = 0.5\ntarget_rate = {rate}\n"),
+        1,
+    )
+}
+
 /// A plan file for the small problem: a<->b and b->c.
 pub const SMALL_PLAN: &str = r#"{"links": [
   {"from": "a", "to": "b", "two_way": true},

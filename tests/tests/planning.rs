@@ -408,10 +408,7 @@ fn rate_targets_met_or_explained() {
     let folder = Folder::new();
     small_problem(&folder);
     let dir = folder.dir.path();
-    let text = super::fixtures::SMALL_PROBLEM.replace(
-        "min_excitation = 0.5\n",
-        "min_excitation = 0.5\ntarget_rate = 0.01\n",
-    );
+    let text = super::fixtures::small_problem_with_target("0.01");
     folder.write("problem.toml", &text);
     let run = exmesh(
         dir,
@@ -429,10 +426,7 @@ fn rate_targets_met_or_explained() {
     );
     let c: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
     assert_eq!(c["certificate"]["rate"], v["rate"]["certified"]);
-    let text = super::fixtures::SMALL_PROBLEM.replace(
-        "min_excitation = 0.5\n",
-        "min_excitation = 0.5\ntarget_rate = 1000.0\n",
-    );
+    let text = super::fixtures::small_problem_with_target("1000.0");
     folder.write("problem.toml", &text);
     std::fs::remove_file(folder.path("plan.json")).unwrap();
     let run = exmesh(

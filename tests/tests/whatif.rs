@@ -145,10 +145,7 @@ fn retire_reports_the_diff() {
 fn what_if_json_is_deterministic() {
     let folder = Folder::new();
     small_problem_with_plan(&folder);
-    let text = super::fixtures::SMALL_PROBLEM.replace(
-        "min_excitation = 0.5\n",
-        "min_excitation = 0.5\ntarget_rate = 0.3\n",
-    );
+    let text = super::fixtures::small_problem_with_target("0.3");
     folder.write("target.toml", &text);
     let dir = folder.dir.path();
     for args in [
