@@ -50,6 +50,10 @@ pub(crate) struct Oracle<'a> {
 /// Largest excited set remembered for containment tests.
 const SMALL: usize = 4;
 
+/// Most parts in a connected piece that [`Instance::packing`] counts
+/// exactly (the recursion costs 3^k steps).
+const EXACT_PARTS: usize = 10;
+
 impl<'a> Oracle<'a> {
     pub fn new(table: &'a ExcitationTable) -> Self {
         let (n, w, p) = (table.n(), table.windows().len(), table.p());
@@ -149,6 +153,71 @@ impl<'a> Oracle<'a> {
         let singles: Vec<&[u32]> = set.chunks(1).collect();
         self.parts_bound(&singles, cap)
     }
+
+    /// The most disjoint excited unions of parts, each connected through
+    /// `adj` (bit masks of neighbouring parts): exact, by the oracle on
+    /// every union and a packing recursion over subsets, for at most 16
+    /// parts. A union containing an excited one is excited (monotone).
+    fn exact_packing(&self, parts: &[&[u32]], adj: &[u32]) -> usize {
+        let k = parts.len();
+        let full = (1usize << k) - 1;
+        let mut excited = vec![false; full + 1];
+        let mut usable = vec![false; full + 1];
+        let mut union: Vec<u32> = Vec::new();
+        for m in 1..=full {
+            excited[m] =
+                if (0..k).any(|b| m & (1 << b) != 0 && m != 1 << b && excited[m ^ (1 << b)]) {
+                    true
+                } else {
+                    union.clear();
+                    (0..k)
+                        .filter(|b| m & (1 << b) != 0)
+                        .for_each(|b| union.extend_from_slice(parts[b]));
+                    union.sort_unstable();
+                    self.excited(&union)
+                };
+            usable[m] = excited[m] && connected(m as u32, adj);
+        }
+        // best[m]: most disjoint usable unions inside m. The part with the
+        // lowest index is either in none or in one union with it.
+        let mut best = vec![0u8; full + 1];
+        for m in 1..=full {
+            let low = m & m.wrapping_neg();
+            let rest = m ^ low;
+            let mut b = best[rest];
+            let mut sub = rest;
+            loop {
+                let t = sub | low;
+                if usable[t] {
+                    b = b.max(1 + best[m ^ t]);
+                }
+                if sub == 0 {
+                    break;
+                }
+                sub = (sub - 1) & rest;
+            }
+            best[m] = b;
+        }
+        best[full] as usize
+    }
+}
+
+/// Is the part set `m` connected through the neighbour masks `adj`?
+fn connected(m: u32, adj: &[u32]) -> bool {
+    let mut reached = m & m.wrapping_neg();
+    loop {
+        let mut next = reached;
+        let mut r = reached;
+        while r != 0 {
+            let b = r.trailing_zeros() as usize;
+            next |= adj[b] & m;
+            r &= r - 1;
+        }
+        if next == reached {
+            return reached == m;
+        }
+        reached = next;
+    }
 }
 
 /// The planning instance.
@@ -228,6 +297,79 @@ impl<'a> Instance<'a> {
             integral_costs,
             survive: Survive::Nothing,
         }
+    }
+
+    /// An upper bound on ν(parts): the most disjoint excited unions of
+    /// parts that are connected through candidate links between the parts
+    /// (only such unions can be source-closed pieces of a plan, see
+    /// `cuts`). The parts split into the connected pieces of that quotient
+    /// graph; a piece of at most `EXACT_PARTS` parts is counted exactly,
+    /// a larger one by the rank bound.
+    pub fn packing(&self, parts: &[&[u32]]) -> usize {
+        let k = parts.len();
+        let mut part_of: HashMap<u32, usize> = HashMap::new();
+        for (j, part) in parts.iter().enumerate() {
+            for &v in *part {
+                part_of.insert(v, j);
+            }
+        }
+        let mut nbrs: Vec<Vec<usize>> = vec![Vec::new(); k];
+        for (j, part) in parts.iter().enumerate() {
+            for &b in *part {
+                for &l in &self.heads[b as usize] {
+                    for &(from, to) in &self.links[l].arcs {
+                        if to == b
+                            && let Some(&i) = part_of.get(&from)
+                            && i != j
+                        {
+                            nbrs[j].push(i);
+                            nbrs[i].push(j);
+                        }
+                    }
+                }
+            }
+        }
+        // Connected pieces of the quotient graph.
+        let mut piece = vec![usize::MAX; k];
+        let mut total = 0;
+        for start in 0..k {
+            if piece[start] != usize::MAX {
+                continue;
+            }
+            let mut members = vec![start];
+            piece[start] = start;
+            let mut i = 0;
+            while i < members.len() {
+                let j = members[i];
+                i += 1;
+                for &x in &nbrs[j] {
+                    if piece[x] == usize::MAX {
+                        piece[x] = start;
+                        members.push(x);
+                    }
+                }
+            }
+            members.sort_unstable();
+            let sub: Vec<&[u32]> = members.iter().map(|&j| parts[j]).collect();
+            let bound = self.oracle.parts_bound(&sub, sub.len());
+            total += if bound == 0 || members.len() > EXACT_PARTS {
+                bound
+            } else if members.len() == 1 {
+                usize::from(self.oracle.excited(sub[0]))
+            } else {
+                let adj: Vec<u32> = members
+                    .iter()
+                    .map(|&j| {
+                        nbrs[j]
+                            .iter()
+                            .map(|x| 1u32 << members.binary_search(x).expect("same piece"))
+                            .fold(0, |a, b| a | b)
+                    })
+                    .collect();
+                self.oracle.exact_packing(&sub, &adj).min(bound)
+            };
+        }
+        total
     }
 
     /// For each unit, the units it shares a candidate link with (sorted).
