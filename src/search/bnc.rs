@@ -1,10 +1,12 @@
 //! Branch and cut on the covering model, with microlp's incremental LP
 //! (dual simplex after adding rows or fixing variables).
 
-use super::cuts::{Pool, Row, enumerate_rows, grow_separate, grown_rows, separate};
+use super::cuts::{
+    Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
+};
 use super::heuristics::{exchange, repair};
 use super::instance::Instance;
-use microlp::{ComparisonOp, OptimizationDirection, Solution, SolveOutcome, Variable};
+use microlp::{ComparisonOp, LinearExpr, OptimizationDirection, Solution, SolveOutcome, Variable};
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
 use std::io::IsTerminal;
@@ -32,6 +34,10 @@ pub(crate) struct SearchResult {
 }
 
 const THRESHOLDS: [f64; 4] = [0.999, 0.5, 0.2, 1e-6];
+/// Largest support-connected sets whose rows are checked at the root and
+/// at other nodes (see `cuts::support_separate`).
+const ROOT_SUPPORT: usize = 9;
+const NODE_SUPPORT: usize = 4;
 /// Separation rounds per node below the root (fractional points).
 const NODE_ROUNDS: u32 = 8;
 const INT_TOL: f64 = 1e-6;
@@ -75,6 +81,38 @@ impl Lp {
                 Some(self)
             }
             _ => None,
+        }
+    }
+
+    /// Adds pool rows in one batch (one refactorisation and one dual
+    /// simplex pass); `None` when the LP became infeasible.
+    fn add_all(mut self, rows: &[(usize, &Row)]) -> Option<Self> {
+        let fallback = self.duplicate();
+        let batch: Vec<(LinearExpr, ComparisonOp, f64)> = rows
+            .iter()
+            .map(|&(index, row)| {
+                if self.has.len() <= index {
+                    self.has.resize(index + 1, false);
+                }
+                self.has[index] = true;
+                let expr: LinearExpr = row
+                    .links
+                    .iter()
+                    .map(|&k| (self.vars[k as usize], 1.0))
+                    .collect();
+                (expr, ComparisonOp::Ge, row.rhs as f64)
+            })
+            .collect();
+        match self.sol.add_constraints(batch) {
+            Ok(SolveOutcome::Solution(sol)) => {
+                self.sol = sol;
+                Some(self)
+            }
+            Err(microlp::Error::Infeasible) => None,
+            // A numerical failure of the batch: add the rows one at a time.
+            _ => rows
+                .iter()
+                .try_fold(fallback, |lp, &(index, row)| lp.add(index, row)),
         }
     }
 
@@ -349,6 +387,10 @@ impl<'a, 'b> Search<'a, 'b> {
             if rows.is_empty() && deep {
                 grow_separate(self.inst, y, 8, &mut rows);
             }
+            if rows.is_empty() {
+                let size = if deep { ROOT_SUPPORT } else { NODE_SUPPORT };
+                support_separate(self.inst, y, size, &mut rows);
+            }
             let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
             if integral {
                 let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
@@ -397,11 +439,9 @@ impl<'a, 'b> Search<'a, 'b> {
                 return Some((lp, y));
             }
             let t = Instant::now();
-            for i in rows {
-                let row = self.pool.rows[i].clone();
-                lp = lp.add(i, &row)?;
-                self.stats.lp_solves += 1;
-            }
+            let batch: Vec<(usize, &Row)> = rows.iter().map(|&i| (i, &self.pool.rows[i])).collect();
+            lp = lp.add_all(&batch)?;
+            self.stats.lp_solves += 1;
             self.stats.lp_time += t.elapsed();
             rounds += 1;
             if rounds % 5 == 0 {
@@ -487,6 +527,8 @@ pub(crate) struct Limits {
     pub nodes: Option<u64>,
     /// Run neighbourhood search on the incumbent after the root.
     pub neighbourhood: bool,
+    /// When the root's cutting stops (its LP value is still a bound).
+    pub root_deadline: Option<Instant>,
 }
 
 pub(crate) fn search(
@@ -506,7 +548,11 @@ pub(crate) fn search(
     s.stats.lp_time += t.elapsed();
 
     let mut lower = f64::NEG_INFINITY;
-    let Some((root, y)) = s.cut_loop(root, u32::MAX, true) else {
+    // The root's cutting may stop early to leave time for what follows.
+    s.deadline = limits.root_deadline.or(deadline);
+    let root_result = s.cut_loop(root, u32::MAX, true);
+    s.deadline = deadline;
+    let Some((root, y)) = root_result else {
         // Root pruned: the incumbent is optimal.
         s.stats.root_bound = s.last_objective;
         let lb = s.best_cost;

@@ -336,6 +336,71 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
     }
 }
 
+/// Every set of up to `max_size` units that is connected through links
+/// carrying LP weight: its singleton-partition row and (when it is not
+/// excited) its cut row, when violated by `y`.
+pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
+    let n = inst.n;
+    let weight = |k: usize| if inst.links[k].installed { 1.0 } else { y[k] };
+    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
+    for (k, l) in inst.links.iter().enumerate() {
+        if weight(k) > 1e-6 {
+            for &(a, b) in &l.arcs {
+                nbrs[a as usize].push(b);
+                nbrs[b as usize].push(a);
+            }
+        }
+    }
+    for list in &mut nbrs {
+        list.sort_unstable();
+        list.dedup();
+    }
+    let mut part_of = Vec::new();
+    let mut inside = vec![false; n];
+    let mut counted: Vec<usize> = Vec::new();
+    each_connected_set(&nbrs, max_size, |set| {
+        set.iter().for_each(|&v| inside[v as usize] = true);
+        // y on links with a head in the set, and on those entering it.
+        counted.clear();
+        let mut entering = 0.0;
+        for &b in set {
+            for &k in &inst.heads[b as usize] {
+                if !counted.contains(&k) {
+                    counted.push(k);
+                    if inst.links[k]
+                        .arcs
+                        .iter()
+                        .any(|&(f, t)| inside[t as usize] && !inside[f as usize])
+                    {
+                        entering += weight(k);
+                    }
+                }
+            }
+        }
+        let activity: f64 = counted.iter().map(|&k| weight(k)).sum();
+        set.iter().for_each(|&v| inside[v as usize] = false);
+        if set.len() as f64 - activity > 1e-6 {
+            let singles: Vec<&[u32]> = set.chunks(1).collect();
+            let nu = if inst.oracle.excited(set) {
+                inst.packing(&singles)
+            } else {
+                0
+            };
+            if (set.len() - nu) as f64 - activity > 1e-6
+                && let Some(r) = singleton_row(inst, set, &mut part_of)
+            {
+                out.push(r);
+            }
+        }
+        if entering < 1.0 - 1e-6
+            && !inst.oracle.excited(set)
+            && let Some(r) = cover_row(inst, set, &mut part_of)
+        {
+            out.push(r);
+        }
+    });
+}
+
 fn sorted(set: &[u32]) -> Vec<u32> {
     let mut s = set.to_vec();
     s.sort_unstable();
@@ -419,6 +484,83 @@ pub(crate) fn enumerate_rows(inst: &Instance, max_size: usize, out: &mut Vec<Row
         }
         true
     });
+}
+
+/// Visits every connected set of up to `max_size` units exactly once (as a
+/// sorted slice), without hashing: Wernicke's ESU enumeration ("Efficient
+/// detection of network motifs", IEEE/ACM Trans. Comput. Biol.
+/// Bioinform. 3(4), 2006), which grows a set only by units above its root
+/// that are exclusive neighbours of the unit just added.
+pub(crate) fn each_connected_set(
+    nbrs: &[Vec<u32>],
+    max_size: usize,
+    mut visit: impl FnMut(&[u32]),
+) {
+    struct Walk<'a, F> {
+        nbrs: &'a [Vec<u32>],
+        max_size: usize,
+        /// Units in the set or adjacent to it (counted per set unit).
+        near: Vec<u32>,
+        set: Vec<u32>,
+        sorted: Vec<u32>,
+        visit: F,
+    }
+    impl<F: FnMut(&[u32])> Walk<'_, F> {
+        fn extend(&mut self, mut ext: Vec<u32>, root: u32) {
+            self.sorted.clear();
+            self.sorted.extend_from_slice(&self.set);
+            self.sorted.sort_unstable();
+            (self.visit)(&self.sorted);
+            if self.set.len() == self.max_size {
+                return;
+            }
+            while let Some(w) = ext.pop() {
+                // Exclusive neighbours of w: above the root, not in the set
+                // and not adjacent to it.
+                let mut next = ext.clone();
+                for &u in &self.nbrs[w as usize] {
+                    if u > root && self.near[u as usize] == 0 && !next.contains(&u) {
+                        next.push(u);
+                    }
+                }
+                self.enter(w);
+                self.extend(next, root);
+                self.leave(w);
+            }
+        }
+        fn enter(&mut self, w: u32) {
+            self.set.push(w);
+            self.near[w as usize] += 1;
+            for &u in &self.nbrs[w as usize] {
+                self.near[u as usize] += 1;
+            }
+        }
+        fn leave(&mut self, w: u32) {
+            self.set.pop();
+            self.near[w as usize] -= 1;
+            for &u in &self.nbrs[w as usize] {
+                self.near[u as usize] -= 1;
+            }
+        }
+    }
+    let mut walk = Walk {
+        nbrs,
+        max_size,
+        near: vec![0; nbrs.len()],
+        set: Vec::with_capacity(max_size),
+        sorted: Vec::with_capacity(max_size),
+        visit: &mut visit,
+    };
+    for v in 0..nbrs.len() as u32 {
+        let ext: Vec<u32> = nbrs[v as usize]
+            .iter()
+            .copied()
+            .filter(|&u| u > v)
+            .collect();
+        walk.enter(v);
+        walk.extend(ext, v);
+        walk.leave(v);
+    }
 }
 
 /// Visits every connected set (sorted) of up to `max_size` units once, in
@@ -532,5 +674,34 @@ mod tests {
             }
         }
         assert!(checked > 100, "only {checked} checks ran");
+    }
+
+    /// ESU enumeration against the breadth-first enumeration with a hash
+    /// set (two independent ways to list connected sets).
+    #[test]
+    fn esu_lists_each_connected_set_once() {
+        let mut rng = Rng(3);
+        for _ in 0..20 {
+            let n = 4 + rng.below(6);
+            let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
+            for _ in 0..2 * n {
+                let (a, b) = (rng.below(n) as u32, rng.below(n) as u32);
+                if a != b && !nbrs[a as usize].contains(&b) {
+                    nbrs[a as usize].push(b);
+                    nbrs[b as usize].push(a);
+                }
+            }
+            nbrs.iter_mut().for_each(|l| l.sort_unstable());
+            let mut want: Vec<Vec<u32>> = Vec::new();
+            connected_sets(&nbrs, 5, |s| {
+                want.push(s.to_vec());
+                true
+            });
+            let mut got: Vec<Vec<u32>> = Vec::new();
+            each_connected_set(&nbrs, 5, |s| got.push(s.to_vec()));
+            want.sort();
+            got.sort();
+            assert_eq!(got, want);
+        }
     }
 }

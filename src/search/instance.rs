@@ -35,6 +35,11 @@ pub(crate) struct Oracle<'a> {
     table: &'a ExcitationTable,
     /// r_i(w): eigenvalues of G_i^w at least μ_req/n, index `i * W + w`.
     ranks: Vec<u8>,
+    /// max over windows of r_i(w): a set whose maxima sum below p is
+    /// surely not excited.
+    top_rank: Vec<u8>,
+    /// Per unit, the windows where r_i(w) is below its maximum.
+    dips: Vec<Vec<u32>>,
     windows: usize,
     p: usize,
     cache: RefCell<HashMap<Vec<u32>, bool>>,
@@ -69,9 +74,21 @@ impl<'a> Oracle<'a> {
                 })
             })
             .collect();
+        let top_rank: Vec<u8> = (0..n)
+            .map(|i| ranks[i * w..(i + 1) * w].iter().copied().max().unwrap_or(0))
+            .collect();
+        let dips: Vec<Vec<u32>> = (0..n)
+            .map(|i| {
+                (0..w as u32)
+                    .filter(|&k| ranks[i * w + k as usize] < top_rank[i])
+                    .collect()
+            })
+            .collect();
         Oracle {
             table,
             ranks,
+            top_rank,
+            dips,
             windows: w,
             p,
             cache: RefCell::new(HashMap::new()),
@@ -88,6 +105,14 @@ impl<'a> Oracle<'a> {
         }
         let mut stats = self.stats.borrow_mut();
         stats.queries += 1;
+        if set
+            .iter()
+            .map(|&i| self.top_rank[i as usize] as usize)
+            .sum::<usize>()
+            < self.p
+        {
+            return false;
+        }
         if let Some(&v) = self.cache.borrow().get(set) {
             return v;
         }
@@ -130,7 +155,28 @@ impl<'a> Oracle<'a> {
     /// parts (Weyl: a group whose ranks sum below p has λ_min below μ_req).
     pub fn parts_bound(&self, parts: &[&[u32]], cap: usize) -> usize {
         let mut best = cap.min(parts.len());
-        for w in 0..self.windows {
+        // Windows where every member is at its top rank give the largest
+        // value; only the members' dips can lower it.
+        let top: usize = parts
+            .iter()
+            .map(|part| {
+                part.iter()
+                    .map(|&i| self.top_rank[i as usize] as usize)
+                    .sum::<usize>()
+                    .min(self.p)
+            })
+            .sum();
+        best = best.min(top / self.p);
+        let mut windows: Vec<u32> = parts
+            .iter()
+            .flat_map(|part| {
+                part.iter()
+                    .flat_map(|&i| self.dips[i as usize].iter().copied())
+            })
+            .collect();
+        windows.sort_unstable();
+        windows.dedup();
+        for w in windows.into_iter().map(|w| w as usize) {
             let total: usize = parts
                 .iter()
                 .map(|part| {
@@ -178,23 +224,29 @@ impl<'a> Oracle<'a> {
                 };
             usable[m] = excited[m] && connected(m as u32, adj);
         }
-        // best[m]: most disjoint usable unions inside m. The part with the
+        // A packing can use minimal usable unions only (a usable union
+        // holds one). contains[m]: some usable union lies inside m.
+        let mut contains = usable.clone();
+        for b in 0..k {
+            for m in 1..=full {
+                if m & (1 << b) != 0 && contains[m ^ (1 << b)] {
+                    contains[m] = true;
+                }
+            }
+        }
+        let minimal: Vec<usize> = (1..=full)
+            .filter(|&m| usable[m] && (0..k).all(|b| m & (1 << b) == 0 || !contains[m ^ (1 << b)]))
+            .collect();
+        // best[m]: most disjoint minimal unions inside m. The part with the
         // lowest index is either in none or in one union with it.
         let mut best = vec![0u8; full + 1];
         for m in 1..=full {
             let low = m & m.wrapping_neg();
-            let rest = m ^ low;
-            let mut b = best[rest];
-            let mut sub = rest;
-            loop {
-                let t = sub | low;
-                if usable[t] {
+            let mut b = best[m ^ low];
+            for &t in &minimal {
+                if t & low != 0 && t & !m == 0 {
                     b = b.max(1 + best[m ^ t]);
                 }
-                if sub == 0 {
-                    break;
-                }
-                sub = (sub - 1) & rest;
             }
             best[m] = b;
         }
@@ -232,6 +284,9 @@ pub(crate) struct Instance<'a> {
     pub integral_costs: bool,
     /// Which single failure the plan must survive.
     pub survive: Survive,
+    /// ν of partitions already counted, keyed by the parts joined with
+    /// `u32::MAX` separators.
+    packings: RefCell<HashMap<Vec<u32>, usize>>,
 }
 
 /// Which single failure a plan must survive (DESIGN §3, robust variants).
@@ -296,6 +351,7 @@ impl<'a> Instance<'a> {
             oracle,
             integral_costs,
             survive: Survive::Nothing,
+            packings: RefCell::new(HashMap::new()),
         }
     }
 
@@ -306,6 +362,20 @@ impl<'a> Instance<'a> {
     /// graph; a piece of at most `EXACT_PARTS` parts is counted exactly,
     /// a larger one by the rank bound.
     pub fn packing(&self, parts: &[&[u32]]) -> usize {
+        let mut key: Vec<u32> = Vec::with_capacity(parts.iter().map(|p| p.len() + 1).sum());
+        for part in parts {
+            key.extend_from_slice(part);
+            key.push(u32::MAX);
+        }
+        if let Some(&nu) = self.packings.borrow().get(&key) {
+            return nu;
+        }
+        let nu = self.count_packing(parts);
+        self.packings.borrow_mut().insert(key, nu);
+        nu
+    }
+
+    fn count_packing(&self, parts: &[&[u32]]) -> usize {
         let k = parts.len();
         let mut part_of: HashMap<u32, usize> = HashMap::new();
         for (j, part) in parts.iter().enumerate() {
@@ -356,6 +426,12 @@ impl<'a> Instance<'a> {
                 bound
             } else if members.len() == 1 {
                 usize::from(self.oracle.excited(sub[0]))
+            } else if bound == 1 {
+                // The piece is connected: one union exactly when it is
+                // excited as a whole.
+                let mut union: Vec<u32> = sub.iter().flat_map(|p| p.iter().copied()).collect();
+                union.sort_unstable();
+                usize::from(self.oracle.excited(&union))
             } else {
                 let adj: Vec<u32> = members
                     .iter()

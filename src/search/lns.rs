@@ -127,6 +127,7 @@ fn reoptimise(
         deadline,
         nodes: Some(REGION_NODES),
         neighbourhood: false,
+        root_deadline: None,
     };
     let result = search(&sub, start, limits, false);
     if sub.cost(&result.best) >= before - 1e-9 {

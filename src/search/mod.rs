@@ -225,6 +225,10 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     result
 }
 
+/// Share of the time limit the root's cutting may use on networks that
+/// get neighbourhood search afterwards.
+const ROOT_SHARE: f64 = 0.45;
+
 fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> Plan {
     let started = Instant::now();
     let deadline = options.time_limit.map(|d| started + d);
@@ -274,10 +278,17 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
     let greedy = heuristics::exchange(&inst, &greedy, deadline);
     let greedy_cost = inst.cost(&greedy);
     let greedy_time = started.elapsed();
+    let neighbourhood = inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing;
     let limits = bnc::Limits {
         deadline,
         nodes: options.node_limit,
-        neighbourhood: inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing,
+        neighbourhood,
+        // Root cutting gets at most ROOT_SHARE of the time limit when
+        // neighbourhood search follows.
+        root_deadline: options
+            .time_limit
+            .filter(|_| neighbourhood)
+            .map(|d| started + d.mul_f64(ROOT_SHARE)),
     };
     let result = bnc::search(&inst, greedy, limits, options.progress);
     let search_time = started.elapsed() - greedy_time;

@@ -1,0 +1,2 @@
+/// TSP (Travelling Salesman Problem) solver.
+pub mod tsp;
