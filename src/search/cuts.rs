@@ -336,18 +336,58 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
     }
 }
 
-/// Every set of up to `max_size` units that is connected through links
-/// carrying LP weight: its singleton-partition row and (when it is not
-/// excited) its cut row, when violated by `y`.
+/// Rows of sets connected through links carrying LP weight. Links at 1
+/// first join their ends into groups (a row over groups is at least as
+/// violated as the row over their units, and its packing number can only
+/// be smaller); then every connected set of up to `max_size` groups gives
+/// its partition row (the groups as parts) and, when its units are not
+/// excited, its cut row, when `y` violates them.
 pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
     let n = inst.n;
     let weight = |k: usize| if inst.links[k].installed { 1.0 } else { y[k] };
-    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); n];
+    // Groups: components of the links at 1.
+    let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
+    for (k, l) in inst.links.iter().enumerate() {
+        if weight(k) > 1.0 - 1e-6 {
+            for &(a, b) in &l.arcs {
+                adj[a as usize].push(b);
+                adj[b as usize].push(a);
+            }
+        }
+    }
+    let mut group = vec![u32::MAX; n];
+    let mut members: Vec<Vec<u32>> = Vec::new();
+    for v in 0..n {
+        if group[v] != u32::MAX {
+            continue;
+        }
+        let g = members.len() as u32;
+        let mut list = vec![v as u32];
+        group[v] = g;
+        let mut i = 0;
+        while i < list.len() {
+            let u = list[i] as usize;
+            i += 1;
+            for &x in &adj[u] {
+                if group[x as usize] == u32::MAX {
+                    group[x as usize] = g;
+                    list.push(x);
+                }
+            }
+        }
+        list.sort_unstable();
+        members.push(list);
+    }
+    // Support graph between groups.
+    let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); members.len()];
     for (k, l) in inst.links.iter().enumerate() {
         if weight(k) > 1e-6 {
             for &(a, b) in &l.arcs {
-                nbrs[a as usize].push(b);
-                nbrs[b as usize].push(a);
+                let (ga, gb) = (group[a as usize], group[b as usize]);
+                if ga != gb {
+                    nbrs[ga as usize].push(gb);
+                    nbrs[gb as usize].push(ga);
+                }
             }
         }
     }
@@ -356,50 +396,95 @@ pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out:
         list.dedup();
     }
     let mut part_of = Vec::new();
-    let mut inside = vec![false; n];
+    // Class of each unit in the current set: its group, or u32::MAX.
+    let mut class = vec![u32::MAX; n];
     let mut counted: Vec<usize> = Vec::new();
+    let mut units: Vec<u32> = Vec::new();
+    // Partition rows found violated (with ν from the rank bound, an upper
+    // estimate of the violation), built exactly for the most violated only.
+    let mut candidates: Vec<(f64, Vec<Vec<u32>>)> = Vec::new();
     each_connected_set(&nbrs, max_size, |set| {
-        set.iter().for_each(|&v| inside[v as usize] = true);
-        // y on links with a head in the set, and on those entering it.
+        units.clear();
+        for &g in set {
+            units.extend_from_slice(&members[g as usize]);
+            members[g as usize]
+                .iter()
+                .for_each(|&v| class[v as usize] = g);
+        }
+        units.sort_unstable();
+        // y on links with an arc into a group from another class, and on
+        // links entering the whole set.
         counted.clear();
-        let mut entering = 0.0;
-        for &b in set {
+        let (mut activity, mut entering) = (0.0, 0.0);
+        for &b in &units {
             for &k in &inst.heads[b as usize] {
-                if !counted.contains(&k) {
+                if counted.contains(&k) {
+                    continue;
+                }
+                let arcs = &inst.links[k].arcs;
+                if arcs.iter().any(|&(f, t)| {
+                    class[t as usize] != u32::MAX && class[f as usize] != class[t as usize]
+                }) {
                     counted.push(k);
-                    if inst.links[k]
-                        .arcs
-                        .iter()
-                        .any(|&(f, t)| inside[t as usize] && !inside[f as usize])
-                    {
+                    activity += weight(k);
+                    if arcs.iter().any(|&(f, t)| {
+                        class[t as usize] != u32::MAX && class[f as usize] == u32::MAX
+                    }) {
                         entering += weight(k);
                     }
                 }
             }
         }
-        let activity: f64 = counted.iter().map(|&k| weight(k)).sum();
-        set.iter().for_each(|&v| inside[v as usize] = false);
-        if set.len() as f64 - activity > 1e-6 {
-            let singles: Vec<&[u32]> = set.chunks(1).collect();
-            let nu = if inst.oracle.excited(set) {
-                inst.packing(&singles)
+        units.iter().for_each(|&v| class[v as usize] = u32::MAX);
+        let partition_possible = set.len() > 1 && set.len() as f64 - activity > 1e-6;
+        if !partition_possible && entering >= 1.0 - 1e-6 {
+            return;
+        }
+        let excited = inst.oracle.excited(&units);
+        if partition_possible {
+            // The row is violated when ν is at most `most`.
+            let most = (set.len() as f64 - activity - 1e-6).ceil() as usize - 1;
+            let parts: Vec<Vec<u32>> = set.iter().map(|&g| members[g as usize].clone()).collect();
+            let slices: Vec<&[u32]> = parts.iter().map(|p| p.as_slice()).collect();
+            // The set is connected, so ν ≥ 1 when its units are excited;
+            // the exact count is needed only when the rank bound is too
+            // weak to decide.
+            let nu = if !excited {
+                Some(0)
+            } else if most == 0 {
+                None
             } else {
-                0
+                let rank = inst.oracle.parts_bound(&slices, slices.len());
+                if rank <= most {
+                    Some(rank)
+                } else {
+                    Some(inst.packing(&slices)).filter(|&nu| nu <= most)
+                }
             };
-            if (set.len() - nu) as f64 - activity > 1e-6
-                && let Some(r) = singleton_row(inst, set, &mut part_of)
-            {
-                out.push(r);
+            if let Some(nu) = nu {
+                let violation = (set.len() - nu) as f64 - activity;
+                candidates.push((violation, parts));
             }
         }
         if entering < 1.0 - 1e-6
-            && !inst.oracle.excited(set)
-            && let Some(r) = cover_row(inst, set, &mut part_of)
+            && !excited
+            && let Some(r) = cover_row(inst, &units, &mut part_of)
         {
             out.push(r);
         }
     });
+    candidates.sort_by(|a, b| b.0.total_cmp(&a.0).then_with(|| a.1.cmp(&b.1)));
+    for (_, parts) in candidates.into_iter().take(SUPPORT_ROWS) {
+        if let Some(r) = partition_row(inst, &parts, &mut part_of)
+            && r.violation(y) > 1e-6
+        {
+            out.push(r);
+        }
+    }
 }
+
+/// Most partition rows one call of [`support_separate`] builds.
+const SUPPORT_ROWS: usize = 200;
 
 fn sorted(set: &[u32]) -> Vec<u32> {
     let mut s = set.to_vec();

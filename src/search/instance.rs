@@ -5,8 +5,8 @@
 use crate::excitation::{ExcitationTable, eigenvalues};
 use crate::problem::{NodeId, Problem};
 use rayon::prelude::*;
+use rustc_hash::FxHashMap as HashMap;
 use std::cell::RefCell;
-use std::collections::HashMap;
 use std::rc::Rc;
 use std::time::{Duration, Instant};
 
@@ -91,7 +91,7 @@ impl<'a> Oracle<'a> {
             dips,
             windows: w,
             p,
-            cache: RefCell::new(HashMap::new()),
+            cache: RefCell::new(HashMap::default()),
             order: RefCell::new((0..w).collect()),
             small_excited: RefCell::new(vec![Vec::new(); n]),
             stats: RefCell::new(OracleStats::default()),
@@ -210,18 +210,32 @@ impl<'a> Oracle<'a> {
         let mut excited = vec![false; full + 1];
         let mut usable = vec![false; full + 1];
         let mut union: Vec<u32> = Vec::new();
+        // Sum of the parts' top ranks (capped at p): below p, not excited.
+        let part_top: Vec<usize> = parts
+            .iter()
+            .map(|part| {
+                part.iter()
+                    .map(|&i| self.top_rank[i as usize] as usize)
+                    .sum::<usize>()
+                    .min(self.p)
+            })
+            .collect();
+        let mut top = vec![0usize; full + 1];
         for m in 1..=full {
-            excited[m] =
-                if (0..k).any(|b| m & (1 << b) != 0 && m != 1 << b && excited[m ^ (1 << b)]) {
-                    true
-                } else {
-                    union.clear();
-                    (0..k)
-                        .filter(|b| m & (1 << b) != 0)
-                        .for_each(|b| union.extend_from_slice(parts[b]));
-                    union.sort_unstable();
-                    self.excited(&union)
-                };
+            let low = m.trailing_zeros() as usize;
+            top[m] = (top[m & (m - 1)] + part_top[low]).min(self.p);
+            excited[m] = if top[m] < self.p {
+                false
+            } else if (0..k).any(|b| m & (1 << b) != 0 && m != 1 << b && excited[m ^ (1 << b)]) {
+                true
+            } else {
+                union.clear();
+                (0..k)
+                    .filter(|b| m & (1 << b) != 0)
+                    .for_each(|b| union.extend_from_slice(parts[b]));
+                union.sort_unstable();
+                self.excited(&union)
+            };
             usable[m] = excited[m] && connected(m as u32, adj);
         }
         // A packing can use minimal usable unions only (a usable union
@@ -234,17 +248,22 @@ impl<'a> Oracle<'a> {
                 }
             }
         }
-        let minimal: Vec<usize> = (1..=full)
-            .filter(|&m| usable[m] && (0..k).all(|b| m & (1 << b) == 0 || !contains[m ^ (1 << b)]))
-            .collect();
+        // Minimal usable unions, by their lowest part.
+        let mut minimal: Vec<Vec<usize>> = vec![Vec::new(); k];
+        for m in 1..=full {
+            if usable[m] && (0..k).all(|b| m & (1 << b) == 0 || !contains[m ^ (1 << b)]) {
+                minimal[m.trailing_zeros() as usize].push(m);
+            }
+        }
         // best[m]: most disjoint minimal unions inside m. The part with the
-        // lowest index is either in none or in one union with it.
+        // lowest index is either in none or in one union with it (whose
+        // lowest part it then is).
         let mut best = vec![0u8; full + 1];
         for m in 1..=full {
-            let low = m & m.wrapping_neg();
-            let mut b = best[m ^ low];
-            for &t in &minimal {
-                if t & low != 0 && t & !m == 0 {
+            let low = m.trailing_zeros() as usize;
+            let mut b = best[m & (m - 1)];
+            for &t in &minimal[low] {
+                if t & !m == 0 {
                     b = b.max(1 + best[m ^ t]);
                 }
             }
@@ -351,7 +370,7 @@ impl<'a> Instance<'a> {
             oracle,
             integral_costs,
             survive: Survive::Nothing,
-            packings: RefCell::new(HashMap::new()),
+            packings: RefCell::new(HashMap::default()),
         }
     }
 
@@ -377,7 +396,7 @@ impl<'a> Instance<'a> {
 
     fn count_packing(&self, parts: &[&[u32]]) -> usize {
         let k = parts.len();
-        let mut part_of: HashMap<u32, usize> = HashMap::new();
+        let mut part_of: HashMap<u32, usize> = HashMap::default();
         for (j, part) in parts.iter().enumerate() {
             for &v in *part {
                 part_of.insert(v, j);
