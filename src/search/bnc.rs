@@ -23,6 +23,8 @@ pub(crate) struct SearchStats {
     pub lp_time: Duration,
     pub separation_time: Duration,
     pub heuristic_time: Duration,
+    /// Links fixed by reduced cost, summed over nodes.
+    pub fixed_by_cost: u64,
 }
 
 /// Result of the search.
@@ -135,6 +137,10 @@ impl Lp {
             vars: self.vars.clone(),
             has: self.has.clone(),
         }
+    }
+
+    fn reduced_cost(&self, k: usize) -> f64 {
+        self.sol.reduced_cost_raw(self.vars[k]).unwrap_or(0.0)
     }
 
     fn has(&self, index: usize) -> bool {
@@ -388,7 +394,17 @@ impl<'a, 'b> Search<'a, 'b> {
                 grow_separate(self.inst, y, 8, &mut rows);
             }
             if rows.is_empty() {
-                let size = if deep { ROOT_SUPPORT } else { NODE_SUPPORT };
+                let env = |n: &str, d: usize| {
+                    std::env::var(n)
+                        .ok()
+                        .and_then(|v| v.parse().ok())
+                        .unwrap_or(d)
+                };
+                let size = if deep {
+                    env("RS", ROOT_SUPPORT)
+                } else {
+                    env("NS", NODE_SUPPORT)
+                };
                 support_separate(self.inst, y, size, &mut rows);
             }
             let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
@@ -444,7 +460,7 @@ impl<'a, 'b> Search<'a, 'b> {
             self.stats.lp_solves += 1;
             self.stats.lp_time += t.elapsed();
             rounds += 1;
-            if rounds % 5 == 0 {
+            if rounds % if deep { 25 } else { 5 } == 0 {
                 let y = lp.values();
                 self.heuristic(&y);
             }
@@ -634,6 +650,42 @@ pub(crate) fn search(
             let obj = lp.objective();
             if let Some(o) = origin {
                 pseudo.record(o, obj);
+            }
+            // Reduced-cost fixing: a link whose move off its bound would
+            // lift the LP above the cutoff keeps its value in this subtree.
+            let cutoff = s.cutoff();
+            let mut lp = lp;
+            let mut fixed = 0;
+            for (k, l) in inst.links.iter().enumerate() {
+                if l.installed || fixings.iter().any(|&(f, _)| f as usize == k) {
+                    continue;
+                }
+                let d = lp.reduced_cost(k);
+                let slack = cutoff - obj;
+                let value = if y[k] < INT_TOL && d > slack + 1e-7 * cutoff.abs().max(1.0) {
+                    false
+                } else if y[k] > 1.0 - INT_TOL && -d > slack + 1e-7 * cutoff.abs().max(1.0) {
+                    true
+                } else {
+                    continue;
+                };
+                fixings.push((k as u32, value));
+                fixed += 1;
+            }
+            if fixed > 0 {
+                let t = Instant::now();
+                let start = fixings.len() - fixed;
+                let mut next = Some(lp);
+                for &(k, v) in &fixings[start..] {
+                    next = next.and_then(|lp| lp.fix(k as usize, v));
+                }
+                s.stats.lp_time += t.elapsed();
+                s.stats.lp_solves += 1;
+                s.stats.fixed_by_cost += fixed as u64;
+                match next {
+                    Some(next) => lp = next,
+                    None => break,
+                }
             }
             match pseudo.choose(inst, &y) {
                 None => {

@@ -848,6 +848,22 @@ impl Solution {
         }
     }
 
+    /// The reduced cost of a variable in an LP solution of a minimisation
+    /// (0 for basic variables): raising a variable at its lower bound by
+    /// one unit raises the objective by at least this much. `None` for
+    /// solutions of problems with integer variables. Added for exmesh.
+    ///
+    /// # Panics
+    ///
+    /// Panics if `var` is out of range for this problem.
+    pub fn reduced_cost_raw(&self, var: Variable) -> Option<f64> {
+        assert!(var.0 < self.num_vars);
+        match &self.state {
+            SolveState::Lp(solver) => Some(solver.reduced_cost(var.0)),
+            SolveState::Mip(_) => None,
+        }
+    }
+
     /// Returns a variable's value, rounding integer and boolean variables.
     ///
     /// Real-valued variables are returned unchanged. Integer and boolean values

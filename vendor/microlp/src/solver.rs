@@ -553,6 +553,15 @@ impl Solver {
         Ok(res)
     }
 
+    /// Reduced cost of a variable at the current basis (0 for basic
+    /// variables). Added for exmesh.
+    pub(crate) fn reduced_cost(&self, var: usize) -> f64 {
+        match self.var_states[var] {
+            VarState::Basic(_) => 0.0,
+            VarState::NonBasic(idx) => self.nb_var_obj_coeffs[idx],
+        }
+    }
+
     pub(crate) fn get_value(&self, var: usize) -> &f64 {
         match self.var_states[var] {
             VarState::Basic(idx) => &self.basic_var_vals[idx],
