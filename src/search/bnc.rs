@@ -394,17 +394,7 @@ impl<'a, 'b> Search<'a, 'b> {
                 grow_separate(self.inst, y, 8, &mut rows);
             }
             if rows.is_empty() {
-                let env = |n: &str, d: usize| {
-                    std::env::var(n)
-                        .ok()
-                        .and_then(|v| v.parse().ok())
-                        .unwrap_or(d)
-                };
-                let size = if deep {
-                    env("RS", ROOT_SUPPORT)
-                } else {
-                    env("NS", NODE_SUPPORT)
-                };
+                let size = if deep { ROOT_SUPPORT } else { NODE_SUPPORT };
                 support_separate(self.inst, y, size, &mut rows);
             }
             let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
