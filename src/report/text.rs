@@ -566,13 +566,14 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     writeln!(out)?;
     writeln!(
         out,
-        "search: greedy {:.2}, root LP bound {:.2}, {} rounds, {} rows, {} nodes, {} LP solves, {} excitation queries ({} full scans)",
+        "search: greedy {:.2}, root LP bound {:.2}, {} rounds, {} rows, {} nodes, {} LP solves, {} links fixed by reduced cost, {} excitation queries ({} full scans)",
         s.greedy_cost,
         s.root_lp_bound,
         s.rounds,
         s.cuts,
         s.nodes,
         s.lp_solves,
+        s.fixed_by_reduced_cost,
         s.excitation_queries,
         s.excitation_scans
     )?;

@@ -112,6 +112,8 @@ pub struct PlanStats {
     pub nodes: u64,
     /// LP (re-)solves.
     pub lp_solves: u64,
+    /// Links fixed by reduced cost, summed over branch-and-bound nodes.
+    pub fixed_by_reduced_cost: u64,
     /// Excitation queries, and full window scans among them.
     pub excitation_queries: u64,
     /// Full window scans (queries not answered by cache or rank pre-test).
@@ -405,6 +407,7 @@ fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> Pla
         cuts: s.map_or(0, |s| s.cuts),
         nodes: s.map_or(0, |s| s.nodes),
         lp_solves: s.map_or(0, |s| s.lp_solves),
+        fixed_by_reduced_cost: s.map_or(0, |s| s.fixed_by_cost),
         excitation_queries: o.queries,
         excitation_scans: o.scans,
     }
