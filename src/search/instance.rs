@@ -157,15 +157,7 @@ impl<'a> Oracle<'a> {
         let mut best = cap.min(parts.len());
         // Windows where every member is at its top rank give the largest
         // value; only the members' dips can lower it.
-        let top: usize = parts
-            .iter()
-            .map(|part| {
-                part.iter()
-                    .map(|&i| self.top_rank[i as usize] as usize)
-                    .sum::<usize>()
-                    .min(self.p)
-            })
-            .sum();
+        let top: usize = parts.iter().map(|part| self.top_rank_sum(part)).sum();
         best = best.min(top / self.p);
         let mut windows: Vec<u32> = parts
             .iter()
@@ -194,6 +186,14 @@ impl<'a> Oracle<'a> {
         best
     }
 
+    /// Σ of the members' top ranks, capped at p.
+    fn top_rank_sum(&self, part: &[u32]) -> usize {
+        part.iter()
+            .map(|&i| self.top_rank[i as usize] as usize)
+            .sum::<usize>()
+            .min(self.p)
+    }
+
     /// Upper bound on the number of disjoint excited subsets of `set`.
     pub fn rank_bound(&self, set: &[u32], cap: usize) -> usize {
         let singles: Vec<&[u32]> = set.chunks(1).collect();
@@ -211,15 +211,7 @@ impl<'a> Oracle<'a> {
         let mut usable = vec![false; full + 1];
         let mut union: Vec<u32> = Vec::new();
         // Sum of the parts' top ranks (capped at p): below p, not excited.
-        let part_top: Vec<usize> = parts
-            .iter()
-            .map(|part| {
-                part.iter()
-                    .map(|&i| self.top_rank[i as usize] as usize)
-                    .sum::<usize>()
-                    .min(self.p)
-            })
-            .collect();
+        let part_top: Vec<usize> = parts.iter().map(|part| self.top_rank_sum(part)).collect();
         let mut top = vec![0usize; full + 1];
         for m in 1..=full {
             let low = m.trailing_zeros() as usize;
