@@ -7,9 +7,11 @@ use super::cuts::{
 use super::heuristics::{exchange, repair};
 use super::instance::Instance;
 use microlp::{ComparisonOp, LinearExpr, OptimizationDirection, Solution, SolveOutcome, Variable};
+use std::cell::Cell;
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
 use std::io::IsTerminal;
+use std::rc::Rc;
 use std::time::{Duration, Instant};
 
 /// Counters and timings of a search.
@@ -49,6 +51,10 @@ struct Lp {
     vars: Vec<Variable>,
     /// Pool rows present in this LP.
     has: Vec<bool>,
+    /// Shared by every LP of one search: the lowest objective of an LP
+    /// lost to a numerical failure of the solver (not to infeasibility).
+    /// Its subtree was not explored, so the final bound may not exceed it.
+    lost: Rc<Cell<f64>>,
 }
 
 impl Lp {
@@ -64,32 +70,10 @@ impl Lp {
     }
 
     /// Adds a row; `false` when the LP became infeasible (the LP is gone).
-    fn add(mut self, index: usize, row: &Row) -> Option<Self> {
-        let expr: Vec<(Variable, f64)> = row
-            .links
-            .iter()
-            .map(|&k| (self.vars[k as usize], 1.0))
-            .collect();
-        if self.has.len() <= index {
-            self.has.resize(index + 1, false);
-        }
-        self.has[index] = true;
-        match self
-            .sol
-            .add_constraint(expr.as_slice(), ComparisonOp::Ge, row.rhs as f64)
-        {
-            Ok(SolveOutcome::Solution(sol)) => {
-                self.sol = sol;
-                Some(self)
-            }
-            _ => None,
-        }
-    }
-
     /// Adds pool rows in one batch (one refactorisation and one dual
     /// simplex pass); `None` when the LP became infeasible.
     fn add_all(mut self, rows: &[(usize, &Row)]) -> Option<Self> {
-        let fallback = self.duplicate();
+        let before = self.objective();
         let batch: Vec<(LinearExpr, ComparisonOp, f64)> = rows
             .iter()
             .map(|&(index, row)| {
@@ -105,30 +89,51 @@ impl Lp {
                 (expr, ComparisonOp::Ge, row.rhs as f64)
             })
             .collect();
-        match self.sol.add_constraints(batch) {
-            Ok(SolveOutcome::Solution(sol)) => {
-                self.sol = sol;
-                Some(self)
+        let Lp {
+            sol,
+            vars,
+            has,
+            lost,
+        } = self;
+        let outcome = sol.add_constraints(batch);
+        Lp::settle(outcome, vars, has, lost, before)
+    }
+
+    /// The LP after an edit: itself when solved, `None` when infeasible or
+    /// lost (a numerical failure, recorded in `lost` with the objective
+    /// before the edit, a bound for everything below it).
+    fn settle(
+        outcome: Result<SolveOutcome, microlp::Error>,
+        vars: Vec<Variable>,
+        has: Vec<bool>,
+        lost: Rc<Cell<f64>>,
+        before: f64,
+    ) -> Option<Self> {
+        match outcome {
+            Ok(SolveOutcome::Solution(sol)) => Some(Lp {
+                sol,
+                vars,
+                has,
+                lost,
+            }),
+            Ok(_) | Err(microlp::Error::Infeasible) => None,
+            Err(_) => {
+                lost.set(lost.get().min(before));
+                None
             }
-            Err(microlp::Error::Infeasible) => None,
-            // A numerical failure of the batch: add the rows one at a time.
-            _ => rows
-                .iter()
-                .try_fold(fallback, |lp, &(index, row)| lp.add(index, row)),
         }
     }
 
-    fn fix(mut self, k: usize, value: bool) -> Option<Self> {
-        match self
-            .sol
-            .fix_var(self.vars[k], if value { 1.0 } else { 0.0 })
-        {
-            Ok(SolveOutcome::Solution(sol)) => {
-                self.sol = sol;
-                Some(self)
-            }
-            _ => None,
-        }
+    fn fix(self, k: usize, value: bool) -> Option<Self> {
+        let before = self.objective();
+        let Lp {
+            sol,
+            vars,
+            has,
+            lost,
+        } = self;
+        let outcome = sol.fix_var(vars[k], if value { 1.0 } else { 0.0 });
+        Lp::settle(outcome, vars, has, lost, before)
     }
 
     fn duplicate(&self) -> Self {
@@ -136,6 +141,7 @@ impl Lp {
             sol: self.sol.clone(),
             vars: self.vars.clone(),
             has: self.has.clone(),
+            lost: self.lost.clone(),
         }
     }
 
@@ -279,6 +285,8 @@ struct Search<'a, 'b> {
     /// Objective of the last LP looked at by the cut loop.
     last_objective: f64,
     node_limit: Option<u64>,
+    /// See [`Lp::lost`].
+    lost: Rc<Cell<f64>>,
 }
 
 impl<'a, 'b> Search<'a, 'b> {
@@ -296,6 +304,7 @@ impl<'a, 'b> Search<'a, 'b> {
             last_progress: now,
             last_objective: f64::NEG_INFINITY,
             node_limit: limits.nodes,
+            lost: Rc::new(Cell::new(f64::INFINITY)),
         }
     }
 
@@ -324,7 +333,7 @@ impl<'a, 'b> Search<'a, 'b> {
         let used: Vec<usize> = (0..self.pool.rows.len())
             .filter(|&i| self.pool.used[i])
             .collect();
-        let lp = build_lp(self.inst, &self.pool, &used);
+        let lp = build_lp(self.inst, &self.pool, &used, &self.lost);
         self.stats.lp_solves += 1;
         lp
     }
@@ -477,7 +486,7 @@ impl<'a, 'b> Search<'a, 'b> {
 }
 
 /// A fresh LP with the given pool rows, solved from scratch.
-fn build_lp(inst: &Instance, pool: &Pool, rows: &[usize]) -> Option<Lp> {
+fn build_lp(inst: &Instance, pool: &Pool, rows: &[usize], lost: &Rc<Cell<f64>>) -> Option<Lp> {
     let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
     let vars: Vec<Variable> = inst
         .links
@@ -495,7 +504,12 @@ fn build_lp(inst: &Instance, pool: &Pool, rows: &[usize]) -> Option<Lp> {
         has[i] = true;
     }
     match problem.solve() {
-        Ok(SolveOutcome::Solution(sol)) => Some(Lp { sol, vars, has }),
+        Ok(SolveOutcome::Solution(sol)) => Some(Lp {
+            sol,
+            vars,
+            has,
+            lost: lost.clone(),
+        }),
         _ => None,
     }
 }
@@ -511,7 +525,8 @@ fn compact(inst: &Instance, pool: &Pool, lp: Lp) -> Lp {
     if tight.len() * 3 >= 2 * lp.has.iter().filter(|h| **h).count() {
         return lp;
     }
-    build_lp(inst, pool, &tight).unwrap_or(lp)
+    let lost = lp.lost.clone();
+    build_lp(inst, pool, &tight, &lost).unwrap_or(lp)
 }
 
 fn bound_of(inst: &Instance, obj: f64) -> f64 {
@@ -755,7 +770,7 @@ fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
     }
     SearchResult {
         best: s.best,
-        lower_bound: lower_bound.min(s.best_cost),
+        lower_bound: lower_bound.min(s.best_cost).min(s.lost.get()),
         timed_out,
         stats: s.stats,
     }
