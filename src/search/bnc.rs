@@ -24,6 +24,8 @@ pub(crate) struct SearchStats {
     pub root_bound: f64,
     pub lp_time: Duration,
     pub separation_time: Duration,
+    /// Excitation checks made during separation (inside `separation_time`).
+    pub separation_checks: Duration,
     pub heuristic_time: Duration,
     /// Links fixed by reduced cost, summed over nodes.
     pub fixed_by_cost: u64,
@@ -387,6 +389,7 @@ impl<'a, 'b> Search<'a, 'b> {
     /// separation.
     fn violated(&mut self, lp: &Lp, y: &[f64], deep: bool) -> Vec<usize> {
         let t = Instant::now();
+        let checks = self.inst.oracle.stats.borrow().time;
         let mut found: Vec<(f64, usize)> = self
             .pool
             .rows
@@ -426,6 +429,7 @@ impl<'a, 'b> Search<'a, 'b> {
                 .collect();
         }
         self.stats.separation_time += t.elapsed();
+        self.stats.separation_checks += self.inst.oracle.stats.borrow().time - checks;
         // Most violated first; at most 60 rows per round.
         found.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
         found.truncate(60);

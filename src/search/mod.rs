@@ -388,9 +388,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             greedy: greedy_time,
             search: search_time,
             excitation: inst.oracle.stats.borrow().time,
-            separation: s
-                .separation_time
-                .saturating_sub(inst.oracle.stats.borrow().time),
+            separation: s.separation_time.saturating_sub(s.separation_checks),
             solver: s.lp_time,
             heuristics: s.heuristic_time,
             rate: rate_time,
