@@ -71,11 +71,9 @@ impl Lp {
         self.sol.objective()
     }
 
-    /// Adds a row; `false` when the LP became infeasible (the LP is gone).
     /// Adds pool rows in one batch (one refactorisation and one dual
-    /// simplex pass); `None` when the LP became infeasible.
+    /// simplex pass); `None` as for [`Lp::edit`].
     fn add_all(mut self, rows: &[(usize, &Row)]) -> Option<Self> {
-        let before = self.objective();
         let batch: Vec<(LinearExpr, ComparisonOp, f64)> = rows
             .iter()
             .map(|&(index, row)| {
@@ -91,27 +89,24 @@ impl Lp {
                 (expr, ComparisonOp::Ge, row.rhs as f64)
             })
             .collect();
+        self.edit(|sol, _| sol.add_constraints(batch))
+    }
+
+    /// Applies an edit to the solved LP: the LP when it solves, `None` when
+    /// infeasible or lost (a numerical failure, recorded in `lost` with the
+    /// objective before the edit, a bound for everything below it).
+    fn edit(
+        self,
+        change: impl FnOnce(Solution, &[Variable]) -> Result<SolveOutcome, microlp::Error>,
+    ) -> Option<Self> {
+        let before = self.objective();
         let Lp {
             sol,
             vars,
             has,
             lost,
         } = self;
-        let outcome = sol.add_constraints(batch);
-        Lp::settle(outcome, vars, has, lost, before)
-    }
-
-    /// The LP after an edit: itself when solved, `None` when infeasible or
-    /// lost (a numerical failure, recorded in `lost` with the objective
-    /// before the edit, a bound for everything below it).
-    fn settle(
-        outcome: Result<SolveOutcome, microlp::Error>,
-        vars: Vec<Variable>,
-        has: Vec<bool>,
-        lost: Rc<Cell<f64>>,
-        before: f64,
-    ) -> Option<Self> {
-        match outcome {
+        match change(sol, &vars) {
             Ok(SolveOutcome::Solution(sol)) => Some(Lp {
                 sol,
                 vars,
@@ -127,15 +122,14 @@ impl Lp {
     }
 
     fn fix(self, k: usize, value: bool) -> Option<Self> {
-        let before = self.objective();
-        let Lp {
-            sol,
-            vars,
-            has,
-            lost,
-        } = self;
-        let outcome = sol.fix_var(vars[k], if value { 1.0 } else { 0.0 });
-        Lp::settle(outcome, vars, has, lost, before)
+        self.edit(|sol, vars| sol.fix_var(vars[k], if value { 1.0 } else { 0.0 }))
+    }
+
+    /// Applies fixings in turn (one dual-simplex pass each).
+    fn fix_all(self, fixings: &[(u32, bool)]) -> Option<Self> {
+        fixings
+            .iter()
+            .try_fold(self, |lp, &(k, v)| lp.fix(k as usize, v))
     }
 
     fn duplicate(&self) -> Self {
@@ -630,12 +624,8 @@ pub(crate) fn search(
                 .and_then(|&(k, v)| lp.fix(k as usize, v)),
             // Rebuild from the master (which holds every used pool row).
             None => {
-                let mut lp = Some(master.duplicate());
-                for &(k, v) in &node.fixings {
-                    lp = lp.and_then(|lp| lp.fix(k as usize, v));
-                    s.stats.lp_solves += 1;
-                }
-                lp
+                s.stats.lp_solves += node.fixings.len() as u64;
+                master.duplicate().fix_all(&node.fixings)
             }
         };
         s.stats.lp_solves += 1;
@@ -663,31 +653,27 @@ pub(crate) fn search(
             // Reduced-cost fixing: a link whose move off its bound would
             // lift the LP above the cutoff keeps its value in this subtree.
             let cutoff = s.cutoff();
+            let room = cutoff - obj + 1e-7 * cutoff.abs().max(1.0);
             let mut lp = lp;
-            let mut fixed = 0;
+            let start = fixings.len();
             for (k, l) in inst.links.iter().enumerate() {
                 if l.installed || fixings.iter().any(|&(f, _)| f as usize == k) {
                     continue;
                 }
                 let d = lp.reduced_cost(k);
-                let slack = cutoff - obj;
-                let value = if y[k] < INT_TOL && d > slack + 1e-7 * cutoff.abs().max(1.0) {
+                let value = if y[k] < INT_TOL && d > room {
                     false
-                } else if y[k] > 1.0 - INT_TOL && -d > slack + 1e-7 * cutoff.abs().max(1.0) {
+                } else if y[k] > 1.0 - INT_TOL && -d > room {
                     true
                 } else {
                     continue;
                 };
                 fixings.push((k as u32, value));
-                fixed += 1;
             }
+            let fixed = fixings.len() - start;
             if fixed > 0 {
                 let t = Instant::now();
-                let start = fixings.len() - fixed;
-                let mut next = Some(lp);
-                for &(k, v) in &fixings[start..] {
-                    next = next.and_then(|lp| lp.fix(k as usize, v));
-                }
+                let next = lp.fix_all(&fixings[start..]);
                 s.stats.lp_time += t.elapsed();
                 s.stats.lp_solves += 1;
                 s.stats.fixed_by_cost += fixed as u64;

@@ -234,12 +234,10 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
         inside[seed as usize] = true;
         let mut activity = in_y[seed as usize];
         loop {
-            let nu = if inst.oracle.excited(&sorted(&set)) {
-                {
-                    let s = sorted(&set);
-                    let singles: Vec<&[u32]> = s.chunks(1).collect();
-                    inst.packing(&singles)
-                }
+            let s = sorted(&set);
+            let nu = if inst.oracle.excited(&s) {
+                let singles: Vec<&[u32]> = s.chunks(1).collect();
+                inst.packing(&singles)
             } else {
                 0
             };
@@ -355,28 +353,10 @@ pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out:
             }
         }
     }
-    let mut group = vec![u32::MAX; n];
-    let mut members: Vec<Vec<u32>> = Vec::new();
-    for v in 0..n {
-        if group[v] != u32::MAX {
-            continue;
-        }
-        let g = members.len() as u32;
-        let mut list = vec![v as u32];
-        group[v] = g;
-        let mut i = 0;
-        while i < list.len() {
-            let u = list[i] as usize;
-            i += 1;
-            for &x in &adj[u] {
-                if group[x as usize] == u32::MAX {
-                    group[x as usize] = g;
-                    list.push(x);
-                }
-            }
-        }
-        list.sort_unstable();
-        members.push(list);
+    let members = super::instance::pieces(&adj);
+    let mut group = vec![0u32; n];
+    for (g, list) in members.iter().enumerate() {
+        list.iter().for_each(|&v| group[v as usize] = g as u32);
     }
     // Support graph between groups.
     let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); members.len()];
@@ -400,8 +380,9 @@ pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out:
     let mut class = vec![u32::MAX; n];
     let mut counted: Vec<usize> = Vec::new();
     let mut units: Vec<u32> = Vec::new();
-    // Partition rows found violated (with ν from the rank bound, an upper
-    // estimate of the violation), built exactly for the most violated only.
+    // Partition rows found violated, ranked by their violation (with ν from
+    // the rank bound where that decided, a lower estimate), built exactly
+    // for the most violated only.
     let mut candidates: Vec<(f64, Vec<Vec<u32>>)> = Vec::new();
     each_connected_set(&nbrs, max_size, |set| {
         units.clear();

@@ -105,12 +105,7 @@ impl<'a> Oracle<'a> {
         }
         let mut stats = self.stats.borrow_mut();
         stats.queries += 1;
-        if set
-            .iter()
-            .map(|&i| self.top_rank[i as usize] as usize)
-            .sum::<usize>()
-            < self.p
-        {
+        if self.top_rank_sum(set) < self.p {
             return false;
         }
         if let Some(&v) = self.cache.borrow().get(set) {
@@ -394,7 +389,7 @@ impl<'a> Instance<'a> {
                 part_of.insert(v, j);
             }
         }
-        let mut nbrs: Vec<Vec<usize>> = vec![Vec::new(); k];
+        let mut nbrs: Vec<Vec<u32>> = vec![Vec::new(); k];
         for (j, part) in parts.iter().enumerate() {
             for &b in *part {
                 for &l in &self.heads[b as usize] {
@@ -403,35 +398,17 @@ impl<'a> Instance<'a> {
                             && let Some(&i) = part_of.get(&from)
                             && i != j
                         {
-                            nbrs[j].push(i);
-                            nbrs[i].push(j);
+                            nbrs[j].push(i as u32);
+                            nbrs[i].push(j as u32);
                         }
                     }
                 }
             }
         }
         // Connected pieces of the quotient graph.
-        let mut piece = vec![usize::MAX; k];
         let mut total = 0;
-        for start in 0..k {
-            if piece[start] != usize::MAX {
-                continue;
-            }
-            let mut members = vec![start];
-            piece[start] = start;
-            let mut i = 0;
-            while i < members.len() {
-                let j = members[i];
-                i += 1;
-                for &x in &nbrs[j] {
-                    if piece[x] == usize::MAX {
-                        piece[x] = start;
-                        members.push(x);
-                    }
-                }
-            }
-            members.sort_unstable();
-            let sub: Vec<&[u32]> = members.iter().map(|&j| parts[j]).collect();
+        for members in pieces(&nbrs) {
+            let sub: Vec<&[u32]> = members.iter().map(|&j| parts[j as usize]).collect();
             let bound = self.oracle.parts_bound(&sub, sub.len());
             total += if bound == 0 || members.len() > EXACT_PARTS {
                 bound
@@ -447,7 +424,7 @@ impl<'a> Instance<'a> {
                 let adj: Vec<u32> = members
                     .iter()
                     .map(|&j| {
-                        nbrs[j]
+                        nbrs[j as usize]
                             .iter()
                             .map(|x| 1u32 << members.binary_search(x).expect("same piece"))
                             .fold(0, |a, b| a | b)
@@ -611,6 +588,35 @@ impl<'a> Instance<'a> {
             rhs: rhs as u32,
         })
     }
+}
+
+/// The connected pieces of an undirected graph (each edge listed at both
+/// ends), found breadth-first from the lowest unvisited vertex; members
+/// sorted, pieces in order of their lowest vertex.
+pub(crate) fn pieces(adj: &[Vec<u32>]) -> Vec<Vec<u32>> {
+    let mut seen = vec![false; adj.len()];
+    let mut out = Vec::new();
+    for start in 0..adj.len() {
+        if seen[start] {
+            continue;
+        }
+        seen[start] = true;
+        let mut members = vec![start as u32];
+        let mut i = 0;
+        while i < members.len() {
+            let v = members[i] as usize;
+            i += 1;
+            for &x in &adj[v] {
+                if !seen[x as usize] {
+                    seen[x as usize] = true;
+                    members.push(x);
+                }
+            }
+        }
+        members.sort_unstable();
+        out.push(members);
+    }
+    out
 }
 
 /// Strongly connected components (iterative Tarjan); returns the component

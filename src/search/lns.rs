@@ -12,8 +12,10 @@ use std::time::Instant;
 /// Networks at least this large get neighbourhood search after the root.
 pub(crate) const MIN_UNITS: usize = 60;
 /// Units per region: small networks leave more time to branch and cut,
-/// large ones (at or above `LARGE` units) need bigger moves (measured on
-/// the planning benchmark at 150 and 500 units, see DEVELOPERS.md).
+/// large ones (at or above `LARGE` units) need bigger moves. Measured on
+/// the planning benchmark (60 s): at 500 units 40-unit regions reached
+/// 231.1–231.4k against 232.2k with 24; at 150 units 40 left too little
+/// time for branching (gap 1.43 % against 1.22 %).
 const REGION: usize = 24;
 const LARGE_REGION: usize = 40;
 const LARGE: usize = 300;
