@@ -3,8 +3,14 @@
 //!
 //! Flows: `ė = A e` with `A = −(Γ + κ L⊗I_p)` held constant on each interval
 //! of the merged grid; `exp(hA) x` by a truncated Taylor series on substeps
-//! with `h‖A‖ ≤ 1`, the number of terms chosen so that the remainder bound
-//! `a^{m+1}/(m+1)! · e^a` stays below 1e−14 (relative to `|x|`).
+//! with `a = h‖A‖ ≤ 1` (‖A‖ bounded from above). The series stops after
+//! term m once a bound on the remainder is below 1e−14 relative to `|x|`:
+//! a priori `a^{m+1}/(m+1)! · e^a` (the most terms ever taken), or a
+//! posteriori `|T_m| r/(1−r)` with `r = a/(m+1)`, since the later terms are
+//! `T_{m+j} = (hA)ʲ T_m · m!/(m+j)!`. Vectors near the slow modes (those
+//! that matter for a certificate) have `|hA x| ≪ a|x|`, and the a
+//! posteriori test stops after about 7 terms where the a priori count is 12
+//! (measured on the certificate benchmark).
 //! Jumps: `e⁺ = (I − J − δ L⊗I_p) e` with the pre-jump regressor, virtual
 //! jumps (no excitation term) for units without a jump of their own.
 //!
@@ -15,10 +21,14 @@
 
 use crate::problem::{Gains, Problem};
 use crate::signal::Window;
+use rayon::prelude::*;
 
 /// Largest remainder allowed for one truncated Taylor substep, relative to
 /// the vector it is applied to.
 pub const TAYLOR_TOLERANCE: f64 = 1e-14;
+
+/// First Taylor term whose norm is computed for the a posteriori stop.
+const NORMS_FROM: usize = 4;
 
 /// One network jump (a jump instant with multiplicity c gives c of these).
 #[derive(Debug, Clone)]
@@ -41,7 +51,15 @@ pub struct Schedule<'p> {
     jumps: Vec<NetJump>,
     /// Per unit, its regressor rows (borrowed from the log).
     psi: Vec<&'p [f64]>,
+    /// The regressors of all units laid out by grid interval
+    /// (`[k][i][p]`), so that a flow step reads one contiguous block; built
+    /// when it takes at most [`BY_INTERVAL_LIMIT`] bytes.
+    by_interval: Option<Vec<f64>>,
 }
+
+/// Largest copy of the regressors by grid interval (bytes); above it a flow
+/// step gathers its regressors from the logs.
+pub const BY_INTERVAL_LIMIT: usize = 512 << 20;
 
 /// One step of a propagation.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -66,6 +84,13 @@ impl<'p> Schedule<'p> {
     /// # Complexity
     /// O(n·G + R) for G grid points and R log rows.
     pub fn new(problem: &'p Problem) -> Self {
+        Self::with_copy_limit(problem, BY_INTERVAL_LIMIT)
+    }
+
+    /// Like [`Schedule::new`], keeping the copy of the regressors by grid
+    /// interval only when it takes at most `bytes` (0: never). Results do
+    /// not depend on it; only speed and memory do.
+    pub fn with_copy_limit(problem: &'p Problem, bytes: usize) -> Self {
         let n = problem.n();
         let p = problem.settings.parameters;
         let grid = problem.domain.grid.clone();
@@ -115,8 +140,22 @@ impl<'p> Schedule<'p> {
             }
             at = end;
         }
-        let psi = problem.nodes.iter().map(|v| v.log.psi.as_slice()).collect();
+        let psi: Vec<&[f64]> = problem.nodes.iter().map(|v| v.log.psi.as_slice()).collect();
+        let by_interval = (bytes > 0 && intervals * n * p * std::mem::size_of::<f64>() <= bytes)
+            .then(|| {
+                let mut out = vec![0.0; intervals * n * p];
+                out.par_chunks_mut(n * p)
+                    .enumerate()
+                    .for_each(|(k, block)| {
+                        for (i, b) in block.chunks_exact_mut(p).enumerate() {
+                            let r = rows[k * n + i] as usize;
+                            b.copy_from_slice(&psi[i][r * p..(r + 1) * p]);
+                        }
+                    });
+                out
+            });
         Schedule {
+            by_interval,
             n,
             p,
             grid,
@@ -145,6 +184,20 @@ impl<'p> Schedule<'p> {
     pub fn psi_at(&self, k: usize, i: usize) -> &[f64] {
         let r = self.rows[k * self.n + i] as usize;
         &self.psi[i][r * self.p..(r + 1) * self.p]
+    }
+
+    /// The regressors of all units on grid interval `k` (`[i][p]`), from
+    /// the copy by interval or gathered into `buffer`.
+    fn interval_psi<'s>(&'s self, k: usize, buffer: &'s mut Vec<f64>) -> &'s [f64] {
+        let (n, p) = (self.n, self.p);
+        if let Some(all) = &self.by_interval {
+            return &all[k * n * p..(k + 1) * n * p];
+        }
+        buffer.clear();
+        for i in 0..n {
+            buffer.extend_from_slice(self.psi_at(k, i));
+        }
+        buffer
     }
 
     /// The steps of `window`, in time order: flows on `[start, end)` cut at
@@ -199,16 +252,17 @@ pub struct ErrorSystem<'a> {
     talks: Vec<(u32, f64)>,
     /// Weighted in-degree of each unit.
     in_degree: Vec<f64>,
+    /// `listens` and `talks` with the weights times κ (flow generator).
+    flow_listens: Vec<(u32, f64)>,
+    flow_talks: Vec<(u32, f64)>,
+    /// −κ times the weighted in-degree of each unit.
+    flow_diagonal: Vec<f64>,
     /// Bound on the logarithmic norm μ₂(A) of every flow generator:
     /// κ·max(0, −λ_min(sym L)), with λ_min(sym L) ≥ min_i (d_in − d_out)/2 by
     /// Gershgorin.
     flow_growth: f64,
     /// Upper bound on ‖A‖₂ on each grid interval.
     generator_norms: Vec<f64>,
-    /// Per grid interval, a shift σ ≥ 0 and a bound on ‖A + σI‖₂ (smaller
-    /// than the bound on ‖A‖₂): `exp(hA) = e^{−hσ} exp(h(A + σI))` needs
-    /// fewer Taylor terms.
-    shifted: Vec<(f64, f64)>,
 }
 
 /// Which operator to apply: the error system or its transpose.
@@ -226,6 +280,7 @@ pub struct Work {
     term: Vec<f64>,
     next: Vec<f64>,
     sum: Vec<f64>,
+    psi: Vec<f64>,
 }
 
 impl<'a> ErrorSystem<'a> {
@@ -242,29 +297,21 @@ impl<'a> ErrorSystem<'a> {
         // row i sums γ_c|ψ_i|² + 2κ d_in, column i sums γ_c|ψ_i|² + κ(d_in + d_out).
         let (g, kappa) = (gains.flow_gain, gains.flow_coupling);
         let p = schedule.p;
-        // Shifted: with R = max_i (γ_c|ψ_i|² + 2κ d_in) and σ = R/2, every
-        // diagonal block σI − κ d_i I − γ_c ψψᵀ has norm σ − κ d_i, so block
-        // rows sum to σ and block columns to σ − κ d_in + κ d_out.
-        let (norms, shifted): (Vec<f64>, Vec<(f64, f64)>) =
-            (0..schedule.grid.len().saturating_sub(1))
-                .map(|k| {
-                    let (mut row, mut col, mut skew) = (0.0f64, 0.0f64, f64::NEG_INFINITY);
-                    for i in 0..n {
-                        let r = schedule.rows[k * n + i] as usize;
-                        let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
-                            .iter()
-                            .map(|v| v * v)
-                            .sum();
-                        row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
-                        col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
-                        skew = skew.max(kappa * (out_degree[i] - in_degree[i]));
-                    }
-                    let sigma = row / 2.0;
-                    let shifted = (sigma * (sigma + skew).max(0.0)).sqrt();
-                    ((row * col).sqrt(), (sigma, shifted))
-                })
-                .unzip();
-        let generator_norms = norms;
+        let generator_norms: Vec<f64> = (0..schedule.grid.len().saturating_sub(1))
+            .map(|k| {
+                let (mut row, mut col) = (0.0f64, 0.0f64);
+                for i in 0..n {
+                    let r = schedule.rows[k * n + i] as usize;
+                    let sq: f64 = schedule.psi[i][r * p..(r + 1) * p]
+                        .iter()
+                        .map(|v| v * v)
+                        .sum();
+                    row = row.max(g * sq + 2.0 * kappa * in_degree[i]);
+                    col = col.max(g * sq + kappa * (in_degree[i] + out_degree[i]));
+                }
+                (row * col).sqrt()
+            })
+            .collect();
         let csr = |key: fn(&(u32, u32, f64)) -> (u32, u32)| {
             let mut start = vec![0usize; n + 1];
             for a in &arcs {
@@ -289,9 +336,13 @@ impl<'a> ErrorSystem<'a> {
                 .iter()
                 .zip(&out_degree)
                 .fold(0.0f64, |m, (a, b)| m.min((a - b) / 2.0));
+        let scaled = |list: &[(u32, f64)]| list.iter().map(|&(k, w)| (k, kappa * w)).collect();
         ErrorSystem {
             schedule,
             gains,
+            flow_listens: scaled(&listens),
+            flow_talks: scaled(&talks),
+            flow_diagonal: in_degree.iter().map(|d| -kappa * d).collect(),
             flow_growth,
             listen_start,
             listens,
@@ -300,7 +351,6 @@ impl<'a> ErrorSystem<'a> {
             arcs,
             in_degree,
             generator_norms,
-            shifted,
         }
     }
 
@@ -359,69 +409,122 @@ impl<'a> ErrorSystem<'a> {
         }
     }
 
-    /// `y = A x` for the flow generator on grid interval `k`:
-    /// `y_i = −γ_c ψ_i (ψ_iᵀ x_i) − κ (d_i x_i − Σ_k a_ik x_k)` (or with Lᵀ),
-    /// one pass over the units.
-    fn generator(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+    /// One Taylor term on grid interval `k`: `next = f·(A term + b)`
+    /// and `sum += next`, where `A term` is
+    /// `−γ_c ψ_i (ψ_iᵀ term_i) − κ (d_i term_i − Σ_k a_ik term_k)` (or with
+    /// Lᵀ) and `b` the optional drive; one pass over the units. Returns
+    /// `|next|²` when `norms` (else 0 where p ≤ 6).
+    #[allow(clippy::too_many_arguments)]
+    fn taylor_term(
+        &self,
+        dir: Direction,
+        psi: &[f64],
+        f: f64,
+        term: &[f64],
+        drive: Option<&[f64]>,
+        next: &mut [f64],
+        sum: &mut [f64],
+        norms: bool,
+    ) -> f64 {
+        if !norms {
+            return match self.schedule.p {
+                1 => self.taylor_term_p::<1, false>(dir, psi, f, term, drive, next, sum),
+                2 => self.taylor_term_p::<2, false>(dir, psi, f, term, drive, next, sum),
+                3 => self.taylor_term_p::<3, false>(dir, psi, f, term, drive, next, sum),
+                4 => self.taylor_term_p::<4, false>(dir, psi, f, term, drive, next, sum),
+                5 => self.taylor_term_p::<5, false>(dir, psi, f, term, drive, next, sum),
+                6 => self.taylor_term_p::<6, false>(dir, psi, f, term, drive, next, sum),
+                _ => self.taylor_term(dir, psi, f, term, drive, next, sum, true),
+            };
+        }
         match self.schedule.p {
-            1 => self.generator_p::<1>(dir, k, x, y),
-            2 => self.generator_p::<2>(dir, k, x, y),
-            3 => self.generator_p::<3>(dir, k, x, y),
-            4 => self.generator_p::<4>(dir, k, x, y),
-            5 => self.generator_p::<5>(dir, k, x, y),
-            6 => self.generator_p::<6>(dir, k, x, y),
-            _ => self.generator_any(dir, k, x, y),
+            1 => self.taylor_term_p::<1, true>(dir, psi, f, term, drive, next, sum),
+            2 => self.taylor_term_p::<2, true>(dir, psi, f, term, drive, next, sum),
+            3 => self.taylor_term_p::<3, true>(dir, psi, f, term, drive, next, sum),
+            4 => self.taylor_term_p::<4, true>(dir, psi, f, term, drive, next, sum),
+            5 => self.taylor_term_p::<5, true>(dir, psi, f, term, drive, next, sum),
+            6 => self.taylor_term_p::<6, true>(dir, psi, f, term, drive, next, sum),
+            _ => {
+                self.generator_any(dir, psi, term, next);
+                let b = drive.unwrap_or(&[]);
+                let mut nsq = 0.0;
+                for (j, (nx, s)) in next.iter_mut().zip(sum.iter_mut()).enumerate() {
+                    *nx = f * (*nx + b.get(j).copied().unwrap_or(0.0));
+                    *s += *nx;
+                    nsq += *nx * *nx;
+                }
+                nsq
+            }
         }
     }
 
-    fn generator_p<const P: usize>(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+    #[allow(clippy::too_many_arguments)]
+    fn taylor_term_p<const P: usize, const NORMS: bool>(
+        &self,
+        dir: Direction,
+        psi: &[f64],
+        f: f64,
+        term: &[f64],
+        drive: Option<&[f64]>,
+        next: &mut [f64],
+        sum: &mut [f64],
+    ) -> f64 {
         let g = self.gains.flow_gain;
-        let kappa = self.gains.flow_coupling;
-        let n = self.schedule.n;
-        let rows = &self.schedule.rows[k * n..(k + 1) * n];
-        let (start, list) = self.neighbours(dir);
-        let block = |v: &[f64], i: usize| -> [f64; P] {
-            let mut out = [0.0; P];
-            out.copy_from_slice(&v[i * P..(i + 1) * P]);
-            out
+        let (start, list) = match dir {
+            Direction::Forward => (&self.listen_start, &self.flow_listens),
+            Direction::Adjoint => (&self.talk_start, &self.flow_talks),
         };
-        for (i, yi) in y.chunks_exact_mut(P).enumerate() {
-            let xi = block(x, i);
-            let r = rows[i] as usize;
-            let psi = block(self.schedule.psi[i], r);
+        let x = term.as_chunks::<P>().0;
+        let psi = psi.as_chunks::<P>().0;
+        let b = drive.map(|b| b.as_chunks::<P>().0);
+        let next = next.as_chunks_mut::<P>().0;
+        let sum = sum.as_chunks_mut::<P>().0;
+        // Squared norm per lane (one add per unit on each chain).
+        let mut nsq = [0.0; P];
+        for (i, (ni, si)) in next.iter_mut().zip(sum.iter_mut()).enumerate() {
+            let xi = x[i];
+            let psi = psi[i];
             let mut dot = 0.0;
             for c in 0..P {
                 dot += psi[c] * xi[c];
             }
             let s = -g * dot;
-            let d = -kappa * self.in_degree[i];
+            let d = self.flow_diagonal[i];
             let mut acc = [0.0; P];
             for c in 0..P {
                 acc[c] = s * psi[c] + d * xi[c];
             }
-            for &(nb, w) in &list[start[i]..start[i + 1]] {
-                let xk = block(x, nb as usize);
-                let kw = kappa * w;
+            for &(nb, kw) in &list[start[i]..start[i + 1]] {
+                let xk = x[nb as usize];
                 for c in 0..P {
                     acc[c] += kw * xk[c];
                 }
             }
-            yi.copy_from_slice(&acc);
+            if let Some(b) = b {
+                for c in 0..P {
+                    acc[c] += b[i][c];
+                }
+            }
+            for c in 0..P {
+                ni[c] = f * acc[c];
+                si[c] += ni[c];
+                if NORMS {
+                    nsq[c] += ni[c] * ni[c];
+                }
+            }
         }
+        nsq.iter().sum()
     }
 
-    fn generator_any(&self, dir: Direction, k: usize, x: &[f64], y: &mut [f64]) {
+    /// `y = A x` for the flow generator on grid interval `k` (any p).
+    fn generator_any(&self, dir: Direction, psi: &[f64], x: &[f64], y: &mut [f64]) {
         let p = self.schedule.p;
         let g = self.gains.flow_gain;
-        let n = self.schedule.n;
-        let rows = &self.schedule.rows[k * n..(k + 1) * n];
-        for (i, ((yi, xi), &r)) in y
+        for ((yi, xi), psi) in y
             .chunks_exact_mut(p)
             .zip(x.chunks_exact(p))
-            .zip(rows)
-            .enumerate()
+            .zip(psi.chunks_exact(p))
         {
-            let psi = &self.schedule.psi[i][r as usize * p..(r as usize + 1) * p];
             let dot: f64 = psi.iter().zip(xi).map(|(a, b)| a * b).sum();
             let s = -g * dot;
             yi.iter_mut().zip(psi).for_each(|(a, b)| *a = s * b);
@@ -446,18 +549,8 @@ impl<'a> ErrorSystem<'a> {
         drive: Option<&[f64]>,
         work: &mut Work,
     ) {
-        let (sigma, shifted) = self.shifted[k];
-        let use_shift = drive.is_none() && shifted < self.generator_norm(k);
-        let (shift, bound) = if use_shift {
-            (sigma, h * shifted)
-        } else {
-            (0.0, h * self.generator_norm(k))
-        };
+        let bound = h * self.generator_norm(k);
         if bound == 0.0 && drive.is_none() {
-            if shift > 0.0 {
-                let f = (-h * shift).exp();
-                x.iter_mut().for_each(|v| *v *= f);
-            }
             return;
         }
         let substeps = bound.ceil().max(1.0);
@@ -465,40 +558,39 @@ impl<'a> ErrorSystem<'a> {
         let a = bound / substeps;
         let terms = taylor_terms(a.max(f64::MIN_POSITIVE));
         let d = x.len();
-        work.term.resize(d, 0.0);
-        work.next.resize(d, 0.0);
-        work.sum.resize(d, 0.0);
+        let Work {
+            term,
+            next,
+            sum,
+            psi,
+        } = work;
+        let psi = self.schedule.interval_psi(k, psi);
+        term.resize(d, 0.0);
+        next.resize(d, 0.0);
+        sum.resize(d, 0.0);
         for _ in 0..substeps as usize {
-            work.term.copy_from_slice(x);
-            work.sum.copy_from_slice(x);
-            for m in 1..=terms {
-                self.generator(dir, k, &work.term, &mut work.next);
-                if shift > 0.0 {
-                    work.next
-                        .iter_mut()
-                        .zip(&work.term)
-                        .for_each(|(v, t)| *v += shift * t);
+            sum.copy_from_slice(x);
+            let xsq = if drive.is_none() { square_norm(x) } else { 0.0 };
+            let mut tsq = self.taylor_term(dir, psi, hs, x, drive, term, sum, NORMS_FROM <= 1);
+            // A posteriori stop (no drive): term m+j is (hA)ʲ term_m·m!/(m+j)!,
+            // so the remainder after term m is at most
+            // |term_m|·r/(1−r) with r = a/(m+1); stop once that is below the
+            // tolerance relative to |x| (never later than the a priori count).
+            let limit = TAYLOR_TOLERANCE * TAYLOR_TOLERANCE * xsq;
+            for m in 2..=terms {
+                if drive.is_none() && m > NORMS_FROM {
+                    let r = a / m as f64;
+                    let q = r / (1.0 - r);
+                    if tsq * q * q <= limit {
+                        break;
+                    }
                 }
-                if let (1, Some(b)) = (m, drive) {
-                    work.next.iter_mut().zip(b).for_each(|(v, b)| *v += b);
-                }
-                let f = hs / m as f64;
-                for ((t, nx), s) in work
-                    .term
-                    .iter_mut()
-                    .zip(&work.next)
-                    .zip(work.sum.iter_mut())
-                {
-                    *t = f * nx;
-                    *s += *t;
-                }
+                // The stop is never met this early in practice: skip the norm.
+                let norm = drive.is_none() && m >= NORMS_FROM;
+                tsq = self.taylor_term(dir, psi, hs / m as f64, term, None, next, sum, norm);
+                std::mem::swap(term, next);
             }
-            if shift > 0.0 {
-                let f = (-hs * shift).exp();
-                x.iter_mut().zip(&work.sum).for_each(|(v, s)| *v = f * s);
-            } else {
-                x.copy_from_slice(&work.sum);
-            }
+            x.copy_from_slice(sum);
         }
     }
 
@@ -650,6 +742,18 @@ impl<'a> ErrorSystem<'a> {
         }
         diag
     }
+}
+
+/// `|x|²`, summed in four lanes.
+fn square_norm(x: &[f64]) -> f64 {
+    let (chunks, rest) = x.as_chunks::<4>();
+    let mut lanes = [0.0; 4];
+    for c in chunks {
+        for (l, v) in lanes.iter_mut().zip(c) {
+            *l += v * v;
+        }
+    }
+    lanes.iter().sum::<f64>() + rest.iter().map(|v| v * v).sum::<f64>()
 }
 
 /// Number of Taylor terms so that `a^{m+1}/(m+1)! · e^a ≤` [`TAYLOR_TOLERANCE`]
