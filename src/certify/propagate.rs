@@ -265,6 +265,20 @@ pub struct ErrorSystem<'a> {
     generator_norms: Vec<f64>,
 }
 
+/// The inputs of one Taylor term (see `ErrorSystem::taylor_term`).
+#[derive(Clone, Copy)]
+struct TermInput<'x> {
+    dir: Direction,
+    /// Regressors of the grid interval, `[i][p]`.
+    psi: &'x [f64],
+    /// The factor h/m of this term.
+    f: f64,
+    /// The previous term.
+    term: &'x [f64],
+    /// Constant drive (first term of a driven step only).
+    drive: Option<&'x [f64]>,
+}
+
 /// Which operator to apply: the error system or its transpose.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Direction {
@@ -409,47 +423,38 @@ impl<'a> ErrorSystem<'a> {
         }
     }
 
-    /// One Taylor term on grid interval `k`: `next = f·(A term + b)`
-    /// and `sum += next`, where `A term` is
-    /// `−γ_c ψ_i (ψ_iᵀ term_i) − κ (d_i term_i − Σ_k a_ik term_k)` (or with
-    /// Lᵀ) and `b` the optional drive; one pass over the units. Returns
-    /// `|next|²` when `norms` (else 0 where p ≤ 6).
-    #[allow(clippy::too_many_arguments)]
-    fn taylor_term(
+    /// One Taylor term: `next = f·(A term + b)` and `sum += next`, where
+    /// `A term` is `−γ_c ψ_i (ψ_iᵀ term_i) − κ (d_i term_i − Σ_k a_ik term_k)`
+    /// (or with Lᵀ) and `b` the optional drive; one pass over the units. Returns `|next|²`
+    /// when `norms` (else 0 where p ≤ 6).
+    fn taylor_term(&self, input: TermInput, next: &mut [f64], sum: &mut [f64], norms: bool) -> f64 {
+        if norms {
+            self.taylor_term_dispatch::<true>(input, next, sum)
+        } else {
+            self.taylor_term_dispatch::<false>(input, next, sum)
+        }
+    }
+
+    /// [`Self::taylor_term`] with a kernel specialised for p ≤ 6.
+    fn taylor_term_dispatch<const NORMS: bool>(
         &self,
-        dir: Direction,
-        psi: &[f64],
-        f: f64,
-        term: &[f64],
-        drive: Option<&[f64]>,
+        input: TermInput,
         next: &mut [f64],
         sum: &mut [f64],
-        norms: bool,
     ) -> f64 {
-        if !norms {
-            return match self.schedule.p {
-                1 => self.taylor_term_p::<1, false>(dir, psi, f, term, drive, next, sum),
-                2 => self.taylor_term_p::<2, false>(dir, psi, f, term, drive, next, sum),
-                3 => self.taylor_term_p::<3, false>(dir, psi, f, term, drive, next, sum),
-                4 => self.taylor_term_p::<4, false>(dir, psi, f, term, drive, next, sum),
-                5 => self.taylor_term_p::<5, false>(dir, psi, f, term, drive, next, sum),
-                6 => self.taylor_term_p::<6, false>(dir, psi, f, term, drive, next, sum),
-                _ => self.taylor_term(dir, psi, f, term, drive, next, sum, true),
-            };
-        }
         match self.schedule.p {
-            1 => self.taylor_term_p::<1, true>(dir, psi, f, term, drive, next, sum),
-            2 => self.taylor_term_p::<2, true>(dir, psi, f, term, drive, next, sum),
-            3 => self.taylor_term_p::<3, true>(dir, psi, f, term, drive, next, sum),
-            4 => self.taylor_term_p::<4, true>(dir, psi, f, term, drive, next, sum),
-            5 => self.taylor_term_p::<5, true>(dir, psi, f, term, drive, next, sum),
-            6 => self.taylor_term_p::<6, true>(dir, psi, f, term, drive, next, sum),
+            1 => self.taylor_term_p::<1, NORMS>(input, next, sum),
+            2 => self.taylor_term_p::<2, NORMS>(input, next, sum),
+            3 => self.taylor_term_p::<3, NORMS>(input, next, sum),
+            4 => self.taylor_term_p::<4, NORMS>(input, next, sum),
+            5 => self.taylor_term_p::<5, NORMS>(input, next, sum),
+            6 => self.taylor_term_p::<6, NORMS>(input, next, sum),
             _ => {
-                self.generator_any(dir, psi, term, next);
-                let b = drive.unwrap_or(&[]);
+                self.generator_any(input.dir, input.psi, input.term, next);
+                let b = input.drive.unwrap_or(&[]);
                 let mut nsq = 0.0;
                 for (j, (nx, s)) in next.iter_mut().zip(sum.iter_mut()).enumerate() {
-                    *nx = f * (*nx + b.get(j).copied().unwrap_or(0.0));
+                    *nx = input.f * (*nx + b.get(j).copied().unwrap_or(0.0));
                     *s += *nx;
                     nsq += *nx * *nx;
                 }
@@ -458,17 +463,19 @@ impl<'a> ErrorSystem<'a> {
         }
     }
 
-    #[allow(clippy::too_many_arguments)]
     fn taylor_term_p<const P: usize, const NORMS: bool>(
         &self,
-        dir: Direction,
-        psi: &[f64],
-        f: f64,
-        term: &[f64],
-        drive: Option<&[f64]>,
+        input: TermInput,
         next: &mut [f64],
         sum: &mut [f64],
     ) -> f64 {
+        let TermInput {
+            dir,
+            psi,
+            f,
+            term,
+            drive,
+        } = input;
         let g = self.gains.flow_gain;
         let (start, list) = match dir {
             Direction::Forward => (&self.listen_start, &self.flow_listens),
@@ -571,7 +578,18 @@ impl<'a> ErrorSystem<'a> {
         for _ in 0..substeps as usize {
             sum.copy_from_slice(x);
             let xsq = if drive.is_none() { square_norm(x) } else { 0.0 };
-            let mut tsq = self.taylor_term(dir, psi, hs, x, drive, term, sum, NORMS_FROM <= 1);
+            let mut tsq = self.taylor_term(
+                TermInput {
+                    dir,
+                    psi,
+                    f: hs,
+                    term: x,
+                    drive,
+                },
+                term,
+                sum,
+                NORMS_FROM <= 1,
+            );
             // A posteriori stop (no drive): term m+j is (hA)ʲ term_m·m!/(m+j)!,
             // so the remainder after term m is at most
             // |term_m|·r/(1−r) with r = a/(m+1); stop once that is below the
@@ -587,7 +605,18 @@ impl<'a> ErrorSystem<'a> {
                 }
                 // The stop is never met this early in practice: skip the norm.
                 let norm = drive.is_none() && m >= NORMS_FROM;
-                tsq = self.taylor_term(dir, psi, hs / m as f64, term, None, next, sum, norm);
+                tsq = self.taylor_term(
+                    TermInput {
+                        dir,
+                        psi,
+                        f: hs / m as f64,
+                        term,
+                        drive: None,
+                    },
+                    next,
+                    sum,
+                    norm,
+                );
                 std::mem::swap(term, next);
             }
             x.copy_from_slice(sum);
