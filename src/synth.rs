@@ -402,7 +402,8 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
 /// The certificate benchmark: [`bench_problem_sized`] with a 10 s stride and
 /// jump coupling 0.1, and a link set made of a structural plan (the
 /// incumbent of a search stopped by a node limit of 0: greedy, repaired and
-/// exchanged, the same on every machine) plus the cheapest other candidates until the digraph has about 4·n arcs.
+/// exchanged, the same on every machine) plus the cheapest other candidates
+/// until the digraph has about 4·n arcs.
 ///
 /// # Panics
 /// Never for n ≥ 2 and 0 < dt ≤ 1.

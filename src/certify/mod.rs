@@ -485,10 +485,6 @@ impl Trial {
             if todo.is_empty() {
                 break;
             }
-            let unbounded = todo
-                .iter()
-                .filter(|&&k| self.upper[k].is_infinite())
-                .count();
             if sample {
                 // Spread over the horizon: every (len/BATCH)-th window.
                 let step = todo.len().div_ceil(BATCH).max(1);
@@ -498,7 +494,8 @@ impl Trial {
                 let batch = if stop_above.is_finite() {
                     BATCH
                 } else {
-                    unbounded.max(BATCH)
+                    let unbounded = todo.iter().filter(|&&k| self.upper[k].is_infinite());
+                    unbounded.count().max(BATCH)
                 };
                 todo.truncate(batch);
                 todo.sort_unstable();
@@ -602,6 +599,13 @@ fn horizon_log_norm(problem: &Problem, system: &ErrorSystem, start: Option<Vec<f
     power_norm(system, &steps, &mut x, &mut Work::default(), 1e-3).log_norm
 }
 
+/// A certificate window of `multiple` × T is tried: the shortest always, the
+/// longer ones while they fit in half the horizon.
+fn fits(problem: &Problem, multiple: usize) -> bool {
+    let horizon = problem.domain.h1 - problem.domain.h0;
+    multiple == MULTIPLES[0] || problem.settings.window * multiple as f64 <= horizon / 2.0
+}
+
 /// The trials after the first (`first`, sampled when `lazy`), each window
 /// length twice the previous while it fits in half the horizon, until one
 /// does not improve the rate by 1 %. Returns the trials and the index of
@@ -613,8 +617,6 @@ fn longer_trials(
     lazy: bool,
     progress: bool,
 ) -> (Vec<Trial>, Option<usize>) {
-    let horizon = problem.domain.h1 - problem.domain.h0;
-    let fits = |m: usize| problem.settings.window * m as f64 <= horizon / 2.0;
     let Some(first) = first else {
         return (Vec::new(), None);
     };
@@ -622,7 +624,7 @@ fn longer_trials(
     let mut trials = vec![first];
     let mut first_pending = lazy;
     for &m in &MULTIPLES[1..] {
-        if !fits(m) {
+        if !fits(problem, m) {
             break;
         }
         if progress {
@@ -733,16 +735,14 @@ pub fn certify_with(
     // the certificate to take a while.
     let progress =
         std::io::stderr().is_terminal() && system.dim() * problem.domain.grid.len() > 2_000_000;
-    // The whole-horizon norm runs beside the window trials.
     // The first (shortest) trial runs alone; then the longer ones run
     // beside the whole-horizon norm, which starts from the singular vector
     // of the first window (the slow direction at h0).
     let t0 = std::time::Instant::now();
-    let fits = |m: usize| m == 1 || problem.settings.window * m as f64 <= horizon / 2.0;
     // The first trial is only sampled while a longer one follows: its exact
     // ρ matters only when the longer window does not improve the rate by
     // 1 %, which a sampled window can rule out.
-    let lazy = MULTIPLES.get(1).is_some_and(|&m| fits(m));
+    let lazy = MULTIPLES.get(1).is_some_and(|&m| fits(problem, m));
     if progress {
         eprint!(
             "\rcertificate: windows of {} s   ",
@@ -757,8 +757,13 @@ pub fn certify_with(
         .as_ref()
         .and_then(|t| t.norms[t.index_at(problem.domain.h0)?].as_ref())
         .map(|n| n.right.clone());
-    let ((trials, best), (log_h, horizon_time)) = rayon::join(
-        || longer_trials(problem, &system, first, lazy, progress),
+    let first_time = t0.elapsed();
+    let ((trials, best, windows_time), (log_h, horizon_time)) = rayon::join(
+        || {
+            let t1 = std::time::Instant::now();
+            let (trials, best) = longer_trials(problem, &system, first, lazy, progress);
+            (trials, best, first_time + t1.elapsed())
+        },
         || {
             let t0 = std::time::Instant::now();
             (
@@ -767,7 +772,6 @@ pub fn certify_with(
             )
         },
     );
-    let windows_time = t0.elapsed();
     let iterations = trials.iter().map(Trial::iterations).sum::<usize>();
     if progress {
         eprintln!();

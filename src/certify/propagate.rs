@@ -425,8 +425,8 @@ impl<'a> ErrorSystem<'a> {
 
     /// One Taylor term: `next = f·(A term + b)` and `sum += next`, where
     /// `A term` is `−γ_c ψ_i (ψ_iᵀ term_i) − κ (d_i term_i − Σ_k a_ik term_k)`
-    /// (or with Lᵀ) and `b` the optional drive; one pass over the units. Returns `|next|²`
-    /// when `norms` (else 0 where p ≤ 6).
+    /// (or with Lᵀ) and `b` the optional drive; one pass over the units.
+    /// Returns `|next|²` when `norms` (else 0 where p ≤ 6).
     fn taylor_term(&self, input: TermInput, next: &mut [f64], sum: &mut [f64], norms: bool) -> f64 {
         if norms {
             self.taylor_term_dispatch::<true>(input, next, sum)
@@ -523,7 +523,8 @@ impl<'a> ErrorSystem<'a> {
         nsq.iter().sum()
     }
 
-    /// `y = A x` for the flow generator on grid interval `k` (any p).
+    /// `y = A x` for the flow generator with the interval's regressors
+    /// `psi` (`[i][p]`, any p).
     fn generator_any(&self, dir: Direction, psi: &[f64], x: &[f64], y: &mut [f64]) {
         let p = self.schedule.p;
         let g = self.gains.flow_gain;

@@ -408,14 +408,14 @@ impl<'a, 'b> Search<'a, 'b> {
             separate(self.inst, y, &THRESHOLDS, &mut rows);
             if deep {
                 grow_separate(self.inst, y, 8, &mut rows);
-            }
-            if deep || rows.is_empty() {
-                let size = match (deep, !rows.is_empty()) {
-                    (true, true) => ROOT_SUPPLEMENT,
-                    (true, false) => ROOT_SUPPORT,
-                    (false, _) => NODE_SUPPORT,
+                let size = if rows.is_empty() {
+                    ROOT_SUPPORT
+                } else {
+                    ROOT_SUPPLEMENT
                 };
                 support_separate(self.inst, y, size, &mut rows);
+            } else if rows.is_empty() {
+                support_separate(self.inst, y, NODE_SUPPORT, &mut rows);
             }
             let integral = y.iter().all(|v| v.min(1.0 - v).abs() < INT_TOL);
             if integral {

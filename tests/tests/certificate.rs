@@ -356,6 +356,18 @@ fn random_network(seed: u64, n: usize, p: usize, one_way: bool, hybrid: bool) ->
     (problem, rng)
 }
 
+/// Arguments of [`random_network`]: seed, units, parameters, one-way
+/// links, hybrid windows.
+fn network_cases() -> impl Strategy<Value = (u64, usize, usize, bool, bool)> {
+    (
+        0u64..10_000,
+        2usize..5,
+        1usize..4,
+        proptest::bool::ANY,
+        proptest::bool::ANY,
+    )
+}
+
 /// The regressors copied by grid interval (the fast layout) and gathered
 /// from the logs at every step give the same propagation, bit for bit.
 #[test]
@@ -498,11 +510,7 @@ proptest! {
     /// (reference: the rule of docs/theory.md §6 applied by brute force).
     #[test]
     fn window_choice_matches_exhaustive_evaluation(
-        seed in 0u64..10_000,
-        n in 2usize..5,
-        p in 1usize..4,
-        one_way in proptest::bool::ANY,
-        hybrid in proptest::bool::ANY,
+        (seed, n, p, one_way, hybrid) in network_cases(),
     ) {
         let (problem, _) = random_network(seed, n, p, one_way, hybrid);
         let table = ExcitationTable::build(&problem);
@@ -526,11 +534,7 @@ proptest! {
     /// matrix).
     #[test]
     fn simulation_stays_under_the_certified_envelope(
-        seed in 0u64..10_000,
-        n in 2usize..5,
-        p in 1usize..4,
-        one_way in proptest::bool::ANY,
-        hybrid in proptest::bool::ANY,
+        (seed, n, p, one_way, hybrid) in network_cases(),
     ) {
         let (problem, mut rng) = random_network(seed, n, p, one_way, hybrid);
         let table = ExcitationTable::build(&problem);
