@@ -1,6 +1,6 @@
 //! Runs the planner on seeded synthetic benchmark instances and prints one
 //! line per instance: `cargo run --release --example plan_scaling -- N SEED
-//! [TIME_LIMIT_S] [MU_FRACTION]`.
+//! [TIME_LIMIT_S] [MU_FRACTION] [NODE_LIMIT]`.
 
 use exmesh::search::{self, Options};
 use exmesh::{ExcitationTable, synth};
@@ -12,6 +12,7 @@ fn main() {
     let seed: u64 = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(1);
     let limit: f64 = args.get(3).and_then(|s| s.parse().ok()).unwrap_or(60.0);
     let mu: f64 = args.get(4).and_then(|s| s.parse().ok()).unwrap_or(0.03);
+    let node_limit: Option<u64> = args.get(5).and_then(|s| s.parse().ok());
     let t = Instant::now();
     let problem = synth::bench_problem(n, seed, mu);
     let table = ExcitationTable::build(&problem);
@@ -19,6 +20,7 @@ fn main() {
     let options = Options {
         time_limit: Some(Duration::from_secs_f64(limit)),
         progress: true,
+        node_limit,
         ..Default::default()
     };
     let t = Instant::now();

@@ -285,6 +285,9 @@ struct Search<'a, 'b> {
     last_progress: Instant,
     /// Objective of the last LP looked at by the cut loop.
     last_objective: f64,
+    /// Best proven lower bound so far (for the progress line): the root
+    /// LP value while the root is cut, then the smallest open node bound.
+    shown_bound: f64,
     node_limit: Option<u64>,
     /// See [`Lp::lost`].
     lost: Rc<Cell<f64>>,
@@ -304,6 +307,7 @@ impl<'a, 'b> Search<'a, 'b> {
             progress: progress && std::io::stderr().is_terminal(),
             last_progress: now,
             last_objective: f64::NEG_INFINITY,
+            shown_bound: f64::NEG_INFINITY,
             node_limit: limits.nodes,
             lost: Rc::new(Cell::new(f64::INFINITY)),
         }
@@ -475,16 +479,21 @@ impl<'a, 'b> Search<'a, 'b> {
                 let y = lp.values();
                 self.heuristic(&y);
             }
-            self.report(None);
+            // At a root every LP value is a bound.
+            let shown = deep.then(|| bound_of(self.inst, lp.objective()));
+            self.report(shown);
         }
     }
 
     fn report(&mut self, bound: Option<f64>) {
+        if let Some(b) = bound {
+            self.shown_bound = self.shown_bound.max(b);
+        }
         if !self.progress || self.last_progress.elapsed() < Duration::from_millis(500) {
             return;
         }
         self.last_progress = Instant::now();
-        let b = bound.unwrap_or(self.stats.root_bound);
+        let b = self.shown_bound.max(0.0);
         eprint!(
             "\r  {:>6.1} s  nodes {:>6}  rounds {:>6}  rows {:>6}  best {:>12.2}  bound {:>12.2}   ",
             self.start.elapsed().as_secs_f64(),
@@ -648,6 +657,9 @@ pub(crate) fn search(
         let mut fixings = node.fixings;
         let mut depth = node.depth;
         let mut origin = node.origin;
+        // A child's LP may lack rows its parent had (it is rebuilt from the
+        // master), so its bound is at least its parent's.
+        let mut parent_bound = global;
         // Dive: process, branch, continue with the y = 1 child.
         loop {
             s.stats.nodes += 1;
@@ -706,7 +718,8 @@ pub(crate) fn search(
                         s.stats.heuristic_time += t.elapsed();
                     } else {
                         // Cutting stopped on the deadline: keep the node open.
-                        heap.push(Node::reopened(bound_of(inst, obj), depth, &fixings));
+                        let b = bound_of(inst, obj).max(parent_bound);
+                        heap.push(Node::reopened(b, depth, &fixings));
                         timed_out = true;
                     }
                     break;
@@ -715,7 +728,8 @@ pub(crate) fn search(
                     if s.stats.nodes.is_multiple_of(20) {
                         s.heuristic(&y);
                     }
-                    let b = bound_of(inst, obj);
+                    let b = bound_of(inst, obj).max(parent_bound);
+                    parent_bound = b;
                     let mut zero = fixings.clone();
                     zero.push((k as u32, false));
                     let stored = (heap.len() < STORED_LPS).then(|| lp.duplicate());
