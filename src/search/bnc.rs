@@ -52,6 +52,15 @@ const ROOT_SUPPLEMENT: usize = 5;
 /// Separation rounds per node below the root (fractional points).
 const NODE_ROUNDS: u32 = 8;
 const INT_TOL: f64 = 1e-6;
+/// A dive continues with the y = 1 child only while the child's bound lies
+/// within this share of the way from the best open bound to the cutoff;
+/// otherwise the child is queued with its LP and the best node is taken
+/// (a limited plunge, as in best-first search with plunging; the value 0.25
+/// is the quotient SCIP's best-first node selector uses, from memory).
+/// Measured at 1000 nodes on the 150-unit benchmark (seeds 1/2/3): bound
+/// 65932/71681/71076 with an unlimited dive, 66023/71753/71222 with 0.25;
+/// on seed 1, 0 (no plunging) gave 65944, 0.1 66016, 0.5 66006.
+const PLUNGE_QUOT: f64 = 0.25;
 
 struct Lp {
     sol: Solution,
@@ -163,6 +172,8 @@ struct Node {
     depth: u32,
     fixings: Vec<(u32, bool)>,
     lp: Option<Lp>,
+    /// The LP already holds every fixing (a plunge that stopped).
+    settled: bool,
     /// The branching that made this node: variable, direction, parent LP
     /// objective and the distance moved (for pseudocosts).
     origin: Option<Origin>,
@@ -176,6 +187,7 @@ impl Node {
             depth,
             fixings: fixings.to_vec(),
             lp: None,
+            settled: false,
             origin: None,
         }
     }
@@ -399,8 +411,7 @@ impl<'a, 'b> Search<'a, 'b> {
             .iter()
             .enumerate()
             .filter(|(i, _)| !lp.has(*i))
-            .map(|(i, r)| (r.violation(y), i))
-            .filter(|(v, _)| *v > 1e-6)
+            .filter_map(|(i, r)| r.violated_by(y, 1e-6).map(|v| (v, i)))
             .collect();
         if found.is_empty() {
             let mut rows = Vec::new();
@@ -623,6 +634,7 @@ pub(crate) fn search(
         depth: 0,
         fixings: Vec::new(),
         lp: None,
+        settled: false,
         origin: None,
     });
     let mut pseudo = Pseudocosts::new(inst.links.len());
@@ -640,6 +652,7 @@ pub(crate) fn search(
         s.report(Some(global));
         let t = Instant::now();
         let lp = match node.lp {
+            Some(lp) if node.settled => Some(lp),
             // The parent's LP: apply the last fixing.
             Some(lp) => node
                 .fixings
@@ -738,6 +751,7 @@ pub(crate) fn search(
                         depth: depth + 1,
                         fixings: zero,
                         lp: stored,
+                        settled: false,
                         origin: Some(Origin {
                             var: k,
                             up: false,
@@ -757,10 +771,25 @@ pub(crate) fn search(
                     let next = lp.fix(k, true);
                     s.stats.lp_time += t.elapsed();
                     s.stats.lp_solves += 1;
-                    match next {
-                        Some(next) => current = next,
-                        None => break,
+                    let Some(next) = next else { break };
+                    // Plunge only while the child stays near the best open
+                    // bound; otherwise it waits in the queue with its LP.
+                    let child = bound_of(inst, next.objective()).max(b);
+                    if let Some(top) = heap.peek().filter(|_| heap.len() < STORED_LPS) {
+                        let low = top.bound.max(lower);
+                        if child > low + PLUNGE_QUOT * (s.cutoff() - low) {
+                            heap.push(Node {
+                                bound: child,
+                                depth,
+                                fixings: fixings.clone(),
+                                lp: Some(next),
+                                settled: true,
+                                origin,
+                            });
+                            break;
+                        }
                     }
+                    current = next;
                     if s.timed_out() {
                         heap.push(Node::reopened(b, depth, &fixings));
                         timed_out = true;

@@ -1060,10 +1060,19 @@ impl Solver {
         let first_new_row = self.num_constraints();
         let first_slack_var = self.num_total_vars();
         let new_num_total_vars = first_slack_var + prepared.len();
-        let mut new_orig_constraints = CsMat::empty(CompressedStorage::CSR, new_num_total_vars);
+        // The matrix is rebuilt into vectors of the final size (appending
+        // row by row to an empty matrix reallocated them many times).
+        let old_rows = self.orig_constraints.rows();
+        let new_nnz = self.orig_constraints.nnz()
+            + prepared.iter().map(|r| r.coeffs.nnz() + 1).sum::<usize>();
+        let mut indptr = Vec::with_capacity(old_rows + prepared.len() + 1);
+        let mut indices = Vec::with_capacity(new_nnz);
+        let mut data = Vec::with_capacity(new_nnz);
+        indptr.push(0);
         for row in self.orig_constraints.outer_iterator() {
-            new_orig_constraints =
-                new_orig_constraints.append_outer_csvec(resized_view(&row, new_num_total_vars));
+            indices.extend_from_slice(row.indices());
+            data.extend_from_slice(row.data());
+            indptr.push(indices.len());
         }
         for (
             j,
@@ -1097,14 +1106,21 @@ impl Solver {
             }
             self.basic_var_vals.push(rhs - lhs_val);
 
-            let mut coeffs = into_resized(coeffs, new_num_total_vars);
-            coeffs.append(slack_var, 1.0);
-            new_orig_constraints = new_orig_constraints.append_outer_csvec(coeffs.view());
+            indices.extend_from_slice(coeffs.indices());
+            data.extend_from_slice(coeffs.data());
+            indices.push(slack_var);
+            data.push(1.0);
+            indptr.push(indices.len());
             self.orig_rhs.push(rhs);
             self.row_scales.push(row_scale);
         }
 
-        self.orig_constraints = new_orig_constraints;
+        self.orig_constraints = CsMat::new(
+            (indptr.len() - 1, new_num_total_vars),
+            indptr,
+            indices,
+            data,
+        );
         self.orig_constraints_csc = self.orig_constraints.to_csc();
 
         self.basis_solver
