@@ -7,6 +7,7 @@ use crate::{
     ComparisonOp, CsVec, Error, StopReason, VarDomain,
 };
 use sprs::CompressedStorage;
+use std::sync::Arc;
 
 use web_time::Instant;
 
@@ -210,8 +211,10 @@ pub(crate) struct Solver {
     orig_var_mins: Vec<f64>,
     orig_var_maxs: Vec<f64>,
     pub(crate) orig_var_domains: Vec<VarDomain>,
-    orig_constraints: CsMat, // excluding rhs
-    orig_constraints_csc: CsMat,
+    // Shared between clones (added for exmesh): a branch-and-bound search
+    // keeps many copies of one LP, and only `add_constraint(s)` replace them.
+    orig_constraints: Arc<CsMat>, // excluding rhs
+    orig_constraints_csc: Arc<CsMat>,
     orig_rhs: Vec<f64>,
     /// Positive per-row equilibration factors. Every row is multiplied by
     /// these internally; validation multiplies its absolute user tolerance by
@@ -502,8 +505,8 @@ impl Solver {
             orig_obj_coeffs,
             orig_var_mins,
             orig_var_maxs,
-            orig_constraints,
-            orig_constraints_csc,
+            orig_constraints: Arc::new(orig_constraints),
+            orig_constraints_csc: Arc::new(orig_constraints_csc),
             orig_rhs,
             row_scales,
             deadline,
@@ -1115,13 +1118,13 @@ impl Solver {
             self.row_scales.push(row_scale);
         }
 
-        self.orig_constraints = CsMat::new(
+        self.orig_constraints = Arc::new(CsMat::new(
             (indptr.len() - 1, new_num_total_vars),
             indptr,
             indices,
             data,
-        );
-        self.orig_constraints_csc = self.orig_constraints.to_csc();
+        ));
+        self.orig_constraints_csc = Arc::new(self.orig_constraints.to_csc());
 
         self.basis_solver
             .reset(&self.orig_constraints_csc, &self.basic_vars)?;
@@ -1198,8 +1201,8 @@ impl Solver {
         self.orig_rhs.push(rhs);
         self.row_scales.push(row_scale);
 
-        self.orig_constraints = new_orig_constraints;
-        self.orig_constraints_csc = self.orig_constraints.to_csc();
+        self.orig_constraints = Arc::new(new_orig_constraints);
+        self.orig_constraints_csc = Arc::new(self.orig_constraints.to_csc());
 
         self.basis_solver
             .reset(&self.orig_constraints_csc, &self.basic_vars)?;
