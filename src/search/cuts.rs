@@ -687,6 +687,35 @@ mod tests {
     use crate::signal::Window;
     use crate::synth::Rng;
 
+    /// The early-stopping scan agrees with the full sum (common practice:
+    /// a shortcut is checked against the plain computation): on random rows
+    /// and LP-like points (values in [0, 1], many at 0 or 1, a few at
+    /// −1e−12), it reports exactly the rows whose full violation exceeds the
+    /// tolerance, with the same value.
+    #[test]
+    fn early_stopping_scan_matches_the_full_sum() {
+        let mut rng = Rng(11);
+        for _ in 0..2000 {
+            let m = 1 + rng.below(30);
+            let y: Vec<f64> = (0..m)
+                .map(|_| match rng.below(5) {
+                    0 => 0.0,
+                    1 => 1.0,
+                    2 => -1e-12,
+                    _ => (rng.below(8) as f64) / 8.0,
+                })
+                .collect();
+            let links: Vec<u32> = (0..1 + rng.below(m)).map(|_| rng.below(m) as u32).collect();
+            let row = Row {
+                links,
+                rhs: 1 + rng.below(4) as u32,
+            };
+            let full = row.violation(&y);
+            let expected = (full > 1e-6).then_some(full);
+            assert_eq!(row.violated_by(&y, 1e-6), expected, "{row:?} {y:?}");
+        }
+    }
+
     /// Validity against brute force: on random small instances (rank-1
     /// Gramians in R², two windows, random one- and two-way links), every
     /// partition row of random parts holds for every link subset that
