@@ -165,18 +165,25 @@ impl Lp {
 }
 
 /// An open node: its fixings, the bound inherited from its parent, and
-/// (while memory allows) the parent's LP, to which only the last fixing is
-/// still to be applied.
+/// (while memory allows) an LP to start from.
 struct Node {
     bound: f64,
     depth: u32,
     fixings: Vec<(u32, bool)>,
-    lp: Option<Lp>,
-    /// The LP already holds every fixing (a plunge that stopped).
-    settled: bool,
+    lp: NodeLp,
     /// The branching that made this node: variable, direction, parent LP
     /// objective and the distance moved (for pseudocosts).
     origin: Option<Origin>,
+}
+
+/// Where an open node's LP comes from.
+enum NodeLp {
+    /// Rebuilt from the master LP and the node's fixings.
+    Rebuild,
+    /// The parent's LP, to which only the last fixing is still to be applied.
+    Parent(Lp),
+    /// The node's own LP, holding every fixing (a dive that stopped).
+    Ready(Lp),
 }
 
 impl Node {
@@ -186,8 +193,7 @@ impl Node {
             bound,
             depth,
             fixings: fixings.to_vec(),
-            lp: None,
-            settled: false,
+            lp: NodeLp::Rebuild,
             origin: None,
         }
     }
@@ -633,8 +639,7 @@ pub(crate) fn search(
         bound: lower,
         depth: 0,
         fixings: Vec::new(),
-        lp: None,
-        settled: false,
+        lp: NodeLp::Rebuild,
         origin: None,
     });
     let mut pseudo = Pseudocosts::new(inst.links.len());
@@ -652,19 +657,19 @@ pub(crate) fn search(
         s.report(Some(global));
         let t = Instant::now();
         let lp = match node.lp {
-            Some(lp) if node.settled => Some(lp),
-            // The parent's LP: apply the last fixing.
-            Some(lp) => node
-                .fixings
-                .last()
-                .and_then(|&(k, v)| lp.fix(k as usize, v)),
+            NodeLp::Ready(lp) => Some(lp),
+            NodeLp::Parent(lp) => {
+                s.stats.lp_solves += 1;
+                node.fixings
+                    .last()
+                    .and_then(|&(k, v)| lp.fix(k as usize, v))
+            }
             // Rebuild from the master (which holds every used pool row).
-            None => {
-                s.stats.lp_solves += node.fixings.len() as u64;
+            NodeLp::Rebuild => {
+                s.stats.lp_solves += node.fixings.len() as u64 + 1;
                 master.duplicate().fix_all(&node.fixings)
             }
         };
-        s.stats.lp_solves += 1;
         s.stats.lp_time += t.elapsed();
         let Some(mut current) = lp else { continue };
         let mut fixings = node.fixings;
@@ -745,13 +750,16 @@ pub(crate) fn search(
                     parent_bound = b;
                     let mut zero = fixings.clone();
                     zero.push((k as u32, false));
-                    let stored = (heap.len() < STORED_LPS).then(|| lp.duplicate());
+                    let stored = if heap.len() < STORED_LPS {
+                        NodeLp::Parent(lp.duplicate())
+                    } else {
+                        NodeLp::Rebuild
+                    };
                     heap.push(Node {
                         bound: b,
                         depth: depth + 1,
                         fixings: zero,
                         lp: stored,
-                        settled: false,
                         origin: Some(Origin {
                             var: k,
                             up: false,
@@ -781,9 +789,8 @@ pub(crate) fn search(
                             heap.push(Node {
                                 bound: child,
                                 depth,
-                                fixings: fixings.clone(),
-                                lp: Some(next),
-                                settled: true,
+                                fixings: std::mem::take(&mut fixings),
+                                lp: NodeLp::Ready(next),
                                 origin,
                             });
                             break;
