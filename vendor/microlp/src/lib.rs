@@ -517,6 +517,60 @@ impl Problem {
     }
 }
 
+/// A solved LP's basis and dual pricing weights, small enough to keep for
+/// many open branch-and-bound nodes, from which [`Problem::solve_warm`]
+/// restarts the same LP (or one with tightened variable bounds). Added for
+/// exmesh.
+#[derive(Clone, Debug)]
+pub struct WarmStart {
+    basis: solver::Basis,
+    dual_norms: Vec<f64>,
+}
+
+impl Problem {
+    /// Solves this LP starting from `warm`, the basis of a solution of a
+    /// problem with the same variables and the same constraints in the same
+    /// order (variable bounds may differ). The basis is refactorised, the
+    /// values are recomputed from the bounds, and the simplex goes on from
+    /// there (dual simplex when only bounds were tightened). Falls back to a
+    /// cold solve when the basis does not fit or is singular. Added for
+    /// exmesh; only for problems without integer variables.
+    ///
+    /// # Errors
+    ///
+    /// As [`Problem::solve`].
+    pub fn solve_warm(&self, warm: &WarmStart) -> Result<SolveOutcome, Error> {
+        if self.has_integer_vars() {
+            return Err(Error::InternalError(
+                "solve_warm is only for LP problems".to_string(),
+            ));
+        }
+        let started = Instant::now();
+        let deadline = self.time_limit.map(|duration| started + duration);
+        let mut solver = self.build_solver(deadline)?;
+        solver.operation_time_limit = self.time_limit;
+        if solver.load_basis(&warm.basis).is_ok() {
+            solver.set_dual_norms(&warm.dual_norms);
+        } else {
+            solver = self.build_solver(deadline)?;
+            solver.operation_time_limit = self.time_limit;
+        }
+        let stop = solver.initial_solve()?;
+        solver.elapsed += started.elapsed();
+        let options = SolveOptions {
+            time_limit: self.time_limit,
+            ..SolveOptions::default()
+        };
+        Ok(SolveOutcome::from_lp_stop(
+            self.direction,
+            self.obj_coeffs.len(),
+            stop,
+            Box::new(solver),
+            ResumeOptions::from(&options),
+        ))
+    }
+}
+
 #[derive(Clone)]
 enum SolveState {
     Lp(Box<Solver>),
@@ -1000,6 +1054,19 @@ impl Solution {
                     last_options,
                 ))
             }
+        }
+    }
+
+    /// The basis and dual pricing weights of this LP solution, to restart
+    /// it later with [`Problem::solve_warm`]; `None` for a solution of a
+    /// problem with integer variables. Added for exmesh.
+    pub fn warm_start(&self) -> Option<WarmStart> {
+        match &self.state {
+            SolveState::Lp(solver) => Some(WarmStart {
+                basis: solver.snapshot_basis(),
+                dual_norms: solver.dual_norms(),
+            }),
+            SolveState::Mip(_) => None,
         }
     }
 

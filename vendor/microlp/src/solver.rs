@@ -556,6 +556,30 @@ impl Solver {
         Ok(res)
     }
 
+    /// The dual steepest-edge weights of the basic variables in the order
+    /// of their indices, which is the row order [`Self::load_basis`] gives
+    /// them (empty when that pricing is off). Added for exmesh.
+    pub(crate) fn dual_norms(&self) -> Vec<f64> {
+        if !self.enable_dual_steepest_edge {
+            return Vec::new();
+        }
+        self.var_states
+            .iter()
+            .filter_map(|state| match *state {
+                VarState::Basic(row) => Some(self.dual_edge_sq_norms[row]),
+                VarState::NonBasic(_) => None,
+            })
+            .collect()
+    }
+
+    /// Restores dual steepest-edge weights saved with a basis; ignored when
+    /// their number does not match the rows. Added for exmesh.
+    pub(crate) fn set_dual_norms(&mut self, norms: &[f64]) {
+        if self.enable_dual_steepest_edge && norms.len() == self.dual_edge_sq_norms.len() {
+            self.dual_edge_sq_norms.copy_from_slice(norms);
+        }
+    }
+
     /// Reduced cost of a variable at the current basis (0 for basic
     /// variables). Added for exmesh.
     pub(crate) fn reduced_cost(&self, var: usize) -> f64 {
