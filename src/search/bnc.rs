@@ -5,7 +5,7 @@ use super::cuts::{
     Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
 };
 use super::heuristics::{exchange, repair};
-use super::instance::Instance;
+use super::instance::{Instance, OracleStats};
 use microlp::{
     ComparisonOp, LinearExpr, OptimizationDirection, Solution, SolveOutcome, Variable, WarmStart,
 };
@@ -14,6 +14,8 @@ use std::cmp::Ordering;
 use std::collections::BinaryHeap;
 use std::io::IsTerminal;
 use std::rc::Rc;
+use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
+use std::sync::{Arc, mpsc};
 use std::time::{Duration, Instant};
 
 /// Counters and timings of a search.
@@ -658,13 +660,105 @@ pub(crate) struct Limits {
     pub root_deadline: Option<Instant>,
 }
 
+/// Neighbourhood search on a second thread, with its own excitation
+/// oracle (the oracle's caches are not shared between threads). It runs
+/// twice: from the starting incumbent while the root is cut, and from the
+/// incumbent after the root while branch and bound goes on. The search
+/// takes each result at a fixed point (after the root; after
+/// [`HELPER_NODES`] nodes or when the tree is done), waiting for it if
+/// need be, so the plan does not depend on timing unless the deadline
+/// stops the work.
+struct Helper {
+    to: mpsc::Sender<Vec<bool>>,
+    from: mpsc::Receiver<(Vec<bool>, Duration, OracleStats)>,
+    stop: Arc<AtomicBool>,
+    /// A run was started and its result not taken yet.
+    pending: bool,
+}
+
+/// Branch-and-bound nodes after which the second neighbourhood search's
+/// result is taken.
+const HELPER_NODES: u64 = 100;
+
+impl Helper {
+    fn start(&mut self, from: &[bool]) {
+        if self.to.send(from.to_vec()).is_ok() {
+            self.pending = true;
+        }
+    }
+
+    /// Waits for the pending run and offers its result; `cancel` asks the
+    /// run to stop first (only when its result can no longer matter).
+    fn take(&mut self, s: &mut Search, cancel: bool) {
+        if !std::mem::take(&mut self.pending) {
+            return;
+        }
+        if cancel {
+            self.stop.store(true, AtomicOrdering::Relaxed);
+        }
+        if let Ok((improved, time, checks)) = self.from.recv() {
+            // Both summed over the two threads.
+            s.stats.heuristic_time += time;
+            s.inst.oracle.stats.borrow_mut().add(&checks);
+            s.offer(improved);
+        }
+    }
+}
+
+impl Drop for Helper {
+    fn drop(&mut self) {
+        // An early return: the thread's work is no longer wanted.
+        self.stop.store(true, AtomicOrdering::Relaxed);
+    }
+}
+
 pub(crate) fn search(
     inst: &Instance,
     start: Vec<bool>,
     limits: Limits,
     progress: bool,
 ) -> SearchResult {
+    if !limits.neighbourhood {
+        return search_with(inst, start, limits, progress, None);
+    }
+    let oracle = inst.oracle.fresh();
+    let (n, links) = (inst.n, inst.links.clone());
+    let (to, jobs) = mpsc::channel::<Vec<bool>>();
+    let (done, from) = mpsc::channel();
+    let stop = Arc::new(AtomicBool::new(false));
+    let flag = stop.clone();
+    std::thread::scope(|scope| {
+        scope.spawn(move || {
+            let sub = Instance::with_oracle(n, links, Rc::new(oracle));
+            for job in jobs {
+                let t = Instant::now();
+                let improved = super::lns::improve(&sub, &job, limits.deadline, &flag);
+                let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
+                if done.send((improved, t.elapsed(), checks)).is_err() {
+                    break;
+                }
+            }
+        });
+        let mut helper = Helper {
+            to,
+            from,
+            stop,
+            pending: false,
+        };
+        helper.start(&start);
+        search_with(inst, start, limits, progress, Some(helper))
+    })
+}
+
+fn search_with(
+    inst: &Instance,
+    start: Vec<bool>,
+    limits: Limits,
+    progress: bool,
+    mut helper: Option<Helper>,
+) -> SearchResult {
     let deadline = limits.deadline;
+    let start_set = start.clone();
     let mut s = Search::new(inst, start, limits, progress);
     s.seed_pool();
     let t = Instant::now();
@@ -688,11 +782,17 @@ pub(crate) fn search(
     s.stats.root_bound = root.objective();
     lower = lower.max(bound_of(inst, root.objective()));
     s.heuristic(&y);
-    if limits.neighbourhood && !s.timed_out() {
-        let t = Instant::now();
-        let improved = super::lns::improve(inst, &s.best, deadline);
-        s.stats.heuristic_time += t.elapsed();
-        s.offer(improved);
+    let mut helper_at = 0;
+    if let Some(h) = helper.as_mut() {
+        // The second run starts from the root's incumbent (roundings of LP
+        // points), which leads the search elsewhere than the first run's
+        // start, unless the root found nothing.
+        let rooted = (s.best != start_set).then(|| s.best.clone());
+        h.take(&mut s, false);
+        if !s.timed_out() {
+            h.start(rooted.as_deref().unwrap_or(&s.best));
+            helper_at = s.stats.nodes + HELPER_NODES;
+        }
     }
     if s.timed_out() {
         return finish(s, lower, true);
@@ -713,6 +813,9 @@ pub(crate) fn search(
     let mut pseudo = Pseudocosts::new(inst.links.len());
     let mut timed_out = false;
     while let Some(node) = heap.pop() {
+        if let Some(h) = helper.as_mut().filter(|_| s.stats.nodes >= helper_at) {
+            h.take(&mut s, false);
+        }
         if node.bound >= s.cutoff() {
             continue;
         }
@@ -882,6 +985,11 @@ pub(crate) fn search(
         if timed_out {
             break;
         }
+    }
+    if let Some(h) = helper.as_mut() {
+        // A finished tree proves the incumbent optimal: the run cannot
+        // find anything cheaper, so it is stopped rather than awaited.
+        h.take(&mut s, !timed_out);
     }
     let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
     let lb = if timed_out {

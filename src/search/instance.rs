@@ -29,6 +29,14 @@ pub(crate) struct OracleStats {
     pub time: Duration,
 }
 
+impl OracleStats {
+    pub fn add(&mut self, other: &OracleStats) {
+        self.queries += other.queries;
+        self.scans += other.scans;
+        self.time += other.time;
+    }
+}
+
 /// Answers "is this unit set excited?" with a cache, a rank-sum pre-test and
 /// an upper bound on the number of disjoint excited subsets.
 pub(crate) struct Oracle<'a> {
@@ -60,6 +68,23 @@ const SMALL: usize = 4;
 const EXACT_PARTS: usize = 10;
 
 impl<'a> Oracle<'a> {
+    /// A copy with empty caches, for use on another thread (the caches are
+    /// memos: answers do not depend on them).
+    pub fn fresh(&self) -> Self {
+        Oracle {
+            table: self.table,
+            ranks: self.ranks.clone(),
+            top_rank: self.top_rank.clone(),
+            dips: self.dips.clone(),
+            windows: self.windows,
+            p: self.p,
+            cache: RefCell::new(HashMap::default()),
+            order: RefCell::new((0..self.windows).collect()),
+            small_excited: RefCell::new(vec![Vec::new(); self.top_rank.len()]),
+            stats: RefCell::new(OracleStats::default()),
+        }
+    }
+
     pub fn new(table: &'a ExcitationTable) -> Self {
         let (n, w, p) = (table.n(), table.windows().len(), table.p());
         let threshold = table.min_excitation() / n as f64;

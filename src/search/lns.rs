@@ -7,9 +7,11 @@
 use super::bnc::{Limits, search};
 use super::instance::{Instance, PlanLink};
 use std::collections::VecDeque;
+use std::sync::atomic::{AtomicBool, Ordering::Relaxed};
 use std::time::Instant;
 
-/// Networks at least this large get neighbourhood search after the root.
+/// Networks at least this large get neighbourhood search (on a second
+/// thread, see `bnc::search`).
 pub(crate) const MIN_UNITS: usize = 60;
 /// Units per region: small networks leave more time to branch and cut,
 /// large ones (at or above `LARGE` units) need bigger moves. Measured on
@@ -27,7 +29,13 @@ const PASSES: usize = 10;
 /// Improves a feasible link set region by region, in passes over seeds
 /// taken from the units with the dearest chosen links, until a pass finds
 /// nothing (at most [`PASSES`]). Stops at the deadline.
-pub(crate) fn improve(inst: &Instance, start: &[bool], deadline: Option<Instant>) -> Vec<bool> {
+/// Stops at the deadline or once `stop` is set (checked between regions).
+pub(crate) fn improve(
+    inst: &Instance,
+    start: &[bool],
+    deadline: Option<Instant>,
+    stop: &AtomicBool,
+) -> Vec<bool> {
     let mut best = start.to_vec();
     let mut best_cost = inst.cost(&best);
     let nbrs = inst.neighbours();
@@ -55,7 +63,7 @@ pub(crate) fn improve(inst: &Instance, start: &[bool], deadline: Option<Instant>
             if covered[seed] {
                 continue;
             }
-            if deadline.is_some_and(|d| Instant::now() >= d) {
+            if deadline.is_some_and(|d| Instant::now() >= d) || stop.load(Relaxed) {
                 break;
             }
             let region = bfs_region(&nbrs, seed, region_size);
