@@ -697,9 +697,13 @@ impl Helper {
             self.stop.store(true, AtomicOrdering::Relaxed);
         }
         if let Ok((improved, time, checks)) = self.from.recv() {
-            // Both summed over the two threads.
+            // Both summed over the two threads. A stopped run's check
+            // counts depend on when it stopped; they are left out so that
+            // the reported figures stay deterministic.
             s.stats.heuristic_time += time;
-            s.inst.oracle.stats.borrow_mut().add(&checks);
+            if !cancel {
+                s.inst.oracle.stats.borrow_mut().add(&checks);
+            }
             s.offer(improved);
         }
     }

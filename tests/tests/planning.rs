@@ -482,3 +482,24 @@ fn rate_target_on_the_plateau_demo_is_met_and_rechecked() {
     assert!(c["certificate"]["rate"].as_f64().unwrap() >= 0.06);
     assert_eq!(c["certificate"]["rate"], v["rate"]["certified"]);
 }
+
+/// Networks of 60 units or more run neighbourhood search on a second
+/// thread; its results are taken at fixed points, so the plan is the same
+/// on every run: both when the tree is finished before the second result
+/// is due (60 units, proven optimal) and under a node limit (70 units).
+/// Byte-identical output for identical input is common practice.
+#[test]
+fn plans_with_the_helper_thread_are_identical_across_runs() {
+    for (n, nodes) in [(60, None), (70, Some(150))] {
+        let problem = exmesh::synth::bench_problem(n, 3, 0.03);
+        let table = ExcitationTable::build(&problem);
+        let options = Options {
+            node_limit: nodes,
+            ..Default::default()
+        };
+        let runs: Vec<String> = (0..2)
+            .map(|_| serde_json::to_string(&search::plan(&problem, &table, &options)).unwrap())
+            .collect();
+        assert_eq!(runs[0], runs[1], "{n} units");
+    }
+}
