@@ -629,7 +629,7 @@ fn compact(inst: &Instance, pool: &Pool, lp: Lp) -> Lp {
     let tight: Vec<u32> = (0..pool.rows.len() as u32)
         .filter(|&i| lp.has(i as usize) && pool.rows[i as usize].violation(&y) > -1e-7)
         .collect();
-    if tight.len() * 3 >= 2 * lp.has.iter().filter(|h| **h).count() {
+    if tight.len() * 3 >= 2 * lp.rows.len() {
         return lp;
     }
     let lost = lp.lost.clone();
@@ -762,8 +762,9 @@ fn search_with(
     mut helper: Option<Helper>,
 ) -> SearchResult {
     let deadline = limits.deadline;
-    let start_set = start.clone();
     let mut s = Search::new(inst, start, limits, progress);
+    // The incumbent changes only when something strictly cheaper is found.
+    let start_cost = s.best_cost;
     s.seed_pool();
     let t = Instant::now();
     let Some(root) = s.root_lp() else {
@@ -791,7 +792,7 @@ fn search_with(
         // The second run starts from the root's incumbent (roundings of LP
         // points), which leads the search elsewhere than the first run's
         // start, unless the root found nothing.
-        let rooted = (s.best != start_set).then(|| s.best.clone());
+        let rooted = (s.best_cost < start_cost).then(|| s.best.clone());
         h.take(&mut s, false);
         if !s.timed_out() {
             h.start(rooted.as_deref().unwrap_or(&s.best));

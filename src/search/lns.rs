@@ -28,8 +28,8 @@ const PASSES: usize = 10;
 
 /// Improves a feasible link set region by region, in passes over seeds
 /// taken from the units with the dearest chosen links, until a pass finds
-/// nothing (at most [`PASSES`]). Stops at the deadline.
-/// Stops at the deadline or once `stop` is set (checked between regions).
+/// nothing (at most [`PASSES`]). Stops at the deadline or once `stop` is
+/// set (checked between regions).
 pub(crate) fn improve(
     inst: &Instance,
     start: &[bool],

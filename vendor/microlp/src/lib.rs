@@ -499,21 +499,42 @@ impl Problem {
                 resume_options,
             ))
         } else {
-            let started = Instant::now();
-            let deadline = options.time_limit.map(|duration| started + duration);
+            self.solve_lp(&options, None)
+        }
+    }
+
+    /// The LP branch of [`Problem::solve_with`], optionally from a basis
+    /// (see [`Problem::solve_warm`]). Split out for exmesh.
+    fn solve_lp(
+        &self,
+        options: &SolveOptions,
+        warm: Option<&WarmStart>,
+    ) -> Result<SolveOutcome, Error> {
+        let started = Instant::now();
+        let deadline = options.time_limit.map(|duration| started + duration);
+        let fresh = || -> Result<Solver, Error> {
             let mut solver = self.build_solver(deadline)?;
             solver.operation_time_limit = options.time_limit;
-            let stop = solver.initial_solve()?;
-            solver.elapsed += started.elapsed();
-            let resume_options = ResumeOptions::from(&options);
-            Ok(SolveOutcome::from_lp_stop(
-                self.direction,
-                num_vars,
-                stop,
-                Box::new(solver),
-                resume_options,
-            ))
+            Ok(solver)
+        };
+        let mut solver = fresh()?;
+        if let Some(warm) = warm {
+            // A failed load leaves the solver unusable: start afresh.
+            if solver.load_basis(&warm.basis).is_ok() {
+                solver.set_dual_norms(&warm.dual_norms);
+            } else {
+                solver = fresh()?;
+            }
         }
+        let stop = solver.initial_solve()?;
+        solver.elapsed += started.elapsed();
+        Ok(SolveOutcome::from_lp_stop(
+            self.direction,
+            self.obj_coeffs.len(),
+            stop,
+            Box::new(solver),
+            ResumeOptions::from(options),
+        ))
     }
 }
 
@@ -545,29 +566,11 @@ impl Problem {
                 "solve_warm is only for LP problems".to_string(),
             ));
         }
-        let started = Instant::now();
-        let deadline = self.time_limit.map(|duration| started + duration);
-        let mut solver = self.build_solver(deadline)?;
-        solver.operation_time_limit = self.time_limit;
-        if solver.load_basis(&warm.basis).is_ok() {
-            solver.set_dual_norms(&warm.dual_norms);
-        } else {
-            solver = self.build_solver(deadline)?;
-            solver.operation_time_limit = self.time_limit;
-        }
-        let stop = solver.initial_solve()?;
-        solver.elapsed += started.elapsed();
         let options = SolveOptions {
             time_limit: self.time_limit,
             ..SolveOptions::default()
         };
-        Ok(SolveOutcome::from_lp_stop(
-            self.direction,
-            self.obj_coeffs.len(),
-            stop,
-            Box::new(solver),
-            ResumeOptions::from(&options),
-        ))
+        self.solve_lp(&options, Some(warm))
     }
 }
 
