@@ -4,6 +4,7 @@
 use super::cuts::{
     Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
 };
+use super::groups;
 use super::heuristics::{exchange, repair};
 use super::instance::{Instance, OracleStats};
 use microlp::{
@@ -33,6 +34,8 @@ pub(crate) struct SearchStats {
     pub heuristic_time: Duration,
     /// Links fixed by reduced cost, summed over nodes.
     pub fixed_by_cost: u64,
+    /// The bound from small components as columns, when computed.
+    pub group: Option<groups::GroupStats>,
 }
 
 /// Result of the search.
@@ -65,6 +68,14 @@ const INT_TOL: f64 = 1e-6;
 /// 65932/71681/71076 with an unlimited dive, 66023/71753/71222 with 0.25;
 /// on seed 1, 0 (no plunging) gave 65944, 0.1 66016, 0.5 66006.
 const PLUNGE_QUOT: f64 = 0.25;
+
+/// The bound from small components as columns (`groups`) runs on two-way
+/// networks of at least this many units, with components of up to
+/// `GROUP_SIZE` units as columns, fewer when the connected sets of that
+/// size would pass `GROUP_SETS`.
+const GROUP_MIN_UNITS: usize = 100;
+const GROUP_SIZE: usize = 6;
+const GROUP_SETS: usize = 500_000;
 
 struct Lp {
     sol: Solution,
@@ -148,11 +159,18 @@ impl Lp {
         self.edit(|sol, vars| sol.fix_var(vars[k], if value { 1.0 } else { 0.0 }))
     }
 
-    /// Applies fixings in turn (one dual-simplex pass each).
+    /// Applies fixings together (one dual-simplex pass).
     fn fix_all(self, fixings: &[(u32, bool)]) -> Option<Self> {
-        fixings
-            .iter()
-            .try_fold(self, |lp, &(k, v)| lp.fix(k as usize, v))
+        if fixings.is_empty() {
+            return Some(self);
+        }
+        self.edit(|sol, vars| {
+            let fixes: Vec<(Variable, f64)> = fixings
+                .iter()
+                .map(|&(k, v)| (vars[k as usize], if v { 1.0 } else { 0.0 }))
+                .collect();
+            sol.fix_vars(&fixes)
+        })
     }
 
     fn duplicate(&self) -> Self {
@@ -807,6 +825,41 @@ fn search_with(
     s.stats.lp_time += t.elapsed();
     s.stats.lp_solves += 1;
 
+    // A second bound, from small components as columns, on large two-way
+    // networks. It lifts the bound reported, not the tree's node bounds
+    // (which keep ordering the search).
+    let mut floor = f64::NEG_INFINITY;
+    if inst.n >= GROUP_MIN_UNITS && groups::applies(inst) {
+        let mut pool = std::mem::take(&mut s.pool);
+        let group = groups::group_bound(
+            inst,
+            &mut pool,
+            &master.rows,
+            GROUP_SIZE,
+            GROUP_SETS,
+            &THRESHOLDS,
+            deadline,
+            |b| s.report(Some(bound_of(inst, b))),
+        );
+        s.pool = pool;
+        s.stats.cuts = s.pool.rows.len() as u64;
+        if let Some(g) = group {
+            // A relative margin for the LP's tolerances.
+            floor = bound_of(inst, g.bound - 1e-9 * g.bound.abs());
+            s.stats.group = Some(g);
+            if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+                eprintln!("[groups] {g:?} at {:.1?}", s.start.elapsed());
+            }
+        }
+        if floor >= s.cutoff() {
+            let lb = s.best_cost;
+            return finish(s, lb, false);
+        }
+        if s.timed_out() {
+            return finish(s, lower.max(floor), true);
+        }
+    }
+
     let mut heap = BinaryHeap::new();
     heap.push(Node {
         bound: lower,
@@ -998,7 +1051,7 @@ fn search_with(
     }
     let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
     let lb = if timed_out {
-        open_bound.max(lower).min(s.best_cost)
+        open_bound.max(lower).max(floor).min(s.best_cost)
     } else {
         s.best_cost
     };

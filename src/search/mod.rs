@@ -7,6 +7,7 @@
 
 mod bnc;
 mod cuts;
+mod groups;
 mod heuristics;
 mod instance;
 mod lns;

@@ -548,6 +548,35 @@ pub struct WarmStart {
     dual_norms: Vec<f64>,
 }
 
+impl WarmStart {
+    /// This basis fitted to the same LP grown by `new_vars` variables added
+    /// after its first `vars` variables (which must be all of them) and by
+    /// `new_rows` constraints added after its rows: the new variables are
+    /// nonbasic at their lower bounds and the new rows' slack variables are
+    /// basic, as when they are added to a solved LP. Added for exmesh.
+    ///
+    /// # Panics
+    ///
+    /// Panics if the basis has fewer than `vars` entries.
+    pub fn grown(&self, vars: usize, new_vars: usize, new_rows: usize) -> WarmStart {
+        let old = &self.basis.0;
+        assert!(vars <= old.len());
+        let mut statuses = Vec::with_capacity(old.len() + new_vars + new_rows);
+        statuses.extend_from_slice(&old[..vars]);
+        statuses.extend(std::iter::repeat_n(solver::VarStatus::AtLower, new_vars));
+        statuses.extend_from_slice(&old[vars..]);
+        statuses.extend(std::iter::repeat_n(solver::VarStatus::Basic, new_rows));
+        let mut dual_norms = self.dual_norms.clone();
+        if !dual_norms.is_empty() {
+            dual_norms.extend(std::iter::repeat_n(1.0, new_rows));
+        }
+        WarmStart {
+            basis: solver::Basis(statuses),
+            dual_norms,
+        }
+    }
+}
+
 impl Problem {
     /// Solves this LP starting from `warm`, the basis of a solution of a
     /// problem with the same variables and the same constraints in the same
@@ -921,6 +950,21 @@ impl Solution {
         }
     }
 
+    /// The dual values of the constraint rows, in the order they were
+    /// added (for a minimisation, a `>=` row's dual is at least zero at an
+    /// optimum up to tolerances). `None` for solutions of problems with
+    /// integer variables. Added for exmesh.
+    pub fn row_duals(&self) -> Option<Vec<f64>> {
+        match &self.state {
+            SolveState::Lp(solver) => Some(
+                (0..solver.num_constraints())
+                    .map(|r| solver.row_dual(r))
+                    .collect(),
+            ),
+            SolveState::Mip(_) => None,
+        }
+    }
+
     /// Returns a variable's value, rounding integer and boolean variables.
     ///
     /// Real-valued variables are returned unchanged. Integer and boolean values
@@ -1174,6 +1218,56 @@ impl Solution {
                     last_options,
                 ))
             }
+        }
+    }
+
+    /// Consumes this LP solution, fixes several variables and solves the
+    /// edited problem once (one dual simplex pass, where
+    /// [`Solution::fix_var`] in turn makes one per variable). Added for
+    /// exmesh; only for solutions of problems without integer variables.
+    ///
+    /// # Errors
+    ///
+    /// As [`Solution::fix_var`]; [`Error::InternalError`] for a solution of
+    /// a problem with integer variables.
+    ///
+    /// # Panics
+    ///
+    /// Panics if a variable is out of range for this solution.
+    pub fn fix_vars(self, fixes: &[(Variable, f64)]) -> Result<SolveOutcome, Error> {
+        let last_options = self.last_options.clone();
+        let Self {
+            direction,
+            num_vars,
+            state,
+            ..
+        } = self;
+        let fixes: Vec<(usize, f64)> = fixes
+            .iter()
+            .map(|&(var, val)| {
+                assert!(var.0 < num_vars);
+                (var.0, val)
+            })
+            .collect();
+        if fixes.iter().any(|&(_, val)| !val.is_finite()) {
+            return Err(Error::Infeasible);
+        }
+        match state {
+            SolveState::Lp(mut solver) => {
+                let time_limit = solver.operation_time_limit;
+                let stop =
+                    timed_lp_call(&mut solver, time_limit, |solver| solver.fix_vars(&fixes))?;
+                Ok(SolveOutcome::from_lp_stop(
+                    direction,
+                    num_vars,
+                    stop,
+                    solver,
+                    last_options,
+                ))
+            }
+            SolveState::Mip(_) => Err(Error::InternalError(
+                "fix_vars is for LP solutions only".into(),
+            )),
         }
     }
 

@@ -589,6 +589,14 @@ impl Solver {
         }
     }
 
+    /// Dual value of constraint row `row` at the current basis, in the
+    /// units of the row as given (undoing the row's equilibration scale):
+    /// the objective's rate of change as the row's right-hand side grows.
+    /// Added for exmesh.
+    pub(crate) fn row_dual(&self, row: usize) -> f64 {
+        -self.row_scales[row] * self.reduced_cost(self.num_vars + row)
+    }
+
     pub(crate) fn get_value(&self, var: usize) -> &f64 {
         match self.var_states[var] {
             VarState::Basic(idx) => &self.basic_var_vals[idx],
@@ -868,6 +876,25 @@ impl Solver {
     }
 
     pub(crate) fn fix_var(&mut self, var: usize, val: f64) -> Result<StopReason, Error> {
+        self.fix_without_restoring(var, val)?;
+        self.restore_feasibility()
+    }
+
+    /// Fixes several variables, then restores primal feasibility once (one
+    /// dual simplex pass instead of one per variable). A nonbasic variable
+    /// fixed at its current value costs no solve with the basis. Added for
+    /// exmesh.
+    pub(crate) fn fix_vars(&mut self, fixes: &[(usize, f64)]) -> Result<StopReason, Error> {
+        for &(var, val) in fixes {
+            self.fix_without_restoring(var, val)?;
+        }
+        self.is_primal_feasible = false;
+        self.restore_feasibility()
+    }
+
+    /// [`Self::fix_var`] up to, not including, the restoring dual simplex
+    /// pass; the basis stays dual feasible.
+    fn fix_without_restoring(&mut self, var: usize, val: f64) -> Result<(), Error> {
         if val < self.orig_var_mins[var] || val > self.orig_var_maxs[var] {
             return Err(Error::Infeasible);
         }
@@ -883,14 +910,17 @@ impl Solver {
             }
 
             VarState::NonBasic(col) => {
-                self.calc_col_coeffs(col);
-
                 let diff = val - self.nb_var_vals[col];
-                for (r, coeff) in self.col_coeffs.iter() {
-                    self.basic_var_vals[r] -= diff * coeff;
+                // Added for exmesh: a variable already at the value moves
+                // nothing, so the column solve is skipped.
+                if diff != 0.0 {
+                    self.calc_col_coeffs(col);
+                    for (r, coeff) in self.col_coeffs.iter() {
+                        self.basic_var_vals[r] -= diff * coeff;
+                    }
+                    self.cur_obj_val += diff * self.nb_var_obj_coeffs[col];
+                    self.nb_var_vals[col] = val;
                 }
-                self.cur_obj_val += diff * self.nb_var_obj_coeffs[col];
-                self.nb_var_vals[col] = val;
 
                 col
             }
@@ -903,7 +933,7 @@ impl Solver {
         self.nb_var_is_fixed[col] = true;
 
         self.is_primal_feasible = false;
-        self.restore_feasibility()
+        Ok(())
     }
 
     /// Return whether the var was really unset and whether reoptimization

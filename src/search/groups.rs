@@ -1,0 +1,532 @@
+//! A second lower bound for networks of two-way links, from small
+//! components as columns.
+//!
+//! Every component of a valid plan is excited. Components of at most `k`
+//! units become columns: a column is an excited connected unit set, costed
+//! at its minimum spanning tree over the candidate links inside it.
+//! Larger components stay in link variables `z`. With `x_S` for columns and
+//! `u_i` = 1 when unit i lies in a large component:
+//!
+//! - coverage: `Σ_{S ∋ i} x_S + u_i = 1` for every unit;
+//! - every row of the covering model on the links both use,
+//!   `z + Σ_S x_S · tree(S)` (a plan with its small components replaced by
+//!   their spanning trees is still valid, so the rows hold for it);
+//! - size rows: `z(δ(S)) ≥ u_i` for a connected set S ∋ i of at most `k`
+//!   units (a larger component leaves S through one of its own links);
+//! - large-component rows: `z(links touching S) ≥ k/(k+1) · u(S)` for any
+//!   set S (contract the outside of S to one vertex: the large components'
+//!   links touching S span the units of S in large components plus that
+//!   vertex, with one piece per large component inside S, each of more than
+//!   k units, and one more for the rest).
+//!
+//! The LP is solved by column generation (Dantzig & Wolfe, "Decomposition
+//! principle for linear programs", Oper. Res. 8, 1960; Gilmore & Gomory,
+//! "A linear programming approach to the cutting-stock problem", Oper. Res.
+//! 9, 1961) with rows separated on its points. Every excited connected set
+//! of at most `k` units is listed, so pricing is exact, and each round's LP
+//! value plus `n` times the least reduced cost is a lower bound (a plan has
+//! at most `n` columns), whether or not the rounds run to the end.
+
+use super::cuts::{Pool, separate, support_separate};
+use super::instance::{Instance, Survive, pieces};
+use microlp::{ComparisonOp, OptimizationDirection, Problem, SolveOutcome, Variable, WarmStart};
+use std::collections::HashSet;
+use std::time::{Duration, Instant};
+
+/// Most new columns, covering-model rows, size rows and large-component
+/// rows taken per round.
+const NEW_COLUMNS: usize = 200;
+const NEW_CUTS: usize = 100;
+const NEW_SIZE_ROWS: usize = 200;
+const NEW_LARGE_ROWS: usize = 100;
+const TOL: f64 = 1e-6;
+
+/// What the bound computation did.
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct GroupStats {
+    /// Best lower bound over the rounds (not rounded).
+    pub bound: f64,
+    /// Largest component size taken as columns.
+    pub k: usize,
+    pub rounds: u32,
+    /// Connected sets of at most `k` units, and the excited ones (columns).
+    pub sets: usize,
+    pub columns: usize,
+    /// Columns that entered the LP.
+    pub used_columns: usize,
+    /// The rounds ran until nothing was priced or separated.
+    pub converged: bool,
+    pub time: Duration,
+}
+
+/// Whether the bound applies: every link two-way and not installed, and
+/// no failure to survive (whose rows need not hold once small components
+/// are replaced by their spanning trees).
+pub(crate) fn applies(inst: &Instance) -> bool {
+    inst.survive == Survive::Nothing && inst.links.iter().all(|l| l.arcs.len() == 2 && !l.installed)
+}
+
+struct Column {
+    set: u32,
+    tree: Vec<u32>,
+    cost: f64,
+}
+
+/// A row of the LP after the coverage rows.
+#[derive(PartialEq, Eq, Hash, Clone)]
+enum Extra {
+    /// A covering-model row (pool index).
+    Cut(usize),
+    /// `z(δ(S)) ≥ u_i` for listed set S and unit i.
+    Size(u32, u32),
+    /// `z(links touching S) ≥ k/(k+1) · u(S)`.
+    Large(Vec<u32>),
+}
+
+/// The bound with components of at most `k` units as columns, starting from
+/// the pool rows `start`; rows found on the way join the pool. `None` when
+/// the deadline passes before a first LP is solved, or on solver trouble
+/// before that.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn group_bound(
+    inst: &Instance,
+    pool: &mut Pool,
+    start: &[u32],
+    max_k: usize,
+    max_sets: usize,
+    thresholds: &[f64],
+    deadline: Option<Instant>,
+    mut on_round: impl FnMut(f64),
+) -> Option<GroupStats> {
+    let t0 = Instant::now();
+    let late = || deadline.is_some_and(|d| Instant::now() >= d);
+    let n = inst.n;
+    let m = inst.links.len();
+    let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
+    let nbrs = inst.neighbours();
+    // incident[v]: links with an end at v (two-way links: those into v).
+    let incident = &inst.heads;
+
+    // Every connected set of at most k units; the excited ones are columns.
+    // k is the largest size up to `max_k` whose sets, with the smaller
+    // ones, number at most `max_sets` (counted first; a size is listed whole
+    // or not at all, so that pricing stays exact).
+    let mut per_size = vec![0usize; max_k + 1];
+    walk_sets(&nbrs, max_k, |set, _| {
+        per_size[set.len()] += 1;
+        false
+    });
+    let mut k = 0;
+    let mut total = 0;
+    while k < max_k && total + per_size[k + 1] <= max_sets {
+        k += 1;
+        total += per_size[k];
+    }
+    if k == 0 {
+        return None;
+    }
+    let mut sets: Vec<Vec<u32>> = Vec::with_capacity(total);
+    let mut columns: Vec<Column> = Vec::new();
+    let mut stopped = false;
+    walk_sets(&nbrs, k, |set, parent_excited| {
+        if stopped || (sets.len() % 1024 == 0 && late()) {
+            stopped = true;
+            return false;
+        }
+        let id = sets.len() as u32;
+        sets.push(set.to_vec());
+        // Excitation is monotone: a set holding an excited one is excited.
+        let excited = parent_excited || inst.oracle.excited(set);
+        if excited {
+            let (tree, cost) = spanning_tree(inst, &ends, set);
+            columns.push(Column { set: id, tree, cost });
+        }
+        excited
+    });
+    if stopped {
+        return None;
+    }
+    let mut stats = GroupStats {
+        bound: f64::NEG_INFINITY,
+        k,
+        sets: sets.len(),
+        columns: columns.len(),
+        ..GroupStats::default()
+    };
+    let ratio = k as f64 / (k as f64 + 1.0);
+
+    // Start with the columns of at most two units.
+    let mut active: Vec<u32> = (0..columns.len() as u32)
+        .filter(|&c| sets[columns[c as usize].set as usize].len() <= 2)
+        .collect();
+    let mut is_active = vec![false; columns.len()];
+    active.iter().for_each(|&c| is_active[c as usize] = true);
+    let mut extras: Vec<Extra> = start.iter().map(|&i| Extra::Cut(i as usize)).collect();
+    let mut present: HashSet<Extra> = extras.iter().cloned().collect();
+    let mut warm: Option<(WarmStart, usize, usize)> = None;
+
+    loop {
+        if late() {
+            break;
+        }
+        stats.rounds += 1;
+        // The LP: z (m), u (n), then the active columns; coverage rows,
+        // then the extra rows in the order they came.
+        let mut p = Problem::new(OptimizationDirection::Minimize);
+        let z: Vec<Variable> = inst.links.iter().map(|l| p.add_var(l.cost, (0.0, 1.0))).collect();
+        let u: Vec<Variable> = (0..n).map(|_| p.add_var(0.0, (0.0, 1.0))).collect();
+        let x: Vec<Variable> = active
+            .iter()
+            .map(|&c| p.add_var(columns[c as usize].cost, (0.0, f64::INFINITY)))
+            .collect();
+        let mut cover: Vec<Vec<(Variable, f64)>> = (0..n).map(|i| vec![(u[i], 1.0)]).collect();
+        // by_link[e]: active columns whose tree holds link e.
+        let mut by_link: Vec<Vec<u32>> = vec![Vec::new(); m];
+        for (j, &c) in active.iter().enumerate() {
+            let col = &columns[c as usize];
+            for &v in &sets[col.set as usize] {
+                cover[v as usize].push((x[j], 1.0));
+            }
+            for &e in &col.tree {
+                by_link[e as usize].push(j as u32);
+            }
+        }
+        for row in &cover {
+            p.add_constraint(row.as_slice(), ComparisonOp::Eq, 1.0);
+        }
+        let mut hits: Vec<f64> = vec![0.0; active.len()];
+        for extra in &extras {
+            let mut expr: Vec<(Variable, f64)> = Vec::new();
+            let rhs = match extra {
+                Extra::Cut(r) => {
+                    let row = &pool.rows[*r];
+                    let mut touched = Vec::new();
+                    for &e in &row.links {
+                        expr.push((z[e as usize], 1.0));
+                        for &j in &by_link[e as usize] {
+                            if hits[j as usize] == 0.0 {
+                                touched.push(j);
+                            }
+                            hits[j as usize] += 1.0;
+                        }
+                    }
+                    touched.sort_unstable();
+                    for j in touched {
+                        expr.push((x[j as usize], hits[j as usize]));
+                        hits[j as usize] = 0.0;
+                    }
+                    row.rhs as f64
+                }
+                Extra::Size(s, i) => {
+                    boundary(&sets[*s as usize], incident, &ends, |e| expr.push((z[e], 1.0)));
+                    expr.push((u[*i as usize], -1.0));
+                    0.0
+                }
+                Extra::Large(set) => {
+                    touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                    expr.extend(set.iter().map(|&v| (u[v as usize], -ratio)));
+                    0.0
+                }
+            };
+            p.add_constraint(expr.as_slice(), ComparisonOp::Ge, rhs);
+        }
+        let vars = m + n + active.len();
+        let rows = n + extras.len();
+        let solved = match &warm {
+            // On numerical trouble from the grown basis, a cold solve.
+            Some((w, old_vars, old_rows)) => p
+                .solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows))
+                .or_else(|_| p.solve()),
+            None => p.solve(),
+        };
+        let debug = std::env::var("EXMESH_DEBUG_GROUPS").is_ok();
+        let sol = match solved {
+            Ok(SolveOutcome::Solution(sol)) => sol,
+            other => {
+                if debug {
+                    eprintln!("[groups] round {} solve: {other:?}", stats.rounds);
+                }
+                break;
+            }
+        };
+        let value = sol.objective();
+        let Some(duals) = sol.row_duals() else { break };
+        warm = sol.warm_start().map(|w| (w, vars, rows));
+
+        // Pricing over every listed column.
+        let pi = &duals[..n];
+        let mut w: Vec<f64> = inst.links.iter().map(|l| l.cost).collect();
+        for (extra, &mu) in extras.iter().zip(&duals[n..]) {
+            if let Extra::Cut(r) = extra {
+                for &e in &pool.rows[*r].links {
+                    w[e as usize] -= mu.max(0.0);
+                }
+            }
+        }
+        let mut priced: Vec<(f64, u32)> = Vec::new();
+        let mut least = 0.0f64;
+        for (c, col) in columns.iter().enumerate() {
+            let rc = col.tree.iter().map(|&e| w[e as usize]).sum::<f64>()
+                - sets[col.set as usize]
+                    .iter()
+                    .map(|&v| pi[v as usize])
+                    .sum::<f64>();
+            least = least.min(rc);
+            if rc < -TOL && !is_active[c] {
+                priced.push((rc, c as u32));
+            }
+        }
+        stats.bound = stats.bound.max(value + n as f64 * least);
+        on_round(stats.bound);
+        priced.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        priced.truncate(NEW_COLUMNS);
+
+        // The point, and rows it violates.
+        let zv: Vec<f64> = z.iter().map(|&v| sol.var_value_raw(v)).collect();
+        let uv: Vec<f64> = u.iter().map(|&v| sol.var_value_raw(v)).collect();
+        let mut y = zv.clone();
+        for (j, &c) in active.iter().enumerate() {
+            let xj = sol.var_value_raw(x[j]);
+            if xj > 0.0 {
+                for &e in &columns[c as usize].tree {
+                    y[e as usize] += xj;
+                }
+            }
+        }
+        let mut new_rows: Vec<Extra> = Vec::new();
+        // Covering-model rows on y, from the pool first.
+        let mut cuts: Vec<(f64, usize)> = pool
+            .rows
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| !present.contains(&Extra::Cut(*i)))
+            .filter_map(|(i, r)| r.violated_by(&y, TOL).map(|v| (v, i)))
+            .collect();
+        if cuts.is_empty() {
+            let mut found = Vec::new();
+            separate(inst, &y, thresholds, &mut found);
+            support_separate(inst, &y, 5, &mut found);
+            for row in found {
+                if let Some(i) = pool.add(row)
+                    && let Some(v) = pool.rows[i].violated_by(&y, TOL)
+                {
+                    cuts.push((v, i));
+                }
+            }
+        }
+        cuts.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        cuts.truncate(NEW_CUTS);
+        new_rows.extend(cuts.iter().map(|&(_, i)| Extra::Cut(i)));
+        // Size rows.
+        let mut size: Vec<(f64, Extra)> = Vec::new();
+        for (s, set) in sets.iter().enumerate() {
+            let (most, unit) = set
+                .iter()
+                .map(|&v| (uv[v as usize], v))
+                .fold((0.0, 0), |a, b| if b.0 > a.0 { b } else { a });
+            if most <= TOL {
+                continue;
+            }
+            let mut out = 0.0;
+            boundary(set, incident, &ends, |e| out += zv[e]);
+            let row = Extra::Size(s as u32, unit);
+            if most - out > TOL && !present.contains(&row) {
+                size.push((most - out, row));
+            }
+        }
+        take_most(&mut size, NEW_SIZE_ROWS, &mut new_rows);
+        // Large-component rows: pieces of the z support, and listed sets.
+        let mut large: Vec<(f64, Extra)> = Vec::new();
+        let mut candidates: Vec<Vec<u32>> = Vec::new();
+        for t in [TOL, 0.2, 0.5] {
+            let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
+            for (e, &(a, b)) in ends.iter().enumerate() {
+                if zv[e] > t {
+                    adj[a as usize].push(b);
+                    adj[b as usize].push(a);
+                }
+            }
+            candidates.extend(pieces(&adj));
+        }
+        let mut seen: HashSet<Vec<u32>> = HashSet::new();
+        for set in candidates.iter().chain(sets.iter()) {
+            let need = ratio * set.iter().map(|&v| uv[v as usize]).sum::<f64>();
+            if need <= TOL {
+                continue;
+            }
+            let mut have = 0.0;
+            touching(set, incident, &ends, |e| have += zv[e]);
+            if need - have > TOL && seen.insert(set.clone()) {
+                let row = Extra::Large(set.clone());
+                if !present.contains(&row) {
+                    large.push((need - have, row));
+                }
+            }
+        }
+        take_most(&mut large, NEW_LARGE_ROWS, &mut new_rows);
+
+        if debug {
+            eprintln!(
+                "[groups] round {} value {value:.1} least {least:.2} bound {:.1} columns {} (+{}) rows {} (+{}) at {:.1?}",
+                stats.rounds,
+                stats.bound,
+                active.len(),
+                priced.len(),
+                extras.len(),
+                new_rows.len(),
+                t0.elapsed()
+            );
+        }
+        if priced.is_empty() && new_rows.is_empty() {
+            stats.bound = stats.bound.max(value);
+            stats.converged = true;
+            break;
+        }
+        for &(_, c) in &priced {
+            is_active[c as usize] = true;
+            active.push(c);
+        }
+        for row in new_rows {
+            present.insert(row.clone());
+            extras.push(row);
+        }
+    }
+    stats.used_columns = active.len();
+    stats.time = t0.elapsed();
+    (stats.bound > f64::NEG_INFINITY).then_some(stats)
+}
+
+/// Moves the `most` most violated rows (ties: first found) into `out`.
+fn take_most(found: &mut Vec<(f64, Extra)>, most: usize, out: &mut Vec<Extra>) {
+    found.sort_by(|a, b| b.0.total_cmp(&a.0));
+    out.extend(found.drain(..).take(most).map(|(_, row)| row));
+}
+
+/// Minimum spanning tree (Kruskal) over the links inside the connected,
+/// sorted `set`: its links and cost.
+fn spanning_tree(inst: &Instance, ends: &[(u32, u32)], set: &[u32]) -> (Vec<u32>, f64) {
+    let inside = |v: u32| set.binary_search(&v).ok();
+    let mut links: Vec<u32> = set
+        .iter()
+        .flat_map(|&v| inst.heads[v as usize].iter().map(|&e| e as u32))
+        .filter(|&e| {
+            let (a, b) = ends[e as usize];
+            a < b && inside(a).is_some() && inside(b).is_some()
+        })
+        .collect();
+    links.sort_by(|&a, &b| {
+        inst.links[a as usize]
+            .cost
+            .total_cmp(&inst.links[b as usize].cost)
+            .then(a.cmp(&b))
+    });
+    links.dedup();
+    let mut label: Vec<usize> = (0..set.len()).collect();
+    let mut tree = Vec::with_capacity(set.len().saturating_sub(1));
+    let mut cost = 0.0;
+    for e in links {
+        let (a, b) = ends[e as usize];
+        let (la, lb) = (
+            label[inside(a).expect("inside")],
+            label[inside(b).expect("inside")],
+        );
+        if la != lb {
+            label.iter_mut().filter(|l| **l == lb).for_each(|l| *l = la);
+            tree.push(e);
+            cost += inst.links[e as usize].cost;
+        }
+    }
+    (tree, cost)
+}
+
+/// Calls `f` with each link leaving the sorted `set`.
+fn boundary(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: impl FnMut(usize)) {
+    for &v in set {
+        for &e in &incident[v as usize] {
+            let (a, b) = ends[e];
+            let other = if a == v { b } else { a };
+            if set.binary_search(&other).is_err() {
+                f(e);
+            }
+        }
+    }
+}
+
+/// Calls `f` once with each link that has an end in the sorted `set`.
+fn touching(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: impl FnMut(usize)) {
+    for &v in set {
+        for &e in &incident[v as usize] {
+            let (a, b) = ends[e];
+            let other = if a == v { b } else { a };
+            // A link inside the set is reported from its lower end.
+            if other > v || set.binary_search(&other).is_err() {
+                f(e);
+            }
+        }
+    }
+}
+
+/// Visits every connected set of at most `max_size` units once (sorted),
+/// with whether the set it grew from was reported excited; `visit` returns
+/// whether this one is. ESU enumeration (Wernicke, "Efficient detection of
+/// network motifs", IEEE/ACM TCBB 3(4), 2006), as `cuts::each_connected_set`.
+fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], bool) -> bool) {
+    struct Walk<'a, F> {
+        nbrs: &'a [Vec<u32>],
+        max_size: usize,
+        near: Vec<u32>,
+        set: Vec<u32>,
+        sorted: Vec<u32>,
+        visit: F,
+    }
+    impl<F: FnMut(&[u32], bool) -> bool> Walk<'_, F> {
+        fn extend(&mut self, mut ext: Vec<u32>, root: u32, parent_excited: bool) {
+            self.sorted.clear();
+            self.sorted.extend_from_slice(&self.set);
+            self.sorted.sort_unstable();
+            let excited = (self.visit)(&self.sorted, parent_excited);
+            if self.set.len() == self.max_size {
+                return;
+            }
+            while let Some(w) = ext.pop() {
+                let mut next = ext.clone();
+                for &u in &self.nbrs[w as usize] {
+                    if u > root && self.near[u as usize] == 0 && !next.contains(&u) {
+                        next.push(u);
+                    }
+                }
+                self.enter(w);
+                self.extend(next, root, excited);
+                self.leave(w);
+            }
+        }
+        fn enter(&mut self, w: u32) {
+            self.set.push(w);
+            self.near[w as usize] += 1;
+            for &u in &self.nbrs[w as usize] {
+                self.near[u as usize] += 1;
+            }
+        }
+        fn leave(&mut self, w: u32) {
+            self.set.pop();
+            self.near[w as usize] -= 1;
+            for &u in &self.nbrs[w as usize] {
+                self.near[u as usize] -= 1;
+            }
+        }
+    }
+    let mut walk = Walk {
+        nbrs,
+        max_size,
+        near: vec![0; nbrs.len()],
+        set: Vec::with_capacity(max_size),
+        sorted: Vec::with_capacity(max_size),
+        visit: &mut visit,
+    };
+    for v in 0..nbrs.len() as u32 {
+        let ext: Vec<u32> = nbrs[v as usize].iter().copied().filter(|&u| u > v).collect();
+        walk.enter(v);
+        walk.extend(ext, v, false);
+        walk.leave(v);
+    }
+}
