@@ -687,11 +687,28 @@ pub(crate) struct Limits {
 /// need be, so the plan does not depend on timing unless the deadline
 /// stops the work.
 struct Helper {
-    to: mpsc::Sender<Vec<bool>>,
-    from: mpsc::Receiver<(Vec<bool>, Duration, OracleStats)>,
+    to: mpsc::Sender<Job>,
+    from: mpsc::Receiver<Done>,
     stop: Arc<AtomicBool>,
     /// A run was started and its result not taken yet.
     pending: bool,
+    /// A bound was asked for and not taken yet.
+    bound_pending: bool,
+}
+
+/// Work for the helper thread, done in the order sent.
+enum Job {
+    /// Neighbourhood search from this incumbent.
+    Improve(Vec<bool>),
+    /// The bound from small components as columns: the pool's rows, and
+    /// those of the LP to start from.
+    Bound(Vec<Row>, Vec<u32>),
+}
+
+/// A finished job: its result, time and excitation-check counts.
+enum Done {
+    Improved(Vec<bool>, Duration, OracleStats),
+    Bound(Option<groups::GroupStats>, Duration, OracleStats),
 }
 
 /// Branch-and-bound nodes after which the second neighbourhood search's
@@ -700,8 +717,35 @@ const HELPER_NODES: u64 = 100;
 
 impl Helper {
     fn start(&mut self, from: &[bool]) {
-        if self.to.send(from.to_vec()).is_ok() {
+        if self.to.send(Job::Improve(from.to_vec())).is_ok() {
             self.pending = true;
+        }
+    }
+
+    fn start_bound(&mut self, rows: Vec<Row>, start: Vec<u32>) {
+        if self.to.send(Job::Bound(rows, start)).is_ok() {
+            self.bound_pending = true;
+        }
+    }
+
+    /// Waits for the asked bound (after any pending run, see
+    /// [`Helper::take`]); `cancel` as there.
+    fn take_bound(&mut self, s: &mut Search, cancel: bool) -> Option<groups::GroupStats> {
+        if !std::mem::take(&mut self.bound_pending) {
+            return None;
+        }
+        if cancel {
+            self.stop.store(true, AtomicOrdering::Relaxed);
+        }
+        match self.from.recv() {
+            Ok(Done::Bound(group, time, checks)) => {
+                s.stats.separation_time += time;
+                if !cancel {
+                    s.inst.oracle.stats.borrow_mut().add(&checks);
+                }
+                group
+            }
+            _ => None,
         }
     }
 
@@ -714,7 +758,7 @@ impl Helper {
         if cancel {
             self.stop.store(true, AtomicOrdering::Relaxed);
         }
-        if let Ok((improved, time, checks)) = self.from.recv() {
+        if let Ok(Done::Improved(improved, time, checks)) = self.from.recv() {
             // Both summed over the two threads. A stopped run's check
             // counts depend on when it stopped; they are left out so that
             // the reported figures stay deterministic.
@@ -745,7 +789,7 @@ pub(crate) fn search(
     }
     let oracle = inst.oracle.fresh();
     let (n, links) = (inst.n, inst.links.clone());
-    let (to, jobs) = mpsc::channel::<Vec<bool>>();
+    let (to, jobs) = mpsc::channel::<Job>();
     let (done, from) = mpsc::channel();
     let stop = Arc::new(AtomicBool::new(false));
     let flag = stop.clone();
@@ -754,9 +798,34 @@ pub(crate) fn search(
             let sub = Instance::with_oracle(n, links, Rc::new(oracle));
             for job in jobs {
                 let t = Instant::now();
-                let improved = super::lns::improve(&sub, &job, limits.deadline, &flag);
-                let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
-                if done.send((improved, t.elapsed(), checks)).is_err() {
+                let result = match job {
+                    Job::Improve(from) => {
+                        let improved = super::lns::improve(&sub, &from, limits.deadline, &flag);
+                        let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
+                        Done::Improved(improved, t.elapsed(), checks)
+                    }
+                    Job::Bound(rows, start) => {
+                        // The pool's rows are distinct, so they keep their
+                        // indices.
+                        let mut pool = Pool::default();
+                        rows.into_iter().for_each(|r| {
+                            pool.add(r);
+                        });
+                        let group = groups::group_bound(
+                            &sub,
+                            &mut pool,
+                            &start,
+                            GROUP_SIZE,
+                            GROUP_SETS,
+                            &THRESHOLDS,
+                            limits.deadline,
+                            &flag,
+                        );
+                        let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
+                        Done::Bound(group, t.elapsed(), checks)
+                    }
+                };
+                if done.send(result).is_err() {
                     break;
                 }
             }
@@ -766,6 +835,7 @@ pub(crate) fn search(
             from,
             stop,
             pending: false,
+            bound_pending: false,
         };
         helper.start(&start);
         search_with(inst, start, limits, progress, Some(helper))
@@ -826,38 +896,14 @@ fn search_with(
     s.stats.lp_solves += 1;
 
     // A second bound, from small components as columns, on large two-way
-    // networks. It lifts the bound reported, not the tree's node bounds
-    // (which keep ordering the search).
-    let mut floor = f64::NEG_INFINITY;
-    if inst.n >= GROUP_MIN_UNITS && groups::applies(inst) {
-        let mut pool = std::mem::take(&mut s.pool);
-        let group = groups::group_bound(
-            inst,
-            &mut pool,
-            &master.rows,
-            GROUP_SIZE,
-            GROUP_SETS,
-            &THRESHOLDS,
-            deadline,
-            |b| s.report(Some(bound_of(inst, b))),
-        );
-        s.pool = pool;
-        s.stats.cuts = s.pool.rows.len() as u64;
-        if let Some(g) = group {
-            // A relative margin for the LP's tolerances.
-            floor = bound_of(inst, g.bound - 1e-9 * g.bound.abs());
-            s.stats.group = Some(g);
-            if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
-                eprintln!("[groups] {g:?} at {:.1?}", s.start.elapsed());
-            }
-        }
-        if floor >= s.cutoff() {
-            let lb = s.best_cost;
-            return finish(s, lb, false);
-        }
-        if s.timed_out() {
-            return finish(s, lower.max(floor), true);
-        }
+    // networks, computed by the helper thread after its second run. It lifts
+    // the bound reported, not the tree's node bounds (which keep ordering
+    // the search).
+    if let Some(h) = helper.as_mut()
+        && inst.n >= GROUP_MIN_UNITS
+        && groups::applies(inst)
+    {
+        h.start_bound(s.pool.rows.clone(), master.rows.clone());
     }
 
     let mut heap = BinaryHeap::new();
@@ -1044,10 +1090,20 @@ fn search_with(
             break;
         }
     }
+    let mut floor = f64::NEG_INFINITY;
     if let Some(h) = helper.as_mut() {
-        // A finished tree proves the incumbent optimal: the run cannot
-        // find anything cheaper, so it is stopped rather than awaited.
+        // A finished tree proves the incumbent optimal: the runs cannot
+        // find anything cheaper or a higher bound, so they are stopped
+        // rather than awaited.
         h.take(&mut s, !timed_out);
+        if let Some(g) = h.take_bound(&mut s, !timed_out) {
+            // A relative margin for the LP's tolerances.
+            floor = bound_of(inst, g.bound - 1e-9 * g.bound.abs());
+            s.stats.group = Some(g);
+            if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+                eprintln!("[groups] {g:?}");
+            }
+        }
     }
     let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
     let lb = if timed_out {

@@ -31,6 +31,7 @@ use super::cuts::{Pool, separate, support_separate};
 use super::instance::{Instance, Survive, pieces};
 use microlp::{ComparisonOp, OptimizationDirection, Problem, SolveOutcome, Variable, WarmStart};
 use std::collections::HashSet;
+use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
 use std::time::{Duration, Instant};
 
 /// Most new columns, covering-model rows, size rows and large-component
@@ -96,10 +97,11 @@ pub(crate) fn group_bound(
     max_sets: usize,
     thresholds: &[f64],
     deadline: Option<Instant>,
-    mut on_round: impl FnMut(f64),
+    stop: &AtomicBool,
 ) -> Option<GroupStats> {
     let t0 = Instant::now();
-    let late = || deadline.is_some_and(|d| Instant::now() >= d);
+    let late =
+        || stop.load(AtomicOrdering::Relaxed) || deadline.is_some_and(|d| Instant::now() >= d);
     let n = inst.n;
     let m = inst.links.len();
     let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
@@ -139,7 +141,11 @@ pub(crate) fn group_bound(
         let excited = parent_excited || inst.oracle.excited(set);
         if excited {
             let (tree, cost) = spanning_tree(inst, &ends, set);
-            columns.push(Column { set: id, tree, cost });
+            columns.push(Column {
+                set: id,
+                tree,
+                cost,
+            });
         }
         excited
     });
@@ -173,7 +179,11 @@ pub(crate) fn group_bound(
         // The LP: z (m), u (n), then the active columns; coverage rows,
         // then the extra rows in the order they came.
         let mut p = Problem::new(OptimizationDirection::Minimize);
-        let z: Vec<Variable> = inst.links.iter().map(|l| p.add_var(l.cost, (0.0, 1.0))).collect();
+        let z: Vec<Variable> = inst
+            .links
+            .iter()
+            .map(|l| p.add_var(l.cost, (0.0, 1.0)))
+            .collect();
         let u: Vec<Variable> = (0..n).map(|_| p.add_var(0.0, (0.0, 1.0))).collect();
         let x: Vec<Variable> = active
             .iter()
@@ -218,7 +228,9 @@ pub(crate) fn group_bound(
                     row.rhs as f64
                 }
                 Extra::Size(s, i) => {
-                    boundary(&sets[*s as usize], incident, &ends, |e| expr.push((z[e], 1.0)));
+                    boundary(&sets[*s as usize], incident, &ends, |e| {
+                        expr.push((z[e], 1.0))
+                    });
                     expr.push((u[*i as usize], -1.0));
                     0.0
                 }
@@ -277,7 +289,6 @@ pub(crate) fn group_bound(
             }
         }
         stats.bound = stats.bound.max(value + n as f64 * least);
-        on_round(stats.bound);
         priced.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
         priced.truncate(NEW_COLUMNS);
 
@@ -366,6 +377,15 @@ pub(crate) fn group_bound(
         take_most(&mut large, NEW_LARGE_ROWS, &mut new_rows);
 
         if debug {
+            let xs: Vec<f64> = x.iter().map(|&v| sol.var_value_raw(v)).collect();
+            eprintln!(
+                "[groups] large units {:.2} (fractional u {}), columns used {} (fractional {}), z total {:.2}",
+                uv.iter().sum::<f64>(),
+                uv.iter().filter(|&&v| v > TOL && v < 1.0 - TOL).count(),
+                xs.iter().filter(|&&v| v > TOL).count(),
+                xs.iter().filter(|&&v| v > TOL && v < 1.0 - TOL).count(),
+                zv.iter().sum::<f64>()
+            );
             eprintln!(
                 "[groups] round {} value {value:.1} least {least:.2} bound {:.1} columns {} (+{}) rows {} (+{}) at {:.1?}",
                 stats.rounds,
@@ -524,7 +544,11 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
         visit: &mut visit,
     };
     for v in 0..nbrs.len() as u32 {
-        let ext: Vec<u32> = nbrs[v as usize].iter().copied().filter(|&u| u > v).collect();
+        let ext: Vec<u32> = nbrs[v as usize]
+            .iter()
+            .copied()
+            .filter(|&u| u > v)
+            .collect();
         walk.enter(v);
         walk.extend(ext, v, false);
         walk.leave(v);
