@@ -29,7 +29,10 @@
 
 use super::cuts::{Pool, separate, support_separate};
 use super::instance::{Instance, Survive, pieces};
-use microlp::{ComparisonOp, OptimizationDirection, Problem, SolveOutcome, Variable, WarmStart};
+use microlp::{
+    ComparisonOp, OptimizationDirection, Problem, SolveOutcome, TerminationReason, Variable,
+    WarmStart,
+};
 use std::collections::HashSet;
 use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
 use std::time::{Duration, Instant};
@@ -41,6 +44,9 @@ const NEW_CUTS: usize = 100;
 const NEW_SIZE_ROWS: usize = 200;
 const NEW_LARGE_ROWS: usize = 100;
 const TOL: f64 = 1e-6;
+/// Longest LP solve of one round, and of its restart from the last basis.
+const ROUND_TIME: Duration = Duration::from_secs(20);
+const WARM_TIME: Duration = Duration::from_secs(2);
 
 /// What the bound computation did.
 #[derive(Debug, Clone, Copy, Default)]
@@ -159,7 +165,15 @@ pub(crate) fn group_bound(
         columns: columns.len(),
         ..GroupStats::default()
     };
-    let ratio = k as f64 / (k as f64 + 1.0);
+    // A set of at most k units holds no large component: all its units in
+    // large components reach outside, so the links touching it span them.
+    let ratio = |set: &[u32]| {
+        if set.len() <= k {
+            1.0
+        } else {
+            k as f64 / (k as f64 + 1.0)
+        }
+    };
 
     // Start with the columns of at most two units.
     let mut active: Vec<u32> = (0..columns.len() as u32)
@@ -236,7 +250,8 @@ pub(crate) fn group_bound(
                 }
                 Extra::Large(set) => {
                     touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
-                    expr.extend(set.iter().map(|&v| (u[v as usize], -ratio)));
+                    let r = ratio(set);
+                    expr.extend(set.iter().map(|&v| (u[v as usize], -r)));
                     0.0
                 }
             };
@@ -244,22 +259,46 @@ pub(crate) fn group_bound(
         }
         let vars = m + n + active.len();
         let rows = n + extras.len();
+        // Each solve within the deadline and at most ROUND_TIME: a solve
+        // that stalls ends the rounds with the bound so far.
+        let limit = deadline.map_or(ROUND_TIME, |d| {
+            d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
+        });
+        // A restart from the grown basis takes well under a second at
+        // 150 units, but now and then stalls: after WARM_TIME, a cold solve.
+        p.set_time_limit(if warm.is_some() { limit.min(WARM_TIME) } else { limit });
+        let optimal = |solved: Result<SolveOutcome, microlp::Error>| match solved {
+            Ok(SolveOutcome::Solution(sol))
+                if sol.termination_reason() == TerminationReason::ProvenOptimal =>
+            {
+                Some(sol)
+            }
+            _ => None,
+        };
+        let ts = Instant::now();
         let solved = match &warm {
-            // On numerical trouble from the grown basis, a cold solve.
-            Some((w, old_vars, old_rows)) => p
-                .solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows))
-                .or_else(|_| p.solve()),
-            None => p.solve(),
+            // On trouble from the grown basis, a cold solve in the time left.
+            Some((w, old_vars, old_rows)) => {
+                optimal(p.solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows)))
+                    .or_else(|| {
+                        if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+                            eprintln!("[groups] warm solve failed after {:.1?}", ts.elapsed());
+                        }
+                        let left = deadline.map_or(ROUND_TIME, |d| {
+                            d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
+                        });
+                        p.set_time_limit(left);
+                        optimal(p.solve())
+                    })
+            }
+            None => optimal(p.solve()),
         };
         let debug = std::env::var("EXMESH_DEBUG_GROUPS").is_ok();
-        let sol = match solved {
-            Ok(SolveOutcome::Solution(sol)) => sol,
-            other => {
-                if debug {
-                    eprintln!("[groups] round {} solve: {other:?}", stats.rounds);
-                }
-                break;
+        let Some(sol) = solved else {
+            if debug {
+                eprintln!("[groups] round {}: no optimal LP", stats.rounds);
             }
+            break;
         };
         let value = sol.objective();
         let Some(duals) = sol.row_duals() else { break };
@@ -361,7 +400,7 @@ pub(crate) fn group_bound(
         }
         let mut seen: HashSet<Vec<u32>> = HashSet::new();
         for set in candidates.iter().chain(sets.iter()) {
-            let need = ratio * set.iter().map(|&v| uv[v as usize]).sum::<f64>();
+            let need = ratio(set) * set.iter().map(|&v| uv[v as usize]).sum::<f64>();
             if need <= TOL {
                 continue;
             }
@@ -377,6 +416,7 @@ pub(crate) fn group_bound(
         take_most(&mut large, NEW_LARGE_ROWS, &mut new_rows);
 
         if debug {
+            eprintln!("[groups] solve {:.2?}", ts.elapsed());
             let xs: Vec<f64> = x.iter().map(|&v| sol.var_value_raw(v)).collect();
             eprintln!(
                 "[groups] large units {:.2} (fractional u {}), columns used {} (fractional {}), z total {:.2}",
@@ -396,6 +436,12 @@ pub(crate) fn group_bound(
                 new_rows.len(),
                 t0.elapsed()
             );
+        }
+        if !priced.is_empty() {
+            // Columns alone this round: the grown basis then stays primal
+            // feasible (rows alone: dual feasible), so that one simplex
+            // restarts from it; with both it could be neither.
+            new_rows.clear();
         }
         if priced.is_empty() && new_rows.is_empty() {
             stats.bound = stats.bound.max(value);
