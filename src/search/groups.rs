@@ -86,8 +86,10 @@ enum Extra {
     Cut(usize),
     /// `z(δ(S)) ≥ u_i` for listed set S and unit i.
     Size(u32, u32),
-    /// `z(links touching S) ≥ k/(k+1) · u(S)`.
+    /// `z(links touching S) ≥ k/(k+1) · u(S)` (≥ `u(S)` for `|S| ≤ k`).
     Large(Vec<u32>),
+    /// `z(links touching S) ≥ u(S) − ⌊|S|/(k+1)⌋`.
+    Count(Vec<u32>),
 }
 
 /// The bound with components of at most `k` units as columns, starting from
@@ -248,6 +250,11 @@ pub(crate) fn group_bound(
                     expr.push((u[*i as usize], -1.0));
                     0.0
                 }
+                Extra::Count(set) => {
+                    touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                    expr.extend(set.iter().map(|&v| (u[v as usize], -1.0)));
+                    -((set.len() / (k + 1)) as f64)
+                }
                 Extra::Large(set) => {
                     touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
                     let r = ratio(set);
@@ -400,16 +407,23 @@ pub(crate) fn group_bound(
         }
         let mut seen: HashSet<Vec<u32>> = HashSet::new();
         for set in candidates.iter().chain(sets.iter()) {
-            let need = ratio(set) * set.iter().map(|&v| uv[v as usize]).sum::<f64>();
-            if need <= TOL {
+            let units = set.iter().map(|&v| uv[v as usize]).sum::<f64>();
+            let need = ratio(set) * units;
+            // At most |S|/(k+1) large components fit inside S.
+            let counted = units - (set.len() / (k + 1)) as f64;
+            if need.max(counted) <= TOL {
                 continue;
             }
             let mut have = 0.0;
             touching(set, incident, &ends, |e| have += zv[e]);
-            if need - have > TOL && seen.insert(set.clone()) {
-                let row = Extra::Large(set.clone());
+            if need.max(counted) - have > TOL && seen.insert(set.clone()) {
+                let (violation, row) = if counted > need {
+                    (counted - have, Extra::Count(set.clone()))
+                } else {
+                    (need - have, Extra::Large(set.clone()))
+                };
                 if !present.contains(&row) {
-                    large.push((need - have, row));
+                    large.push((violation, row));
                 }
             }
         }
