@@ -157,6 +157,15 @@ pub(crate) fn group_bound(
         }
         excited
     });
+    if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+        eprintln!(
+            "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
+            sets.len(),
+            columns.len(),
+            t0.elapsed(),
+            if stopped { " (stopped)" } else { "" }
+        );
+    }
     if stopped {
         return None;
     }
@@ -273,7 +282,11 @@ pub(crate) fn group_bound(
         });
         // A restart from the grown basis takes well under a second at
         // 150 units, but now and then stalls: after WARM_TIME, a cold solve.
-        p.set_time_limit(if warm.is_some() { limit.min(WARM_TIME) } else { limit });
+        p.set_time_limit(if warm.is_some() {
+            limit.min(WARM_TIME)
+        } else {
+            limit
+        });
         let optimal = |solved: Result<SolveOutcome, microlp::Error>| match solved {
             Ok(SolveOutcome::Solution(sol))
                 if sol.termination_reason() == TerminationReason::ProvenOptimal =>
@@ -612,5 +625,145 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
         walk.enter(v);
         walk.extend(ext, v, false);
         walk.leave(v);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::excitation::ExcitationTable;
+    use crate::search::instance::PlanLink;
+    use crate::signal::Window;
+    use crate::synth::Rng;
+
+    fn windows(count: usize) -> Vec<Window> {
+        (0..count)
+            .map(|w| Window {
+                start: w as f64,
+                end: w as f64 + 1.0,
+                jumps_through_end: false,
+            })
+            .collect()
+    }
+
+    fn two_way(a: u32, b: u32, cost: f64) -> PlanLink {
+        PlanLink {
+            arcs: vec![(a, b), (b, a)],
+            cost,
+            installed: false,
+        }
+    }
+
+    fn bound(inst: &Instance, k: usize) -> GroupStats {
+        let mut pool = Pool::default();
+        let stop = AtomicBool::new(false);
+        group_bound(
+            inst,
+            &mut pool,
+            &[],
+            k,
+            usize::MAX,
+            &[0.999, 0.5, 0.2, 1e-6],
+            None,
+            &stop,
+        )
+        .expect("a bound")
+    }
+
+    /// Cormen, Leiserson, Rivest & Stein, "Introduction to Algorithms", 3rd
+    /// ed., 2009, Fig. 23.1: with only unit a excited, every component must
+    /// hold a, so the cheapest plan is the minimum spanning tree, 37. With
+    /// columns of up to 9 units the whole network is one column and the LP
+    /// is exact; with smaller columns the bound may not pass it.
+    #[test]
+    fn clrs_figure_23_1_bound_is_the_spanning_tree() {
+        let names = "abcdefghi";
+        let edges = [
+            ("ab", 4.0),
+            ("ah", 8.0),
+            ("bc", 8.0),
+            ("bh", 11.0),
+            ("cd", 7.0),
+            ("cf", 4.0),
+            ("ci", 2.0),
+            ("de", 9.0),
+            ("df", 14.0),
+            ("ef", 10.0),
+            ("fg", 2.0),
+            ("gh", 1.0),
+            ("gi", 6.0),
+            ("hi", 7.0),
+        ];
+        let id = |c: char| names.find(c).unwrap() as u32;
+        let links: Vec<PlanLink> = edges
+            .iter()
+            .map(|(e, c)| {
+                let mut ch = e.chars();
+                two_way(id(ch.next().unwrap()), id(ch.next().unwrap()), *c)
+            })
+            .collect();
+        // p = 2: unit a has the identity Gramian, the others nothing.
+        let mut gram = vec![0.0; 9 * 3];
+        gram[0] = 1.0;
+        gram[2] = 1.0;
+        let table = ExcitationTable::from_gramians(9, 2, windows(1), gram, Some(0.5));
+        let inst = Instance::from_links(9, links, &table);
+        let exact = bound(&inst, 9);
+        assert!(exact.converged);
+        assert!((exact.bound - 37.0).abs() < 1e-6, "{exact:?}");
+        for k in 1..9 {
+            let b = bound(&inst, k);
+            assert!(b.bound <= 37.0 + 1e-6, "k {k}: {b:?}");
+        }
+    }
+
+    /// Validity against brute force (common practice: the bound of a
+    /// relaxation never passes the optimum found by trying every subset):
+    /// random small networks of two-way links with integer costs and
+    /// rank-1 Gramians in R² on two windows, so that units must pair up.
+    #[test]
+    fn bound_never_passes_the_brute_force_optimum() {
+        let mut rng = Rng(17);
+        let mut checked = 0;
+        let mut tight = 0;
+        for _case in 0..80 {
+            let n = 4 + rng.below(4);
+            let mut gram = Vec::new();
+            for _ in 0..2 * n {
+                let on = rng.uniform() < 0.85;
+                let u = rng.unit_vector(2);
+                let s = if on { 1.0 } else { 0.0 };
+                gram.extend_from_slice(&[s * u[0] * u[0], s * u[0] * u[1], s * u[1] * u[1]]);
+            }
+            let table = ExcitationTable::from_gramians(n, 2, windows(2), gram, Some(0.05));
+            let mut links = Vec::new();
+            let mut seen = HashSet::new();
+            for _ in 0..(n + 2 + rng.below(5)) {
+                let (a, b) = (rng.below(n) as u32, rng.below(n) as u32);
+                if a == b || !seen.insert((a.min(b), a.max(b))) {
+                    continue;
+                }
+                links.push(two_way(a, b, (1 + rng.below(9)) as f64));
+            }
+            let inst = Instance::from_links(n, links, &table);
+            let m = inst.links.len();
+            let optimum = (0u32..1 << m)
+                .map(|mask| (0..m).map(|k| mask & (1 << k) != 0).collect::<Vec<bool>>())
+                .filter(|c| inst.holds(c))
+                .map(|c| inst.cost(&c))
+                .fold(f64::INFINITY, f64::min);
+            if !optimum.is_finite() {
+                continue;
+            }
+            for k in 1..=3 {
+                let b = bound(&inst, k);
+                assert!(b.bound <= optimum + 1e-6, "k {k}: {b:?} optimum {optimum}");
+                checked += 1;
+                tight += usize::from(b.bound > optimum - 1e-6);
+            }
+        }
+        assert!(checked > 60, "only {checked} checks ran");
+        // The bound is not trivially low either.
+        assert!(tight * 2 > checked, "tight in {tight} of {checked}");
     }
 }
