@@ -28,7 +28,7 @@ fn main() {
     let s = &plan.stats;
     let tm = &plan.timings;
     println!(
-        "n={n} seed={seed} links={} windows={} status={:?} cost={:.0} bound={:.0} gap={:.2}% greedy={:.0} root_lp={:.0} rounds={} rows={} nodes={} lp_solves={} | build {:.2}s plan {:.2}s (lp {:.2}s sep {:.2}s exc {:.2}s heur {:.2}s)",
+        "n={n} seed={seed} links={} windows={} status={:?} cost={:.0} bound={:.0} gap={:.2}% greedy={:.0} root_lp={:.0} components={} rounds={} rows={} nodes={} lp_solves={} | build {:.2}s plan {:.2}s (lp {:.2}s sep {:.2}s exc {:.2}s heur {:.2}s)",
         problem.links.len(),
         table.windows().len(),
         plan.status,
@@ -37,6 +37,9 @@ fn main() {
         100.0 * plan.gap.unwrap_or(f64::NAN),
         s.greedy_cost,
         s.root_lp_bound,
+        s.component_bound
+            .zip(s.component_size)
+            .map_or("-".to_string(), |(b, k)| format!("{b:.0}(k={k})")),
         s.rounds,
         s.cuts,
         s.nodes,

@@ -577,6 +577,16 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         s.excitation_queries,
         s.excitation_scans
     )?;
+    if let (Some(b), Some(k)) = (s.component_bound, s.component_size) {
+        writeln!(
+            out,
+            "bound from components of up to {k} units as columns: {b:.2} ({} connected sets, {} columns, {} taken up; {:.3} s on the second thread)",
+            s.component_sets.unwrap_or(0),
+            s.component_columns.unwrap_or(0),
+            s.component_columns_used.unwrap_or(0),
+            t.component_bound.as_secs_f64()
+        )?;
+    }
     writeln!(
         out,
         "time: greedy {:.3} s, branch and cut {:.3} s (LP {:.3} s, separation {:.3} s, excitation checks {:.3} s, heuristics {:.3} s), rate stage {:.3} s",

@@ -708,7 +708,7 @@ enum Job {
 /// A finished job: its result, time and excitation-check counts.
 enum Done {
     Improved(Vec<bool>, Duration, OracleStats),
-    Bound(Option<groups::GroupStats>, Duration, OracleStats),
+    Bound(Option<groups::GroupStats>, OracleStats),
 }
 
 /// Branch-and-bound nodes after which the second neighbourhood search's
@@ -738,8 +738,7 @@ impl Helper {
             self.stop.store(true, AtomicOrdering::Relaxed);
         }
         match self.from.recv() {
-            Ok(Done::Bound(group, time, checks)) => {
-                s.stats.separation_time += time;
+            Ok(Done::Bound(group, checks)) => {
                 if !cancel {
                     s.inst.oracle.stats.borrow_mut().add(&checks);
                 }
@@ -822,7 +821,7 @@ pub(crate) fn search(
                             &flag,
                         );
                         let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
-                        Done::Bound(group, t.elapsed(), checks)
+                        Done::Bound(group, checks)
                     }
                 };
                 if done.send(result).is_err() {

@@ -139,7 +139,7 @@ pub(crate) fn group_bound(
     let mut columns: Vec<Column> = Vec::new();
     let mut stopped = false;
     walk_sets(&nbrs, k, |set, parent_excited| {
-        if stopped || (sets.len() % 1024 == 0 && late()) {
+        if stopped || (sets.len().is_multiple_of(1024) && late()) {
             stopped = true;
             return false;
         }

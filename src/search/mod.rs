@@ -119,6 +119,18 @@ pub struct PlanStats {
     pub excitation_queries: u64,
     /// Full window scans (queries not answered by cache or rank pre-test).
     pub excitation_scans: u64,
+    /// The lower bound from small components as columns (docs/theory.md
+    /// §5), when it was computed: large two-way networks under a time
+    /// limit that the tree did not finish.
+    pub component_bound: Option<f64>,
+    /// The largest component size taken as columns for it.
+    pub component_size: Option<u32>,
+    /// Connected unit sets of at most that size.
+    pub component_sets: Option<u64>,
+    /// The excited ones among them (the columns).
+    pub component_columns: Option<u64>,
+    /// The columns the LP took up.
+    pub component_columns_used: Option<u64>,
 }
 
 /// Wall-clock time per stage (reported in text, never in JSON).
@@ -136,6 +148,8 @@ pub struct Timings {
     pub solver: Duration,
     /// Primal heuristics.
     pub heuristics: Duration,
+    /// The bound from small components as columns (on the second thread).
+    pub component_bound: Duration,
     /// Rate stage (certificates, additions and pruning).
     pub rate: Duration,
 }
@@ -397,6 +411,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             separation: s.separation_time.saturating_sub(s.separation_checks),
             solver: s.lp_time,
             heuristics: s.heuristic_time,
+            component_bound: s.group.map_or(Duration::ZERO, |g| g.time),
             rate: rate_time,
         },
     }
@@ -414,6 +429,11 @@ fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> Pla
         fixed_by_reduced_cost: s.map_or(0, |s| s.fixed_by_cost),
         excitation_queries: o.queries,
         excitation_scans: o.scans,
+        component_bound: s.and_then(|s| s.group).map(|g| g.bound),
+        component_size: s.and_then(|s| s.group).map(|g| g.k as u32),
+        component_sets: s.and_then(|s| s.group).map(|g| g.sets as u64),
+        component_columns: s.and_then(|s| s.group).map(|g| g.columns as u64),
+        component_columns_used: s.and_then(|s| s.group).map(|g| g.used_columns as u64),
     }
 }
 
