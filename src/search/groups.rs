@@ -121,16 +121,19 @@ pub(crate) fn group_bound(
     // k is the largest size up to `max_k` whose sets, with the smaller
     // ones, number at most `max_sets` (counted first; a size is listed whole
     // or not at all, so that pricing stays exact).
-    let mut per_size = vec![0usize; max_k + 1];
-    walk_sets(&nbrs, max_k, |set, _| {
-        per_size[set.len()] += 1;
-        false
-    });
+    // Counting stops at max_sets, so dense networks cost no long walk.
     let mut k = 0;
     let mut total = 0;
-    while k < max_k && total + per_size[k + 1] <= max_sets {
-        k += 1;
-        total += per_size[k];
+    for size in 1..=max_k {
+        let mut count = 0;
+        walk_sets(&nbrs, size, |_, _| {
+            count += 1;
+            (count <= max_sets).then_some(false)
+        });
+        if count > max_sets || late() {
+            break;
+        }
+        (k, total) = (size, count);
     }
     if k == 0 {
         return None;
@@ -139,9 +142,9 @@ pub(crate) fn group_bound(
     let mut columns: Vec<Column> = Vec::new();
     let mut stopped = false;
     walk_sets(&nbrs, k, |set, parent_excited| {
-        if stopped || (sets.len().is_multiple_of(1024) && late()) {
+        if sets.len().is_multiple_of(1024) && late() {
             stopped = true;
-            return false;
+            return None;
         }
         let id = sets.len() as u32;
         sets.push(set.to_vec());
@@ -155,7 +158,7 @@ pub(crate) fn group_bound(
                 cost,
             });
         }
-        excited
+        Some(excited)
     });
     if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
         eprintln!(
@@ -561,9 +564,14 @@ fn touching(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: im
 
 /// Visits every connected set of at most `max_size` units once (sorted),
 /// with whether the set it grew from was reported excited; `visit` returns
-/// whether this one is. ESU enumeration (Wernicke, "Efficient detection of
-/// network motifs", IEEE/ACM TCBB 3(4), 2006), as `cuts::each_connected_set`.
-fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], bool) -> bool) {
+/// whether this one is, or `None` to end the walk. ESU enumeration
+/// (Wernicke, "Efficient detection of network motifs", IEEE/ACM TCBB 3(4),
+/// 2006), as `cuts::each_connected_set`.
+fn walk_sets(
+    nbrs: &[Vec<u32>],
+    max_size: usize,
+    mut visit: impl FnMut(&[u32], bool) -> Option<bool>,
+) {
     struct Walk<'a, F> {
         nbrs: &'a [Vec<u32>],
         max_size: usize,
@@ -571,13 +579,17 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
         set: Vec<u32>,
         sorted: Vec<u32>,
         visit: F,
+        ended: bool,
     }
-    impl<F: FnMut(&[u32], bool) -> bool> Walk<'_, F> {
+    impl<F: FnMut(&[u32], bool) -> Option<bool>> Walk<'_, F> {
         fn extend(&mut self, mut ext: Vec<u32>, root: u32, parent_excited: bool) {
             self.sorted.clear();
             self.sorted.extend_from_slice(&self.set);
             self.sorted.sort_unstable();
-            let excited = (self.visit)(&self.sorted, parent_excited);
+            let Some(excited) = (self.visit)(&self.sorted, parent_excited) else {
+                self.ended = true;
+                return;
+            };
             if self.set.len() == self.max_size {
                 return;
             }
@@ -591,6 +603,9 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
                 self.enter(w);
                 self.extend(next, root, excited);
                 self.leave(w);
+                if self.ended {
+                    return;
+                }
             }
         }
         fn enter(&mut self, w: u32) {
@@ -615,6 +630,7 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
         set: Vec::with_capacity(max_size),
         sorted: Vec::with_capacity(max_size),
         visit: &mut visit,
+        ended: false,
     };
     for v in 0..nbrs.len() as u32 {
         let ext: Vec<u32> = nbrs[v as usize]
@@ -625,6 +641,9 @@ fn walk_sets(nbrs: &[Vec<u32>], max_size: usize, mut visit: impl FnMut(&[u32], b
         walk.enter(v);
         walk.extend(ext, v, false);
         walk.leave(v);
+        if walk.ended {
+            return;
+        }
     }
 }
 
