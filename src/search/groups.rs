@@ -27,7 +27,7 @@
 //! value plus `n` times the least reduced cost is a lower bound (a plan has
 //! at most `n` columns), whether or not the rounds run to the end.
 
-use super::cuts::{Pool, separate, support_separate};
+use super::cuts::{Pool, grow_separate, separate, support_separate};
 use super::instance::{Instance, Survive, pieces};
 use microlp::{
     ComparisonOp, OptimizationDirection, Problem, SolveOutcome, TerminationReason, Variable,
@@ -472,6 +472,20 @@ pub(crate) fn group_bound(
             // feasible (rows alone: dual feasible), so that one simplex
             // restarts from it; with both it could be neither.
             new_rows.clear();
+        }
+        if priced.is_empty() && new_rows.is_empty() {
+            // Before stopping, the root's deeper separators on y.
+            let mut found = Vec::new();
+            grow_separate(inst, &y, 8, &mut found);
+            support_separate(inst, &y, 9, &mut found);
+            let added: Vec<usize> = found.into_iter().filter_map(|row| pool.add(row)).collect();
+            let mut deep: Vec<(f64, usize)> = added
+                .into_iter()
+                .filter_map(|i| pool.rows[i].violated_by(&y, TOL).map(|v| (v, i)))
+                .collect();
+            deep.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+            deep.truncate(NEW_CUTS);
+            new_rows.extend(deep.iter().map(|&(_, i)| Extra::Cut(i)));
         }
         if priced.is_empty() && new_rows.is_empty() {
             stats.bound = stats.bound.max(value);
