@@ -708,7 +708,7 @@ enum Job {
 /// A finished job: its result, time and excitation-check counts.
 enum Done {
     Improved(Vec<bool>, Duration, OracleStats),
-    Bound(Option<groups::GroupStats>, OracleStats),
+    Bound(Option<groups::GroupStats>, Option<Vec<bool>>, OracleStats),
 }
 
 /// Branch-and-bound nodes after which the second neighbourhood search's
@@ -740,8 +740,11 @@ impl Helper {
         match self.from.recv() {
             // A stopped computation's figures depend on when it stopped:
             // they are left out, so that the output stays deterministic.
-            Ok(Done::Bound(group, checks)) if !cancel => {
+            Ok(Done::Bound(group, plan, checks)) if !cancel => {
                 s.inst.oracle.stats.borrow_mut().add(&checks);
+                if let Some(plan) = plan {
+                    s.offer(plan);
+                }
                 group
             }
             _ => None,
@@ -820,8 +823,15 @@ pub(crate) fn search(
                             limits.deadline,
                             &flag,
                         );
+                        // Its LP point, rounded and repaired, starts one
+                        // more neighbourhood search (another basin than the
+                        // root's roundings).
+                        let plan = group
+                            .as_ref()
+                            .and_then(|(_, y)| repair(&sub, y))
+                            .map(|start| super::lns::improve(&sub, &start, limits.deadline, &flag));
                         let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
-                        Done::Bound(group, checks)
+                        Done::Bound(group.map(|(g, _)| g), plan, checks)
                     }
                 };
                 if done.send(result).is_err() {

@@ -93,7 +93,8 @@ enum Extra {
 }
 
 /// The bound with components of at most `k` units as columns, starting from
-/// the pool rows `start`; rows found on the way join the pool. `None` when
+/// the pool rows `start`; rows found on the way join the pool. Returns the
+/// figures and the last LP point on the links (`z + Σ x_S·tree(S)`). `None` when
 /// the deadline passes before a first LP is solved, or on solver trouble
 /// before that.
 #[allow(clippy::too_many_arguments)]
@@ -106,7 +107,7 @@ pub(crate) fn group_bound(
     thresholds: &[f64],
     deadline: Option<Instant>,
     stop: &AtomicBool,
-) -> Option<GroupStats> {
+) -> Option<(GroupStats, Vec<f64>)> {
     let t0 = Instant::now();
     let late =
         || stop.load(AtomicOrdering::Relaxed) || deadline.is_some_and(|d| Instant::now() >= d);
@@ -198,6 +199,7 @@ pub(crate) fn group_bound(
     let mut extras: Vec<Extra> = start.iter().map(|&i| Extra::Cut(i as usize)).collect();
     let mut present: HashSet<Extra> = extras.iter().cloned().collect();
     let mut warm: Option<(WarmStart, usize, usize)> = None;
+    let mut last_point: Vec<f64> = Vec::new();
 
     loop {
         if late() {
@@ -366,6 +368,7 @@ pub(crate) fn group_bound(
                 }
             }
         }
+        last_point.clone_from(&y);
         let mut new_rows: Vec<Extra> = Vec::new();
         // Covering-model rows on y, from the pool first.
         let mut cuts: Vec<(f64, usize)> = pool
@@ -503,7 +506,7 @@ pub(crate) fn group_bound(
     }
     stats.used_columns = active.len();
     stats.time = t0.elapsed();
-    (stats.bound > f64::NEG_INFINITY).then_some(stats)
+    (stats.bound > f64::NEG_INFINITY).then_some((stats, last_point))
 }
 
 /// Moves the `most` most violated rows (ties: first found) into `out`.
