@@ -704,6 +704,7 @@ mod tests {
             &stop,
         )
         .expect("a bound")
+        .0
     }
 
     /// Cormen, Leiserson, Rivest & Stein, "Introduction to Algorithms", 3rd
@@ -747,6 +748,23 @@ mod tests {
         let exact = bound(&inst, 9);
         assert!(exact.converged);
         assert!((exact.bound - 37.0).abs() < 1e-6, "{exact:?}");
+        // Its last LP point is then the spanning tree itself: a valid plan
+        // at that cost.
+        let stop = AtomicBool::new(false);
+        let (_, y) = group_bound(
+            &inst,
+            &mut Pool::default(),
+            &[],
+            9,
+            usize::MAX,
+            &[0.5],
+            None,
+            &stop,
+        )
+        .expect("a bound");
+        let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();
+        assert!(inst.holds(&chosen));
+        assert!((inst.cost(&chosen) - 37.0).abs() < 1e-9);
         for k in 1..9 {
             let b = bound(&inst, k);
             assert!(b.bound <= 37.0 + 1e-6, "k {k}: {b:?}");
