@@ -678,14 +678,16 @@ pub(crate) struct Limits {
     pub root_deadline: Option<Instant>,
 }
 
-/// Neighbourhood search on a second thread, with its own excitation
-/// oracle (the oracle's caches are not shared between threads). It runs
-/// twice: from the starting incumbent while the root is cut, and from the
-/// incumbent after the root while branch and bound goes on. The search
-/// takes each result at a fixed point (after the root; after
-/// [`HELPER_NODES`] nodes or when the tree is done), waiting for it if
-/// need be, so the plan does not depend on timing unless the deadline
-/// stops the work.
+/// Work on a second thread, with its own excitation oracle (the oracle's
+/// caches are not shared between threads): neighbourhood search from the
+/// starting incumbent while the root is cut, and from the incumbent after
+/// the root while branch and bound goes on; then, on large two-way
+/// networks, the bound from small components as columns and a
+/// neighbourhood search from its LP point. The search takes each result at
+/// a fixed point (after the root; after [`HELPER_NODES`] nodes or when the
+/// tree is done; the bound when the tree is done), waiting for it if need
+/// be, so the plan does not depend on timing unless the deadline stops the
+/// work.
 struct Helper {
     to: mpsc::Sender<Job>,
     from: mpsc::Receiver<Done>,
@@ -705,7 +707,8 @@ enum Job {
     Bound(Vec<Row>, Vec<u32>),
 }
 
-/// A finished job: its result, time and excitation-check counts.
+/// A finished job: its result (the bound's job: the bound and the plan
+/// from its neighbourhood search), time and excitation-check counts.
 enum Done {
     Improved(Vec<bool>, Duration, OracleStats),
     Bound(Option<groups::GroupStats>, Option<Vec<bool>>, OracleStats),
@@ -716,6 +719,14 @@ enum Done {
 const HELPER_NODES: u64 = 100;
 
 impl Helper {
+    /// The next finished job; `cancel` asks the work to stop first.
+    fn receive(&mut self, cancel: bool) -> Option<Done> {
+        if cancel {
+            self.stop.store(true, AtomicOrdering::Relaxed);
+        }
+        self.from.recv().ok()
+    }
+
     fn start(&mut self, from: &[bool]) {
         if self.to.send(Job::Improve(from.to_vec())).is_ok() {
             self.pending = true;
@@ -734,13 +745,10 @@ impl Helper {
         if !std::mem::take(&mut self.bound_pending) {
             return None;
         }
-        if cancel {
-            self.stop.store(true, AtomicOrdering::Relaxed);
-        }
-        match self.from.recv() {
+        match self.receive(cancel) {
             // A stopped computation's figures depend on when it stopped:
             // they are left out, so that the output stays deterministic.
-            Ok(Done::Bound(group, plan, checks)) if !cancel => {
+            Some(Done::Bound(group, plan, checks)) if !cancel => {
                 s.inst.oracle.stats.borrow_mut().add(&checks);
                 if let Some(plan) = plan {
                     s.offer(plan);
@@ -757,10 +765,7 @@ impl Helper {
         if !std::mem::take(&mut self.pending) {
             return;
         }
-        if cancel {
-            self.stop.store(true, AtomicOrdering::Relaxed);
-        }
-        if let Ok(Done::Improved(improved, time, checks)) = self.from.recv() {
+        if let Some(Done::Improved(improved, time, checks)) = self.receive(cancel) {
             // Both summed over the two threads. A stopped run's check
             // counts depend on when it stopped; they are left out so that
             // the reported figures stay deterministic.

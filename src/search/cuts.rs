@@ -580,6 +580,20 @@ pub(crate) fn each_connected_set(
     max_size: usize,
     mut visit: impl FnMut(&[u32]),
 ) {
+    walk_connected_sets(nbrs, max_size, |set, _| {
+        visit(set);
+        Some(false)
+    });
+}
+
+/// [`each_connected_set`] with a flag carried down the walk: `visit` gets
+/// the flag it returned for the set this one grew from (`false` for a
+/// single unit) and returns this set's flag, or `None` to end the walk.
+pub(crate) fn walk_connected_sets(
+    nbrs: &[Vec<u32>],
+    max_size: usize,
+    mut visit: impl FnMut(&[u32], bool) -> Option<bool>,
+) {
     struct Walk<'a, F> {
         nbrs: &'a [Vec<u32>],
         max_size: usize,
@@ -588,13 +602,17 @@ pub(crate) fn each_connected_set(
         set: Vec<u32>,
         sorted: Vec<u32>,
         visit: F,
+        ended: bool,
     }
-    impl<F: FnMut(&[u32])> Walk<'_, F> {
-        fn extend(&mut self, mut ext: Vec<u32>, root: u32) {
+    impl<F: FnMut(&[u32], bool) -> Option<bool>> Walk<'_, F> {
+        fn extend(&mut self, mut ext: Vec<u32>, root: u32, parent: bool) {
             self.sorted.clear();
             self.sorted.extend_from_slice(&self.set);
             self.sorted.sort_unstable();
-            (self.visit)(&self.sorted);
+            let Some(flag) = (self.visit)(&self.sorted, parent) else {
+                self.ended = true;
+                return;
+            };
             if self.set.len() == self.max_size {
                 return;
             }
@@ -608,8 +626,11 @@ pub(crate) fn each_connected_set(
                     }
                 }
                 self.enter(w);
-                self.extend(next, root);
+                self.extend(next, root, flag);
                 self.leave(w);
+                if self.ended {
+                    return;
+                }
             }
         }
         fn enter(&mut self, w: u32) {
@@ -634,6 +655,7 @@ pub(crate) fn each_connected_set(
         set: Vec::with_capacity(max_size),
         sorted: Vec::with_capacity(max_size),
         visit: &mut visit,
+        ended: false,
     };
     for v in 0..nbrs.len() as u32 {
         let ext: Vec<u32> = nbrs[v as usize]
@@ -642,8 +664,11 @@ pub(crate) fn each_connected_set(
             .filter(|&u| u > v)
             .collect();
         walk.enter(v);
-        walk.extend(ext, v);
+        walk.extend(ext, v, false);
         walk.leave(v);
+        if walk.ended {
+            return;
+        }
     }
 }
 

@@ -27,7 +27,7 @@
 //! value plus `n` times the least reduced cost is a lower bound (a plan has
 //! at most `n` columns), whether or not the rounds run to the end.
 
-use super::cuts::{Pool, grow_separate, separate, support_separate};
+use super::cuts::{Pool, grow_separate, separate, support_separate, walk_connected_sets};
 use super::instance::{Instance, Survive, pieces};
 use microlp::{
     ComparisonOp, OptimizationDirection, Problem, SolveOutcome, TerminationReason, Variable,
@@ -111,6 +111,13 @@ pub(crate) fn group_bound(
     let t0 = Instant::now();
     let late =
         || stop.load(AtomicOrdering::Relaxed) || deadline.is_some_and(|d| Instant::now() >= d);
+    // Time for one LP solve: until the deadline, at most ROUND_TIME.
+    let time_left = || {
+        deadline.map_or(ROUND_TIME, |d| {
+            d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
+        })
+    };
+    let debug = std::env::var("EXMESH_DEBUG_GROUPS").is_ok();
     let n = inst.n;
     let m = inst.links.len();
     let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
@@ -127,7 +134,7 @@ pub(crate) fn group_bound(
     let mut total = 0;
     for size in 1..=max_k {
         let mut count = 0;
-        walk_sets(&nbrs, size, |_, _| {
+        walk_connected_sets(&nbrs, size, |_, _| {
             count += 1;
             (count <= max_sets).then_some(false)
         });
@@ -142,7 +149,7 @@ pub(crate) fn group_bound(
     let mut sets: Vec<Vec<u32>> = Vec::with_capacity(total);
     let mut columns: Vec<Column> = Vec::new();
     let mut stopped = false;
-    walk_sets(&nbrs, k, |set, parent_excited| {
+    walk_connected_sets(&nbrs, k, |set, parent_excited| {
         if sets.len().is_multiple_of(1024) && late() {
             stopped = true;
             return None;
@@ -161,7 +168,7 @@ pub(crate) fn group_bound(
         }
         Some(excited)
     });
-    if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+    if debug {
         eprintln!(
             "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
             sets.len(),
@@ -282,9 +289,7 @@ pub(crate) fn group_bound(
         let rows = n + extras.len();
         // Each solve within the deadline and at most ROUND_TIME: a solve
         // that stalls ends the rounds with the bound so far.
-        let limit = deadline.map_or(ROUND_TIME, |d| {
-            d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
-        });
+        let limit = time_left();
         // A restart from the grown basis takes well under a second at
         // 150 units, but now and then stalls: after WARM_TIME, a cold solve.
         p.set_time_limit(if warm.is_some() {
@@ -306,19 +311,15 @@ pub(crate) fn group_bound(
             Some((w, old_vars, old_rows)) => {
                 optimal(p.solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows)))
                     .or_else(|| {
-                        if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
+                        if debug {
                             eprintln!("[groups] warm solve failed after {:.1?}", ts.elapsed());
                         }
-                        let left = deadline.map_or(ROUND_TIME, |d| {
-                            d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
-                        });
-                        p.set_time_limit(left);
+                        p.set_time_limit(time_left());
                         optimal(p.solve())
                     })
             }
             None => optimal(p.solve()),
         };
-        let debug = std::env::var("EXMESH_DEBUG_GROUPS").is_ok();
         let Some(sol) = solved else {
             if debug {
                 eprintln!("[groups] round {}: no optimal LP", stats.rounds);
@@ -575,91 +576,6 @@ fn touching(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: im
             if other > v || set.binary_search(&other).is_err() {
                 f(e);
             }
-        }
-    }
-}
-
-/// Visits every connected set of at most `max_size` units once (sorted),
-/// with whether the set it grew from was reported excited; `visit` returns
-/// whether this one is, or `None` to end the walk. ESU enumeration
-/// (Wernicke, "Efficient detection of network motifs", IEEE/ACM TCBB 3(4),
-/// 2006), as `cuts::each_connected_set`.
-fn walk_sets(
-    nbrs: &[Vec<u32>],
-    max_size: usize,
-    mut visit: impl FnMut(&[u32], bool) -> Option<bool>,
-) {
-    struct Walk<'a, F> {
-        nbrs: &'a [Vec<u32>],
-        max_size: usize,
-        near: Vec<u32>,
-        set: Vec<u32>,
-        sorted: Vec<u32>,
-        visit: F,
-        ended: bool,
-    }
-    impl<F: FnMut(&[u32], bool) -> Option<bool>> Walk<'_, F> {
-        fn extend(&mut self, mut ext: Vec<u32>, root: u32, parent_excited: bool) {
-            self.sorted.clear();
-            self.sorted.extend_from_slice(&self.set);
-            self.sorted.sort_unstable();
-            let Some(excited) = (self.visit)(&self.sorted, parent_excited) else {
-                self.ended = true;
-                return;
-            };
-            if self.set.len() == self.max_size {
-                return;
-            }
-            while let Some(w) = ext.pop() {
-                let mut next = ext.clone();
-                for &u in &self.nbrs[w as usize] {
-                    if u > root && self.near[u as usize] == 0 && !next.contains(&u) {
-                        next.push(u);
-                    }
-                }
-                self.enter(w);
-                self.extend(next, root, excited);
-                self.leave(w);
-                if self.ended {
-                    return;
-                }
-            }
-        }
-        fn enter(&mut self, w: u32) {
-            self.set.push(w);
-            self.near[w as usize] += 1;
-            for &u in &self.nbrs[w as usize] {
-                self.near[u as usize] += 1;
-            }
-        }
-        fn leave(&mut self, w: u32) {
-            self.set.pop();
-            self.near[w as usize] -= 1;
-            for &u in &self.nbrs[w as usize] {
-                self.near[u as usize] -= 1;
-            }
-        }
-    }
-    let mut walk = Walk {
-        nbrs,
-        max_size,
-        near: vec![0; nbrs.len()],
-        set: Vec::with_capacity(max_size),
-        sorted: Vec::with_capacity(max_size),
-        visit: &mut visit,
-        ended: false,
-    };
-    for v in 0..nbrs.len() as u32 {
-        let ext: Vec<u32> = nbrs[v as usize]
-            .iter()
-            .copied()
-            .filter(|&u| u > v)
-            .collect();
-        walk.enter(v);
-        walk.extend(ext, v, false);
-        walk.leave(v);
-        if walk.ended {
-            return;
         }
     }
 }
