@@ -89,9 +89,65 @@ pub struct Check {
     pub cost: f64,
     /// Source components, ordered by their first unit.
     pub source_components: Vec<SourceComponent>,
+    /// Every unit's jump map is non-expansive (see [`crate::certify::gain_checks`]).
+    pub gains_ok: bool,
+    /// The gain conditions: the failing units, or the unit closest to its
+    /// limit when all pass.
+    pub gains: Vec<crate::certify::GainCheck>,
     /// Certified convergence rate, when asked for (see [`crate::certify`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub certificate: Option<crate::certify::Certificate>,
+    /// What the check concludes (structure, gains and certificate together).
+    pub verdict: Verdict,
+}
+
+/// The conclusion of a check. Only `converges` means every estimate
+/// provably converges (on the recorded data and the model).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    /// Structure, gains and certificate all hold.
+    Converges,
+    /// A source component is not excited.
+    StructureFails,
+    /// Some unit's jump map can expand the error (gain condition fails).
+    GainsFail,
+    /// Structure and gains hold but no window of the recorded horizon
+    /// shows contraction: convergence is not certified.
+    NotCertified,
+    /// Structure and gains hold; the rate was not checked (`--skip-rate`).
+    RateNotChecked,
+}
+
+impl Verdict {
+    /// True when the verdict allows exit code 0 (`converges`, or structure
+    /// and gains holding with the rate not asked for).
+    pub fn ok(self) -> bool {
+        matches!(self, Verdict::Converges | Verdict::RateNotChecked)
+    }
+}
+
+impl Check {
+    /// Attaches a certificate and recomputes the verdict.
+    pub fn with_certificate(mut self, certificate: crate::certify::Certificate) -> Self {
+        self.certificate = Some(certificate);
+        self.verdict = self.conclude();
+        self
+    }
+
+    fn conclude(&self) -> Verdict {
+        if !self.condition_holds {
+            Verdict::StructureFails
+        } else if !self.gains_ok {
+            Verdict::GainsFail
+        } else {
+            match &self.certificate {
+                None => Verdict::RateNotChecked,
+                Some(c) if c.rate.is_some() => Verdict::Converges,
+                Some(_) => Verdict::NotCertified,
+            }
+        }
+    }
 }
 
 fn names(problem: &Problem, nodes: &[NodeId]) -> Vec<String> {
@@ -228,7 +284,8 @@ pub fn check(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Check
             }
         })
         .collect();
-    Check {
+    let gains = crate::certify::gain_checks(problem, set);
+    let mut check = Check {
         network: problem.settings.name.clone(),
         condition_holds: source_components.iter().all(|c| c.excited),
         min_excitation: table.min_excitation(),
@@ -240,7 +297,12 @@ pub fn check(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Check
             .map(|&l| problem.link(l).id.clone())
             .collect(),
         cost: problem.cost(set),
+        gains_ok: gains.iter().all(|g| g.ok),
+        gains,
         source_components,
         certificate: None,
-    }
+        verdict: Verdict::StructureFails,
+    };
+    check.verdict = check.conclude();
+    check
 }

@@ -188,7 +188,7 @@ impl ExcitationTable {
             .nodes
             .par_iter()
             .map(|node| {
-                let pre = UnitPrefix::new(&node.log, g.flow_gain, g.jump_gain);
+                let pre = UnitPrefix::new(&node.log, g.flow_gain, g.jump_weight());
                 let mut col = vec![0.0; windows.len() * q];
                 for (w, out) in windows.iter().zip(col.chunks_exact_mut(q)) {
                     pre.window(w, g.flow_gain, out);
@@ -413,7 +413,7 @@ impl ExcitationTable {
         let mut work = vec![0.0; self.p * self.p];
         order.into_iter().find(|&w| {
             self.pool_into(w, nodes, &mut sum);
-            !at_least(self.p, &sum, self.min_excitation, &mut work)
+            !excited_window(self.p, &sum, self.min_excitation, &mut work)
         })
     }
 }
@@ -452,6 +452,25 @@ pub fn eigenvalues(p: usize, packed: &[f64]) -> Vec<f64> {
 
 /// True when `λ_min(G) ≥ mu`, decided by Cholesky of `G − mu I` (the
 /// boundary case λ_min = mu exactly may go either way).
+/// The one tie rule (docs/theory.md §3): a window's pooled Gramian is
+/// excited when its smallest eigenvalue, as computed by [`min_eigen`], is
+/// at least `mu` — the same number `level` reports, so `check`, `plan` and
+/// every heuristic decide a tie the same way. Cholesky factorisations of
+/// `G − (mu ± margin) I` settle the clear cases first; only values within
+/// the margin (10⁻⁹ of the trace, far above the eigenvalue's rounding
+/// error) are decided by the eigenvalue itself.
+pub fn excited_window(p: usize, packed: &[f64], mu: f64, work: &mut [f64]) -> bool {
+    let trace: f64 = (0..p).map(|r| packed[packed_index(p, r, r)].abs()).sum();
+    let margin = 1e-9 * (trace + mu.abs()) + f64::MIN_POSITIVE;
+    if at_least(p, packed, mu + margin, work) {
+        return true;
+    }
+    if !at_least(p, packed, mu - margin, work) {
+        return false;
+    }
+    min_eigen(p, packed).0 >= mu
+}
+
 fn at_least(p: usize, packed: &[f64], mu: f64, a: &mut [f64]) -> bool {
     for r in 0..p {
         for c in 0..=r {

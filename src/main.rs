@@ -371,7 +371,7 @@ fn run() -> anyhow::Result<ExitCode> {
             let set = problem::read_link_set(&problem, &plan)?;
             let facts = plan_facts(&plan);
             let table = ExcitationTable::build(&problem);
-            let mut check = analysis::check(&problem, &table, &set);
+            let check = analysis::check(&problem, &table, &set);
             let cert = certify::certify(&problem, &table, &set);
             let options = simulate::SimOptions {
                 truth,
@@ -383,7 +383,7 @@ fn run() -> anyhow::Result<ExitCode> {
                     let svg = report::chart::errors_svg(&problem, &t)?;
                     Ok((t, svg))
                 });
-            check.certificate = Some(cert);
+            let check = check.with_certificate(cert);
             let front = if front {
                 let f = search::pareto::front(
                     &problem,
@@ -524,11 +524,11 @@ fn run() -> anyhow::Result<ExitCode> {
             pictures.write(&problem, &table, &set)?;
             let mut check = analysis::check(&problem, &table, &set);
             if !skip_rate {
-                check.certificate = Some(certify::certify(&problem, &table, &set));
+                check = check.with_certificate(certify::certify(&problem, &table, &set));
             }
             emit(&mut out, json, &check, |o| report::text::check(&check, o))
                 .context("writing the check")?;
-            verdict(check.condition_holds)
+            verdict(check.verdict.ok())
         }
     };
     out.flush().context("writing to standard output")?;

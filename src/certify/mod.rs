@@ -1,55 +1,56 @@
-//! Certified convergence rate of a link set on the recorded data (DESIGN §4)
-//! and the gain conditions.
+//! Certified convergence rate of a link set on the recorded data
+//! (docs/theory.md §6) and the gain conditions.
 //!
-//! For every certificate window w, `‖Φ(w)‖₂` is found by the Lanczos method
-//! (an accelerated power iteration) on `ΦᵀΦ` (forward and adjoint
-//! propagation, see [`propagate`]). With
-//! `ρ = max_w ‖Φ(w)‖₂ < 1` over windows of length `T_c`, the certified rate
-//! is `λ = −ln ρ / T_c`, and `|e(t)| ≤ c·e^{−λ(t−s)}|e(s)|` with the transient
-//! factor `c = M/ρ`, M a bound on `‖Φ‖₂` over partial windows.
+//! The error system is block-diagonal over the weakly connected components
+//! of the chosen digraph; each block is certified on its own. For every
+//! certificate window w, an **upper bound** on `‖Φ(w)‖₂` comes from
+//! [`bound`]: exact for small blocks, a deflated Lanczos run with a
+//! randomized tail bound for larger ones. With `ρ = max_w ‖Φ(w)‖₂ < 1`
+//! over windows of length `T_c`, the block's certified rate is
+//! `λ = −ln ρ / T_c`, and `|e(t)| ≤ c·e^{−λ(t−h0)}|e(h0)|` for every t of
+//! the horizon (its last jumps included) with the transient factor
+//! `c = M/ρ`, M a bound on `‖Φ‖₂` over every piece of the chain of
+//! windows from h0 through the horizon's end. The network's rate is the
+//! smallest block rate and its transient factor the largest.
 //!
 //! # References
-//! Golub & Van Loan, "Matrix Computations", 4th ed., 2013, §8.2 (power
-//! method); Khalil, "Nonlinear Systems", 3rd ed., 2002, §4.6 (uniform
-//! exponential stability of linear time-varying systems from the transition
-//! matrix).
+//! Khalil, "Nonlinear Systems", 3rd ed., 2002, §4.6 (uniform exponential
+//! stability of linear time-varying systems from the transition matrix);
+//! Kuczyński & Woźniakowski, SIAM J. Matrix Anal. Appl. 13(4), 1992
+//! (random-start Lanczos tail bound).
 
+pub mod bound;
+mod estimate;
 pub mod propagate;
+
+pub use estimate::window_log_norm;
 
 use crate::analysis;
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkSet, Problem};
 use crate::signal::{Window, WindowKind, window_at};
-use propagate::{Direction, ErrorSystem, Schedule, Step, Work};
+use bound::NormBound;
+use propagate::{Direction, ErrorSystem, Schedule, Work};
 use rayon::prelude::*;
 use serde::Serialize;
 use std::io::IsTerminal;
 
 /// Windows handled one after another by one thread, each warm-starting the
-/// Lanczos iteration from the previous one's singular vector: at most this
-/// many, and the windows of a batch are split into at least `PIECES`
-/// chunks so that both cores of a small machine stay busy. The split depends
-/// only on the number of windows, so results do not depend on the number of
-/// threads.
+/// next one's Lanczos run from its singular vector: at most this many, and
+/// the windows of a batch are split into at least `PIECES` chunks so that
+/// both cores of a small machine stay busy. The split depends only on the
+/// number of windows, so results do not depend on the number of threads.
 const CHUNK: usize = 16;
 
-/// Fewest chunks a batch of windows is split into (4: each chunk head
-/// starts cold or from another trial's vector; 8 took 101 Lanczos steps
-/// instead of 89 on the certificate benchmark, one window per chunk 126).
+/// Fewest chunks a batch of windows is split into.
 const PIECES: usize = 4;
-
-/// Lanczos stops when the Ritz residual is below this times the Ritz value
-/// (the value itself is then accurate to about the square of it).
-const LANCZOS_TOLERANCE: f64 = 1e-4;
-
-/// Largest Krylov dimension before a restart from the Ritz vector.
-const LANCZOS_DIMENSION: usize = 30;
-
-/// Most restarts.
-const LANCZOS_RESTARTS: usize = 20;
 
 /// Multiples of the excitation window tried as the certificate window.
 pub const MULTIPLES: [usize; 5] = [1, 2, 4, 8, 16];
+
+/// A window bound counts as loose when its upper bound exceeds its lower
+/// bound by more than this factor (reported, still a valid bound).
+const LOOSE: f64 = 1.001;
 
 /// One gain condition.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -58,8 +59,12 @@ pub struct GainCheck {
     pub condition: String,
     /// The value checked.
     pub value: f64,
+    /// The limit the value is checked against.
+    pub limit: f64,
     /// The condition holds.
     pub ok: bool,
+    /// The unit concerned, for a per-unit condition.
+    pub node: Option<String>,
 }
 
 /// A unit's share of the slowest mode.
@@ -72,29 +77,71 @@ pub struct UnitShare {
     pub share: f64,
 }
 
+/// How the window norms behind a certificate are bounded.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum NormBoundKind {
+    /// Every norm computed exactly (plus a margin for rounding).
+    Exact,
+    /// Some norms bounded by randomized tail tests; the bound fails with
+    /// at most the stated probability.
+    Randomized,
+}
+
+/// The certificate of one weakly connected block of the chosen digraph.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BlockCertificate {
+    /// Units of the block.
+    pub units: Vec<String>,
+    /// Certified rate of the block in 1/s.
+    pub rate: Option<f64>,
+    /// The block's certificate window T_c in seconds.
+    pub window: f64,
+    /// Upper bound on ρ for the block.
+    pub contraction: f64,
+    /// The block's transient factor (from h0).
+    pub transient_factor: Option<f64>,
+    /// How the block's norms are bounded.
+    pub norm_bound: NormBoundKind,
+}
+
 /// The certificate of a link set.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Certificate {
-    /// Certified rate λ in 1/s; `None` when not certified on this horizon.
+    /// Certified rate λ in 1/s (the smallest over the blocks); `None` when
+    /// not certified on this horizon.
     pub rate: Option<f64>,
-    /// Certificate window T_c in seconds (the one giving the best rate, or
-    /// the longest tried when none certifies).
+    /// Certificate window T_c in seconds of the slowest block (the one
+    /// giving its best rate, or the longest tried when none certifies).
     pub window: f64,
-    /// ρ = max over windows of ‖Φ(w)‖₂ for that window length.
+    /// Upper bound on ρ = max over windows of ‖Φ(w)‖₂ of the slowest block.
     pub contraction: f64,
-    /// Transient factor c: `|e(t)| ≤ c e^{−λ(t−s)} |e(s)|`.
+    /// Transient factor c: `|e(t)| ≤ c e^{−λ(t−h0)} |e(h0)|` for every t
+    /// in the horizon, jumps at its end included.
     pub transient_factor: Option<f64>,
+    /// The start of the horizon h0: the envelope with `transient_factor`
+    /// holds from this time, for every later t through h1 (jumps at h1
+    /// included).
+    pub envelope_from: f64,
+    /// Transient factor for any start s in the horizon (not only h0):
+    /// `|e(t)| ≤ c' e^{−λ(t−s)} |e(s)|`.
+    pub transient_factor_any_start: Option<f64>,
     /// Time for the certified bound to fall to 1 % (seconds).
     pub time_to_1pct: Option<f64>,
+    /// The time to 1 % lies beyond the recorded horizon (an extrapolation
+    /// that assumes the data keep behaving as recorded).
+    pub time_to_1pct_extrapolated: bool,
     /// All gain conditions hold.
     pub gains_ok: bool,
     /// The gain conditions.
     pub gains: Vec<GainCheck>,
-    /// `−ln ‖Φ(h1, h0)‖₂ / (h1 − h0)` over the whole horizon.
+    /// Estimated decay rate over the whole horizon,
+    /// `−ln ‖Φ(h1, h0)‖₂ / (h1 − h0)` with the norm estimated by Lanczos
+    /// (an estimate, not a bound: it can overstate the decay).
     pub asymptotic_rate: Option<f64>,
-    /// Number of certificate windows of length `window`.
+    /// Number of certificate windows of length `window` (slowest block).
     pub windows: usize,
-    /// How many of them needed their norm computed (the others are bounded
+    /// How many of them needed their norm bounded (the others are bounded
     /// below the worst by products of half-length windows).
     pub evaluated_windows: usize,
     /// Start of the worst window.
@@ -103,16 +150,26 @@ pub struct Certificate {
     pub units: Vec<UnitShare>,
     /// Why there is no rate, when there is none.
     pub reason: Option<String>,
-    /// Windows whose Lanczos iteration stopped at its restart limit.
+    /// Windows whose upper bound exceeds its lower bound by more than
+    /// 0.1 % (still valid bounds, only looser).
     pub unconverged_windows: usize,
-    /// Lanczos steps (one forward and one adjoint pass each) over all
-    /// windows of every window length tried.
+    /// Work measure: propagation passes over windows, divided by two (one
+    /// Lanczos step is one forward and one adjoint pass).
     pub lanczos_steps: usize,
-    /// The worst certificate windows, worst first (at most three).
+    /// How the window norms are bounded: `exact` or `randomized`.
+    pub norm_bound: NormBoundKind,
+    /// Probability that a randomized bound fails (0 when exact): the number
+    /// of randomized tail tests times their failure probability.
+    pub failure_probability: f64,
+    /// The certificate of every weakly connected block, in order of
+    /// their smallest unit.
+    pub blocks: Vec<BlockCertificate>,
+    /// The worst certificate windows of the slowest block, worst first (at
+    /// most three).
     #[serde(skip)]
     pub worst_windows: Vec<Window>,
-    /// The right singular vector of the worst window (a warm start for
-    /// nearby systems).
+    /// The right singular vector estimate of the worst window (a warm
+    /// start for nearby systems; zero outside the slowest block).
     #[serde(skip)]
     pub worst_vector: Vec<f64>,
     /// Wall-clock split (text and benchmarks only, never JSON).
@@ -131,202 +188,123 @@ pub struct CertTiming {
     pub total: std::time::Duration,
 }
 
-/// The gain conditions of DESIGN §4 for the arcs of a link set.
+/// For every unit, the largest `|ψ|²/(1 + |ψ|²)` over its own jumps in the
+/// horizon (0 for a unit that never jumps): the share of the jump gain its
+/// jump map applies along ψ.
+pub fn jump_shares(problem: &Problem) -> Vec<f64> {
+    let (h0, h1) = (problem.domain.h0, problem.domain.h1);
+    let p = problem.settings.parameters;
+    problem
+        .nodes
+        .iter()
+        .map(|v| {
+            let log = &v.log;
+            (0..log.len().saturating_sub(1))
+                .filter(|&k| log.j[k + 1] == log.j[k] + 1 && log.t[k] >= h0 && log.t[k] <= h1)
+                .map(|k| {
+                    let sq: f64 = log.psi[k * p..(k + 1) * p].iter().map(|x| x * x).sum();
+                    sq / (1.0 + sq)
+                })
+                .fold(0.0, f64::max)
+        })
+        .collect()
+}
+
+/// The largest weighted in-degree each unit may have for its jump map to
+/// stay non-expansive: `(1 − γ_d s_i / 2)/δ` (infinite when δ = 0), with
+/// `s_i` from [`jump_shares`] (docs/theory.md §6, "Gains").
+pub fn degree_caps(problem: &Problem) -> Vec<f64> {
+    let g = problem.settings.gains;
+    jump_shares(problem)
+        .into_iter()
+        .map(|s| {
+            let room = 1.0 - g.jump_gain * s / 2.0;
+            if g.jump_coupling > 0.0 {
+                room / g.jump_coupling
+            } else if room >= 0.0 {
+                f64::INFINITY
+            } else {
+                f64::NEG_INFINITY
+            }
+        })
+        .collect()
+}
+
+/// The gain conditions for the arcs of a link set: every unit's jump map
+/// row is non-expansive when `δ·d_i + γ_d·s_i/2 ≤ 1` (d_i its weighted
+/// in-degree, s_i from [`jump_shares`]; docs/theory.md §6). Lists every
+/// unit that fails, or the unit closest to its limit when all pass.
 ///
 /// # References
-/// Olfati-Saber, Fax & Murray, "Consensus and cooperation in networked
-/// multi-agent systems", Proc. IEEE 95(1), 2007 (discrete consensus step
-/// below the inverse of the largest degree).
+/// Horn & Johnson, "Matrix Analysis", 2nd ed., 2013, §5.6 (induced norms;
+/// the block max norm of a block matrix is at most the largest block-row
+/// sum of block norms).
 pub fn gain_checks(problem: &Problem, set: &LinkSet) -> Vec<GainCheck> {
     let g = problem.settings.gains;
     let mut degree = vec![0.0f64; problem.n()];
     for a in problem.arcs(set) {
         degree[a.to.index()] += a.weight;
     }
-    let max_degree = degree.iter().fold(0.0f64, |m, &d| m.max(d));
-    vec![
-        GainCheck {
-            condition: "jump gain in (0, 2)".into(),
-            value: g.jump_gain,
-            ok: g.jump_gain > 0.0 && g.jump_gain < 2.0,
-        },
-        GainCheck {
-            condition: "jump coupling × largest weighted in-degree < 1".into(),
-            value: g.jump_coupling * max_degree,
-            ok: g.jump_coupling * max_degree < 1.0,
-        },
-    ]
-}
-
-/// Result of the Lanczos iteration on one window.
-#[derive(Debug, Clone)]
-struct WindowNorm {
-    log_norm: f64,
-    converged: bool,
-    iterations: usize,
-    /// Right singular vector (unit length).
-    right: Vec<f64>,
-}
-
-fn normalise(x: &mut [f64]) -> f64 {
-    let n = x.iter().map(|v| v * v).sum::<f64>().sqrt();
-    if n > 0.0 {
-        x.iter_mut().for_each(|v| *v /= n);
-    }
-    n
-}
-
-/// A deterministic starting vector with no special structure.
-fn start_vector(d: usize) -> Vec<f64> {
-    let mut rng = crate::synth::Rng(0x5eed_cafe);
-    let mut x: Vec<f64> = (0..d).map(|_| rng.uniform() - 0.5).collect();
-    normalise(&mut x);
-    x
-}
-
-/// `y ← ΦᵀΦ x`, returning ln of the scale taken out (the true product is
-/// `y · exp(2·returned)` relative to `reference`).
-fn normal_product(
-    system: &ErrorSystem,
-    steps: &[Step],
-    x: &[f64],
-    y: &mut [f64],
-    work: &mut Work,
-) -> f64 {
-    y.copy_from_slice(x);
-    let a = system.propagate(Direction::Forward, steps, y, work);
-    let b = system.propagate(Direction::Adjoint, steps, y, work);
-    a + b
-}
-
-/// ln ‖Φ‖₂ for the steps, by the Lanczos method on `ΦᵀΦ` with full
-/// reorthogonalisation, restarted from the Ritz vector, starting from `x`
-/// (which holds the right singular vector estimate on return).
-fn power_norm(
-    system: &ErrorSystem,
-    steps: &[Step],
-    x: &mut Vec<f64>,
-    work: &mut Work,
-    tolerance: f64,
-) -> WindowNorm {
-    let d = x.len();
-    let mut iterations = 0;
-    let mut converged = false;
-    let mut theta = 0.0f64;
-    let mut log_ref = 0.0f64;
-    if normalise(x) == 0.0 {
-        *x = start_vector(d);
-    }
-    'restarts: for restart in 0..LANCZOS_RESTARTS {
-        let mut basis: Vec<Vec<f64>> = vec![x.clone()];
-        let mut alpha: Vec<f64> = Vec::new();
-        let mut beta: Vec<f64> = Vec::new();
-        let mut w = vec![0.0; d];
-        for j in 0..LANCZOS_DIMENSION {
-            iterations += 1;
-            let scale = normal_product(system, steps, &basis[j], &mut w, work);
-            if restart == 0 && j == 0 {
-                log_ref = scale;
+    let shares = jump_shares(problem);
+    let rows: Vec<GainCheck> = degree
+        .iter()
+        .zip(&shares)
+        .zip(&problem.nodes)
+        .map(|((&d, &s), v)| {
+            let value = g.jump_coupling * d + g.jump_gain * s / 2.0;
+            GainCheck {
+                condition: "jump coupling × weighted in-degree + jump gain × share/2 ≤ 1 \
+                            (the unit's jump map is non-expansive)"
+                    .into(),
+                value,
+                limit: 1.0,
+                ok: value <= 1.0,
+                node: Some(v.id.clone()),
             }
-            let f = (scale - log_ref).exp();
-            w.iter_mut().for_each(|v| *v *= f);
-            let a: f64 = w.iter().zip(&basis[j]).map(|(p, q)| p * q).sum();
-            alpha.push(a);
-            // Full reorthogonalisation (twice is enough, Parlett).
-            for _ in 0..2 {
-                for q in &basis {
-                    let c: f64 = w.iter().zip(q).map(|(p, r)| p * r).sum();
-                    w.iter_mut().zip(q).for_each(|(p, r)| *p -= c * r);
-                }
-            }
-            let b = normalise(&mut w);
-            let (t, s) = top_ritz(&alpha, &beta);
-            theta = t;
-            let residual = b * s[s.len() - 1].abs();
-            let done = residual <= tolerance * t || b <= f64::MIN_POSITIVE * 1e10;
-            if done || j + 1 == LANCZOS_DIMENSION || j + 1 == d {
-                // Ritz vector.
-                let mut v = vec![0.0; d];
-                for (q, &c) in basis.iter().zip(&s) {
-                    v.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
-                }
-                normalise(&mut v);
-                *x = v;
-                if done || j + 1 == d {
-                    converged = true;
-                    break 'restarts;
-                }
-                continue 'restarts;
-            }
-            beta.push(b);
-            basis.push(w.clone());
-        }
+        })
+        .collect();
+    let failing: Vec<GainCheck> = rows.iter().filter(|r| !r.ok).cloned().collect();
+    if !failing.is_empty() {
+        return failing;
     }
-    // The Ritz value is a lower estimate of ‖Φ‖², accurate to about the
-    // square of the residual.
-    let log_norm = if theta > 0.0 {
-        0.5 * (theta.ln() + log_ref)
-    } else {
-        f64::NEG_INFINITY
-    };
-    WindowNorm {
-        log_norm,
-        converged,
-        iterations,
-        right: x.clone(),
-    }
+    rows.into_iter()
+        .max_by(|a, b| a.value.total_cmp(&b.value).then(b.node.cmp(&a.node)))
+        .into_iter()
+        .collect()
 }
 
-/// Largest eigenvalue of the symmetric tridiagonal matrix (diagonal `a`,
-/// off-diagonal `b`) and its eigenvector.
-fn top_ritz(a: &[f64], b: &[f64]) -> (f64, Vec<f64>) {
-    let k = a.len();
-    let t = nalgebra::DMatrix::from_fn(k, k, |r, c| {
-        if r == c {
-            a[r]
-        } else if r + 1 == c {
-            b[r]
-        } else if c + 1 == r {
-            b[c]
-        } else {
-            0.0
-        }
-    });
-    let e = nalgebra::SymmetricEigen::new(t);
-    let mut best = 0;
-    for i in 1..k {
-        if e.eigenvalues[i] > e.eigenvalues[best] {
-            best = i;
-        }
-    }
-    (
-        e.eigenvalues[best],
-        e.eigenvectors.column(best).iter().copied().collect(),
-    )
-}
-
-/// ln ‖Φ(w)‖₂ for every window, in parallel over fixed chunks.
-/// The first window of each chunk starts from `warm(window)` when given
-/// (a singular vector of a related window), else from a fixed vector.
+/// Bounds for every window, in parallel over fixed chunks. The first
+/// window of each chunk starts from `warm(window)` when given, else from a
+/// fixed vector; window k of the batch draws its random starts from
+/// `seeds[k]`. A window whose bound falls to `accept` (ln) stops early.
 fn window_norms(
     system: &ErrorSystem,
     windows: &[Window],
+    seeds: &[u64],
+    accept: f64,
     warm: &(dyn Fn(&Window) -> Option<Vec<f64>> + Sync),
-) -> Vec<WindowNorm> {
+) -> Vec<NormBound> {
     let d = system.dim();
+    let size = windows.len().div_ceil(PIECES).clamp(1, CHUNK);
     windows
-        .par_chunks(windows.len().div_ceil(PIECES).clamp(1, CHUNK))
-        .flat_map_iter(|chunk| {
+        .par_chunks(size)
+        .zip(seeds.par_chunks(size))
+        .flat_map_iter(|(chunk, seeds)| {
             let mut x = warm(&chunk[0])
                 .filter(|v| v.len() == d)
-                .unwrap_or_else(|| start_vector(d));
+                .unwrap_or_else(|| estimate::start_vector(d));
             let mut work = Work::default();
             let mut steps = Vec::new();
             chunk
                 .iter()
-                .map(|w| {
+                .zip(seeds)
+                .map(|(w, &seed)| {
                     system.schedule().steps(w, &mut steps);
-                    power_norm(system, &steps, &mut x, &mut work, LANCZOS_TOLERANCE)
+                    let b = bound::window_bound(system, &steps, &x, seed, accept, &mut work);
+                    if b.right.len() == d {
+                        x.clone_from(&b.right);
+                    }
+                    b
                 })
                 .collect::<Vec<_>>()
         })
@@ -344,25 +322,8 @@ pub fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
         .iter()
         .filter_map(|w| window_at(&problem.domain, s.window_kind, length, w.start))
         .collect();
-    // The chain from h0: windows of the trial's length for time windows;
-    // for hybrid windows, time windows as long as the longest hybrid one
-    // (the rate is per second of that length).
-    let chain = match s.window_kind {
-        WindowKind::Time => length,
-        WindowKind::Hybrid => out.iter().map(|w| w.end - w.start).fold(0.0, f64::max),
-    };
-    if chain > 0.0 {
-        let mut k = 0usize;
-        while let Some(w) = window_at(
-            &problem.domain,
-            WindowKind::Time,
-            chain,
-            problem.domain.h0 + k as f64 * chain,
-        ) {
-            out.push(w);
-            k += 1;
-        }
-    }
+    let chain = chain_length(problem, multiple, &out);
+    out.extend(chain_pieces(problem, chain).0);
     out.sort_by(|a, b| {
         a.start
             .total_cmp(&b.start)
@@ -373,15 +334,55 @@ pub fn certificate_windows(problem: &Problem, multiple: usize) -> Vec<Window> {
     out
 }
 
+/// Length of the chain windows for `multiple` × T: that length for time
+/// windows; for hybrid windows, time windows as long as the longest hybrid
+/// one (the rate is per second of that length).
+fn chain_length(problem: &Problem, multiple: usize, windows: &[Window]) -> f64 {
+    match problem.settings.window_kind {
+        WindowKind::Time => problem.settings.window * multiple as f64,
+        WindowKind::Hybrid => windows.iter().map(|w| w.end - w.start).fold(0.0, f64::max),
+    }
+}
+
+/// The chain of whole windows `[h0 + kL, h0 + (k+1)L)` that fit in the
+/// horizon, and the last piece after them: from the end of the chain to
+/// h1, jumps at h1 included (possibly only those jumps).
+pub fn chain_pieces(problem: &Problem, length: f64) -> (Vec<Window>, Window) {
+    let domain = &problem.domain;
+    let mut chain = Vec::new();
+    if length > 0.0 {
+        while let Some(w) = window_at(
+            domain,
+            WindowKind::Time,
+            length,
+            domain.h0 + chain.len() as f64 * length,
+        ) {
+            chain.push(w);
+        }
+    }
+    let start = chain.last().map_or(domain.h0, |w: &Window| w.end);
+    let last = Window {
+        start,
+        end: domain.h1.max(start),
+        jumps_through_end: true,
+    };
+    (chain, last)
+}
+
 struct Trial {
     length: f64,
+    /// ln of the chain length (the rate's time unit) for this trial.
+    chain: f64,
     log_rho: f64,
     worst: usize,
     windows: Vec<Window>,
-    /// ln ‖Φ(w)‖₂ where evaluated, else an upper bound on it.
+    /// ln of an upper bound on ‖Φ(w)‖₂: the window's own bound where
+    /// evaluated, else a product of half-length bounds (or +∞).
     upper: Vec<f64>,
     /// Evaluated windows (the others cannot be the worst).
-    norms: Vec<Option<WindowNorm>>,
+    norms: Vec<Option<NormBound>>,
+    /// Seed of this trial's random starts.
+    seed: u64,
 }
 
 impl Trial {
@@ -414,8 +415,8 @@ impl Trial {
     /// The certificate windows of `multiple` × T with their bounds: a time
     /// window of length 2L is the product of two windows of length L, so
     /// `‖Φ‖ ≤ ‖Φ_first‖·‖Φ_second‖` from the previous (half-length) trial
-    /// (+∞ where a half is not evaluated). Nothing is evaluated yet.
-    fn new(problem: &Problem, multiple: usize, prev: Option<&Trial>) -> Option<Trial> {
+    /// (+∞ where a half is not bounded). Nothing is evaluated yet.
+    fn new(problem: &Problem, multiple: usize, prev: Option<&Trial>, seed: u64) -> Option<Trial> {
         let windows = certificate_windows(problem, multiple);
         if windows.is_empty() {
             return None;
@@ -430,30 +431,29 @@ impl Trial {
                 _ => f64::INFINITY,
             })
             .collect();
-        let length = windows
-            .iter()
-            .map(|w| w.end - w.start)
-            .fold(0.0f64, f64::max);
+        let length = chain_length(problem, multiple, &windows);
         Some(Trial {
             length,
+            chain: length,
             log_rho: f64::NEG_INFINITY,
             worst: 0,
             norms: vec![None; windows.len()],
             windows,
             upper,
+            seed: seed ^ (multiple as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15),
         })
     }
 
-    /// Largest evaluated ln-norm (a lower bound on ln ρ).
+    /// Largest evaluated lower bound (a lower bound on ln ρ).
     fn lower(&self) -> f64 {
         self.norms
             .iter()
             .flatten()
-            .fold(f64::NEG_INFINITY, |m, n| m.max(n.log_norm))
+            .fold(f64::NEG_INFINITY, |m, n| m.max(n.log_lower))
     }
 
     /// Every window that could still be the worst (its bound is above the
-    /// largest norm found) is evaluated.
+    /// largest lower bound found) is evaluated.
     fn complete(&self) -> bool {
         let best = self.lower();
         self.norms
@@ -464,9 +464,10 @@ impl Trial {
 
     /// Evaluates windows, those with the largest bounds first, in batches
     /// (all unbounded windows at once unless `sample`), skipping windows
-    /// whose bound is below the largest norm found. Stops when the trial is
-    /// complete, after one batch when `sample`, or as soon as a norm above
-    /// `stop_above` is found. Sets ρ and the worst window when complete.
+    /// whose bound is below the largest lower bound found. Stops when the
+    /// trial is complete, after one batch when `sample`, or as soon as a
+    /// lower bound above `stop_above` is found. Sets ρ and the worst window
+    /// when complete.
     fn evaluate(
         &mut self,
         system: &ErrorSystem,
@@ -501,6 +502,10 @@ impl Trial {
                 todo.sort_unstable();
             }
             let batch: Vec<Window> = todo.iter().map(|&k| self.windows[k]).collect();
+            let seeds: Vec<u64> = todo
+                .iter()
+                .map(|&k| self.seed ^ (k as u64 + 1).wrapping_mul(0xD1B5_4A32_D192_ED03))
+                .collect();
             // Warm start: the right singular vector of the half-length
             // window at the same start (the slow direction there), when
             // evaluated.
@@ -509,8 +514,11 @@ impl Trial {
                 let k = p.index_at(w.start)?;
                 p.norms[k].as_ref().map(|n| n.right.clone())
             };
-            for (k, r) in todo.into_iter().zip(window_norms(system, &batch, &warm)) {
-                self.upper[k] = r.log_norm;
+            for (k, r) in todo
+                .into_iter()
+                .zip(window_norms(system, &batch, &seeds, best, &warm))
+            {
+                self.upper[k] = self.upper[k].min(r.log_upper);
                 self.norms[k] = Some(r);
             }
             if sample {
@@ -518,34 +526,37 @@ impl Trial {
             }
         }
         if self.complete() {
-            let mut worst = 0;
+            let mut worst = None;
             for (k, n) in self.norms.iter().enumerate() {
-                if let Some(n) = n
-                    && (self.norms[worst].is_none() || n.log_norm > self.upper[worst])
-                {
-                    worst = k;
+                if n.is_some() && worst.is_none_or(|w: usize| self.upper[k] > self.upper[w]) {
+                    worst = Some(k);
                 }
             }
-            self.worst = worst;
+            self.worst = worst.unwrap_or(0);
             self.log_rho = self.upper.iter().fold(f64::NEG_INFINITY, |m, &u| m.max(u));
         }
     }
 
-    /// Lanczos steps spent on this trial.
-    fn iterations(&self) -> usize {
-        self.norms.iter().flatten().map(|w| w.iterations).sum()
+    /// Propagation passes spent on this trial.
+    fn passes(&self) -> usize {
+        self.norms.iter().flatten().map(|w| w.passes).sum()
+    }
+
+    /// Randomized tail tests made in this trial.
+    fn tests(&self) -> usize {
+        self.norms.iter().flatten().map(|w| w.tests).sum()
     }
 }
 
-/// ln of a bound M on ‖Φ(s+τ, s)‖₂ over all windows and all τ inside them:
-/// the smaller of the product of 2-norm step bounds and √n times the
-/// product of step bounds in the norm `max_i |e_i|` (since
-/// `|x|_max ≤ |x|₂ ≤ √n |x|_max`). Factors below 1 are taken as 1, so the
-/// bound covers every partial window.
-fn log_partial_bound(system: &ErrorSystem, windows: &[Window]) -> f64 {
+/// ln of a bound on ‖Φ(s+τ, s)‖₂ over every piece of `pieces` and every τ
+/// inside it (jumps at its end included when it says so): the smaller of
+/// the product of 2-norm step bounds and √n times the product of step
+/// bounds in the norm `max_i |e_i|` (since `|x|_max ≤ |x|₂ ≤ √n |x|_max`).
+/// Factors below 1 are taken as 1, so the bound covers every partial piece.
+fn log_partial_bound(system: &ErrorSystem, pieces: &[Window]) -> f64 {
     let mut steps = Vec::new();
     let (mut two, mut sup) = (0.0f64, 0.0f64);
-    for w in windows {
+    for w in pieces {
         system.schedule().steps(w, &mut steps);
         let a: f64 = steps
             .iter()
@@ -559,44 +570,6 @@ fn log_partial_bound(system: &ErrorSystem, windows: &[Window]) -> f64 {
         sup = sup.max(b);
     }
     two.min(sup + 0.5 * (system.schedule().n() as f64).ln())
-}
-
-/// ln ‖Φ(w)‖₂ of one window for the error system (Lanczos from `start`,
-/// or a fixed vector when it is empty or of the wrong length).
-pub fn window_log_norm(system: &ErrorSystem, window: &Window, start: &[f64]) -> f64 {
-    let mut steps = Vec::new();
-    system.schedule().steps(window, &mut steps);
-    let mut x = if start.len() == system.dim() {
-        start.to_vec()
-    } else {
-        start_vector(system.dim())
-    };
-    power_norm(
-        system,
-        &steps,
-        &mut x,
-        &mut Work::default(),
-        LANCZOS_TOLERANCE,
-    )
-    .log_norm
-}
-
-/// ln ‖Φ(h1, h0)‖₂ over the whole horizon, Lanczos from `start` (or a
-/// fixed vector).
-fn horizon_log_norm(problem: &Problem, system: &ErrorSystem, start: Option<Vec<f64>>) -> f64 {
-    let w = Window {
-        start: problem.domain.h0,
-        end: problem.domain.h1,
-        jumps_through_end: true,
-    };
-    let mut steps = Vec::new();
-    system.schedule().steps(&w, &mut steps);
-    let mut x = start
-        .filter(|v| v.len() == system.dim())
-        .unwrap_or_else(|| start_vector(system.dim()));
-    // Informative only: a looser residual (the Ritz value is then still
-    // accurate to about its square, far below the rate's printed digits).
-    power_norm(system, &steps, &mut x, &mut Work::default(), 1e-3).log_norm
 }
 
 /// A certificate window of `multiple` × T is tried: the shortest always, the
@@ -616,6 +589,7 @@ fn longer_trials(
     first: Option<Trial>,
     lazy: bool,
     progress: bool,
+    seed: u64,
 ) -> (Vec<Trial>, Option<usize>) {
     let Some(first) = first else {
         return (Vec::new(), None);
@@ -634,7 +608,7 @@ fn longer_trials(
                 trials.len()
             );
         }
-        let Some(mut t) = Trial::new(problem, m, trials.last()) else {
+        let Some(mut t) = Trial::new(problem, m, trials.last(), seed) else {
             break;
         };
         t.evaluate(system, trials.last(), false, f64::INFINITY);
@@ -642,7 +616,7 @@ fn longer_trials(
             first_pending = false;
             let first = &mut trials[0];
             // `t` improves on the first trial by more than 1 % for sure
-            // once one of the first trial's windows has an ln-norm above
+            // once one of the first trial's windows has a lower bound above
             // this (its rate is then below −ln-norm/length); 0 when `t` has
             // no rate (the first trial then has none either).
             let above = t.rate().map_or(0.0, |r| -r * first.length / 1.01);
@@ -676,15 +650,199 @@ fn longer_trials(
     (trials, best)
 }
 
+/// The certificate of one block (units in local order).
+struct Block {
+    units: Vec<u32>,
+    rate: Option<f64>,
+    length: f64,
+    log_rho: f64,
+    /// ln M over the chain from h0 and its last piece.
+    log_m: f64,
+    /// ln of the bound over any piece of any window (for any start).
+    log_m_any: f64,
+    windows: usize,
+    evaluated: usize,
+    loose: usize,
+    worst_windows: Vec<Window>,
+    /// Right singular vector estimate of the worst window (block-local).
+    right: Vec<f64>,
+    /// Left singular vector of the worst window (block-local).
+    left: Vec<f64>,
+    log_horizon: f64,
+    passes: usize,
+    tests: usize,
+    exact: bool,
+    reason: Option<String>,
+    windows_time: std::time::Duration,
+    horizon_time: std::time::Duration,
+}
+
+/// Certifies one weakly connected block.
+fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed: u64) -> Block {
+    let horizon = problem.domain.h1 - problem.domain.h0;
+    // A progress line on a terminal when the block is large enough for
+    // the certificate to take a while.
+    let progress =
+        std::io::stderr().is_terminal() && system.dim() * problem.domain.grid.len() > 2_000_000;
+    let t0 = std::time::Instant::now();
+    // The first trial is only sampled while a longer one follows: its exact
+    // ρ matters only when the longer window does not improve the rate by
+    // 1 %, which a sampled window can rule out.
+    let lazy = MULTIPLES.get(1).is_some_and(|&m| fits(problem, m));
+    if progress {
+        eprint!(
+            "\rcertificate: windows of {} s   ",
+            problem.settings.window * MULTIPLES[0] as f64
+        );
+    }
+    let first = Trial::new(problem, MULTIPLES[0], None, seed).map(|mut t| {
+        t.evaluate(system, None, lazy, f64::INFINITY);
+        t
+    });
+    let horizon_start = first
+        .as_ref()
+        .and_then(|t| t.norms[t.index_at(problem.domain.h0)?].as_ref())
+        .map(|n| n.right.clone());
+    let first_time = t0.elapsed();
+    let ((trials, best, windows_time), (log_h, horizon_time)) = rayon::join(
+        || {
+            let t1 = std::time::Instant::now();
+            let (trials, best) = longer_trials(problem, system, first, lazy, progress, seed);
+            (trials, best, first_time + t1.elapsed())
+        },
+        || {
+            let t0 = std::time::Instant::now();
+            let w = Window {
+                start: problem.domain.h0,
+                end: problem.domain.h1,
+                jumps_through_end: true,
+            };
+            let mut steps = Vec::new();
+            system.schedule().steps(&w, &mut steps);
+            let start = horizon_start
+                .filter(|v| v.len() == system.dim())
+                .unwrap_or_else(|| estimate::start_vector(system.dim()));
+            // Informative only, and labelled an estimate: a Lanczos value
+            // from below (a bound would cost a full tail test on the
+            // longest window of all).
+            let log = estimate::window_log_norm(system, &w, &start);
+            (log, t0.elapsed())
+        },
+    );
+    if progress {
+        eprintln!();
+    }
+    let mut block = Block {
+        units,
+        rate: None,
+        length: problem.settings.window,
+        log_rho: 0.0,
+        log_m: 0.0,
+        log_m_any: 0.0,
+        windows: 0,
+        evaluated: 0,
+        loose: 0,
+        worst_windows: Vec::new(),
+        right: Vec::new(),
+        left: Vec::new(),
+        log_horizon: log_h,
+        passes: trials.iter().map(Trial::passes).sum::<usize>(),
+        tests: trials.iter().map(Trial::tests).sum::<usize>(),
+        exact: true,
+        reason: None,
+        windows_time,
+        horizon_time,
+    };
+    block.exact = block.exact && block.tests == 0;
+    let Some(t) = best.or(trials.len().checked_sub(1)).map(|k| &trials[k]) else {
+        block.reason = Some("no certificate window fits in the horizon".into());
+        return block;
+    };
+    block.length = t.length;
+    block.log_rho = t.log_rho;
+    block.windows = t.windows.len();
+    block.evaluated = t.norms.iter().flatten().count();
+    block.loose = t
+        .norms
+        .iter()
+        .flatten()
+        .filter(|n| n.log_upper > n.log_lower + LOOSE.ln())
+        .count();
+    let mut order: Vec<usize> = (0..t.windows.len())
+        .filter(|&k| t.norms[k].is_some())
+        .collect();
+    order.sort_by(|&a, &b| t.upper[b].total_cmp(&t.upper[a]).then(a.cmp(&b)));
+    block.worst_windows = order.iter().take(3).map(|&k| t.windows[k]).collect();
+    if let Some(n) = t.norms[t.worst].as_ref() {
+        block.right = n.right.clone();
+        // The left singular vector: the image of the right one, normalised.
+        let mut left = n.right.clone();
+        let mut steps = Vec::new();
+        system.schedule().steps(&t.windows[t.worst], &mut steps);
+        system.propagate(Direction::Forward, &steps, &mut left, &mut Work::default());
+        let norm = left.iter().map(|x| x * x).sum::<f64>().sqrt();
+        if norm > 0.0 {
+            left.iter_mut().for_each(|x| *x /= norm);
+        }
+        block.left = left;
+    }
+    match t.rate() {
+        Some(rate) => {
+            let (chain, last) = chain_pieces(problem, t.chain);
+            let mut pieces = chain;
+            pieces.push(last);
+            block.log_m = log_partial_bound(system, &pieces);
+            block.log_m_any = block.log_m.max(log_partial_bound(system, &t.windows));
+            block.rate = Some(rate);
+        }
+        None => {
+            block.reason = Some(format!(
+                "no window up to {} s that fits in the {} s horizon shows contraction \
+                 (largest ‖Φ‖ bound = {:.6}): the log is too short for this network, or \
+                 its units are too weakly excited or coupled",
+                t.length,
+                horizon,
+                t.log_rho.exp()
+            ));
+        }
+    }
+    block
+}
+
+/// The weakly connected components of the arcs `(from, to)` on n units,
+/// each sorted, ordered by smallest unit (isolated units are components).
+fn weak_components(n: usize, arcs: &[(u32, u32, f64)]) -> Vec<Vec<u32>> {
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn find(parent: &mut [usize], mut x: usize) -> usize {
+        while parent[x] != x {
+            parent[x] = parent[parent[x]];
+            x = parent[x];
+        }
+        x
+    }
+    for &(a, b, _) in arcs {
+        let (ra, rb) = (find(&mut parent, a as usize), find(&mut parent, b as usize));
+        if ra != rb {
+            parent[ra.max(rb)] = ra.min(rb);
+        }
+    }
+    let mut groups: Vec<Vec<u32>> = vec![Vec::new(); n];
+    for v in 0..n {
+        let r = find(&mut parent, v);
+        groups[r].push(v as u32);
+    }
+    groups.into_iter().filter(|g| !g.is_empty()).collect()
+}
+
 /// Certifies the convergence rate of `set` on the recorded data.
 ///
 /// When the structural condition fails the rate is not computed (a
 /// non-excited source component keeps its weakest direction forever).
 ///
 /// # Complexity
-/// For W windows of S steps, np unknowns and A arcs:
-/// O(W·S·I·m·(np + A·p)) with I Lanczos steps (few, warm-started) and m
-/// Taylor terms per step; windows run in parallel.
+/// Per block of b units, for W windows of S steps: O(W·S·(bp)²) for exact
+/// blocks, O(W·S·I·m·(bp + A·p)) with I Lanczos steps and m Taylor terms
+/// for larger ones; windows and blocks run in parallel.
 pub fn certify(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Certificate {
     let schedule = Schedule::new(problem);
     certify_with(problem, table, &schedule, set)
@@ -704,7 +862,10 @@ pub fn certify_with(
         window: problem.settings.window,
         contraction: 1.0,
         transient_factor: None,
+        envelope_from: problem.domain.h0,
+        transient_factor_any_start: None,
         time_to_1pct: None,
+        time_to_1pct_extrapolated: false,
         gains_ok,
         gains,
         asymptotic_rate: None,
@@ -715,6 +876,9 @@ pub fn certify_with(
         reason: None,
         unconverged_windows: 0,
         lanczos_steps: 0,
+        norm_bound: NormBoundKind::Exact,
+        failure_probability: 0.0,
+        blocks: Vec::new(),
         worst_windows: Vec::new(),
         worst_vector: Vec::new(),
         timing: CertTiming::default(),
@@ -729,114 +893,139 @@ pub fn certify_with(
         );
         return cert;
     }
-    let system = ErrorSystem::of_links(schedule, problem, set);
     let horizon = problem.domain.h1 - problem.domain.h0;
-    // A progress line on a terminal when the network is large enough for
-    // the certificate to take a while.
-    let progress =
-        std::io::stderr().is_terminal() && system.dim() * problem.domain.grid.len() > 2_000_000;
-    // The first (shortest) trial runs alone; then the longer ones run
-    // beside the whole-horizon norm, which starts from the singular vector
-    // of the first window (the slow direction at h0).
-    let t0 = std::time::Instant::now();
-    // The first trial is only sampled while a longer one follows: its exact
-    // ρ matters only when the longer window does not improve the rate by
-    // 1 %, which a sampled window can rule out.
-    let lazy = MULTIPLES.get(1).is_some_and(|&m| fits(problem, m));
-    if progress {
-        eprint!(
-            "\rcertificate: windows of {} s   ",
-            problem.settings.window * MULTIPLES[0] as f64
-        );
-    }
-    let first = Trial::new(problem, MULTIPLES[0], None).map(|mut t| {
-        t.evaluate(&system, None, lazy, f64::INFINITY);
-        t
-    });
-    let horizon_start = first
-        .as_ref()
-        .and_then(|t| t.norms[t.index_at(problem.domain.h0)?].as_ref())
-        .map(|n| n.right.clone());
-    let first_time = t0.elapsed();
-    let ((trials, best, windows_time), (log_h, horizon_time)) = rayon::join(
-        || {
-            let t1 = std::time::Instant::now();
-            let (trials, best) = longer_trials(problem, &system, first, lazy, progress);
-            (trials, best, first_time + t1.elapsed())
-        },
-        || {
-            let t0 = std::time::Instant::now();
-            (
-                horizon_log_norm(problem, &system, horizon_start),
-                t0.elapsed(),
-            )
-        },
-    );
-    let iterations = trials.iter().map(Trial::iterations).sum::<usize>();
-    if progress {
-        eprintln!();
-    }
-    cert.lanczos_steps += iterations;
-    cert.timing.windows = windows_time;
-    cert.timing.horizon = horizon_time;
-    if log_h < 0.0 {
-        cert.asymptotic_rate = Some(-log_h / horizon);
-    }
-    let Some(t) = best.or(trials.len().checked_sub(1)).map(|k| &trials[k]) else {
-        cert.reason = Some("no certificate window fits in the horizon".into());
-        return cert;
-    };
-    cert.window = t.length;
-    cert.contraction = t.log_rho.exp();
-    cert.windows = t.windows.len();
-    cert.evaluated_windows = t.norms.iter().flatten().count();
-    cert.worst_window_start = Some(t.windows[t.worst].start);
-    let mut order: Vec<usize> = (0..t.windows.len())
-        .filter(|&k| t.norms[k].is_some())
-        .collect();
-    order.sort_by(|&a, &b| t.upper[b].total_cmp(&t.upper[a]).then(a.cmp(&b)));
-    cert.worst_windows = order.iter().take(3).map(|&k| t.windows[k]).collect();
-    cert.unconverged_windows = t.norms.iter().flatten().filter(|w| !w.converged).count();
     let p = problem.settings.parameters;
-    // The left singular vector of the worst window: the image of its right
-    // one, normalised.
-    cert.worst_vector = t.norms[t.worst]
-        .as_ref()
-        .expect("the worst window is evaluated")
-        .right
-        .clone();
-    let mut left = cert.worst_vector.clone();
-    let mut steps = Vec::new();
-    schedule.steps(&t.windows[t.worst], &mut steps);
-    system.propagate(Direction::Forward, &steps, &mut left, &mut Work::default());
-    normalise(&mut left);
+    let arcs: Vec<(u32, u32, f64)> = problem
+        .arcs(set)
+        .into_iter()
+        .map(|a| (a.from.0, a.to.0, a.weight))
+        .collect();
+    let components = weak_components(problem.n(), &arcs);
+    let blocks: Vec<Block> = components
+        .into_par_iter()
+        .enumerate()
+        .map(|(b, units)| {
+            let mut local = vec![u32::MAX; problem.n()];
+            for (k, &u) in units.iter().enumerate() {
+                local[u as usize] = k as u32;
+            }
+            let sub_arcs: Vec<(u32, u32, f64)> = arcs
+                .iter()
+                .filter(|a| local[a.1 as usize] != u32::MAX)
+                .map(|&(f, t, w)| (local[f as usize], local[t as usize], w))
+                .collect();
+            let sub = schedule.restrict(&units);
+            let system = ErrorSystem::new(&sub, problem.settings.gains, sub_arcs);
+            let seed = 0x5eed_cafe_u64 ^ (b as u64 + 1).wrapping_mul(0xA24B_AED4_963E_E407);
+            certify_block(problem, &system, units, seed)
+        })
+        .collect();
+    // The slowest block: one without a rate first, else the smallest rate
+    // (ties: the first).
+    let slowest = (0..blocks.len())
+        .min_by(|&a, &b| {
+            let r = |k: usize| blocks[k].rate.unwrap_or(f64::NEG_INFINITY);
+            r(a).total_cmp(&r(b)).then(a.cmp(&b))
+        })
+        .expect("a problem has units");
+    let s = &blocks[slowest];
+    cert.window = s.length;
+    cert.contraction = s.log_rho.exp();
+    cert.windows = s.windows;
+    cert.evaluated_windows = s.evaluated;
+    cert.worst_windows = s.worst_windows.clone();
+    cert.worst_window_start = s.worst_windows.first().map(|w| w.start);
+    cert.unconverged_windows = blocks.iter().map(|b| b.loose).sum();
+    cert.lanczos_steps = blocks.iter().map(|b| b.passes).sum::<usize>().div_ceil(2);
+    let tests: usize = blocks.iter().map(|b| b.tests).sum();
+    if blocks.iter().any(|b| !b.exact) {
+        cert.norm_bound = NormBoundKind::Randomized;
+        cert.failure_probability = tests as f64 * bound::TEST_FAILURE;
+    }
+    cert.timing.windows = blocks.iter().map(|b| b.windows_time).sum();
+    cert.timing.horizon = blocks.iter().map(|b| b.horizon_time).sum();
+    let mut full = vec![0.0; problem.n() * p];
+    let mut shares = vec![0.0; problem.n()];
+    for (k, &u) in s.units.iter().enumerate() {
+        let u = u as usize;
+        if s.right.len() == s.units.len() * p {
+            full[u * p..(u + 1) * p].copy_from_slice(&s.right[k * p..(k + 1) * p]);
+        }
+        if s.left.len() == s.units.len() * p {
+            shares[u] = s.left[k * p..(k + 1) * p].iter().map(|x| x * x).sum();
+        }
+    }
+    cert.worst_vector = full;
     let mut units: Vec<UnitShare> = problem
         .nodes
         .iter()
-        .enumerate()
-        .map(|(i, v)| UnitShare {
+        .zip(&shares)
+        .map(|(v, &share)| UnitShare {
             node: v.id.clone(),
-            share: left[i * p..(i + 1) * p].iter().map(|x| x * x).sum(),
+            share,
         })
         .collect();
     units.sort_by(|a, b| b.share.total_cmp(&a.share).then(a.node.cmp(&b.node)));
     cert.units = units;
-    match t.rate() {
+    cert.blocks = blocks
+        .iter()
+        .map(|b| BlockCertificate {
+            units: b
+                .units
+                .iter()
+                .map(|&u| problem.nodes[u as usize].id.clone())
+                .collect(),
+            rate: b.rate,
+            window: b.length,
+            contraction: b.log_rho.exp(),
+            transient_factor: b.rate.map(|_| (b.log_m - b.log_rho).exp()),
+            norm_bound: if b.exact {
+                NormBoundKind::Exact
+            } else {
+                NormBoundKind::Randomized
+            },
+        })
+        .collect();
+    let log_h = blocks
+        .iter()
+        .map(|b| b.log_horizon)
+        .fold(f64::NEG_INFINITY, f64::max);
+    if log_h < 0.0 {
+        cert.asymptotic_rate = Some(-log_h / horizon);
+    }
+    match s.rate {
         Some(rate) => {
-            let log_m = log_partial_bound(&system, &t.windows);
-            let c = (log_m - t.log_rho).exp();
+            // Every block has a rate: the network's envelope takes the
+            // smallest rate and the largest factor (each block's error
+            // obeys its own envelope, and rates only get smaller).
+            let c = blocks
+                .iter()
+                .map(|b| (b.log_m - b.log_rho).exp())
+                .fold(0.0, f64::max);
+            let c_any = blocks
+                .iter()
+                .map(|b| (2.0 * (b.log_m_any - b.log_rho)).exp())
+                .fold(0.0, f64::max);
             cert.rate = Some(rate);
             cert.transient_factor = Some(c);
-            cert.time_to_1pct = Some((100.0 * c).ln() / rate);
+            cert.transient_factor_any_start = Some(c_any);
+            let t = (100.0 * c).ln().max(0.0) / rate;
+            cert.time_to_1pct = Some(t);
+            cert.time_to_1pct_extrapolated = t > horizon;
         }
         None => {
-            cert.reason = Some(format!(
-                "no window up to {} s that fits in the {} s horizon shows contraction \
-                 (largest ‖Φ‖ = {:.6}): the log is too short for this network",
-                t.length,
-                horizon,
-                t.log_rho.exp()
-            ));
+            cert.reason = s.reason.clone().map(|r| {
+                if blocks.len() > 1 {
+                    let names: Vec<&str> = s
+                        .units
+                        .iter()
+                        .map(|&u| problem.nodes[u as usize].id.as_str())
+                        .collect();
+                    format!("block of units {}: {r}", names.join(", "))
+                } else {
+                    r
+                }
+            });
         }
     }
     cert.timing.total = started.elapsed();

@@ -165,6 +165,58 @@ impl<'p> Schedule<'p> {
         }
     }
 
+    /// The schedule of the units `units` alone (in that order), for
+    /// certifying one weakly connected block of the error system: every
+    /// network jump is kept (a unit without its own jump takes a virtual
+    /// one), so the block's steps are exactly the restriction of the whole
+    /// system's.
+    pub fn restrict(&self, units: &[u32]) -> Schedule<'p> {
+        let (n, p) = (self.n, self.p);
+        let m = units.len();
+        let mut local = vec![u32::MAX; n];
+        for (k, &u) in units.iter().enumerate() {
+            local[u as usize] = k as u32;
+        }
+        let intervals = self.grid.len().saturating_sub(1);
+        let mut rows = Vec::with_capacity(intervals * m);
+        for k in 0..intervals {
+            rows.extend(units.iter().map(|&u| self.rows[k * n + u as usize]));
+        }
+        let jumps = self
+            .jumps
+            .iter()
+            .map(|j| NetJump {
+                time: j.time,
+                units: j
+                    .units
+                    .iter()
+                    .filter(|(i, _)| local[*i as usize] != u32::MAX)
+                    .map(|&(i, r)| (local[i as usize], r))
+                    .collect(),
+            })
+            .collect();
+        let psi: Vec<&'p [f64]> = units.iter().map(|&u| self.psi[u as usize]).collect();
+        let by_interval = self.by_interval.as_ref().map(|all| {
+            let mut out = Vec::with_capacity(intervals * m * p);
+            for k in 0..intervals {
+                for &u in units {
+                    let at = (k * n + u as usize) * p;
+                    out.extend_from_slice(&all[at..at + p]);
+                }
+            }
+            out
+        });
+        Schedule {
+            n: m,
+            p,
+            grid: self.grid.clone(),
+            rows,
+            jumps,
+            psi,
+            by_interval,
+        }
+    }
+
     /// Number of units.
     pub fn n(&self) -> usize {
         self.n
@@ -538,6 +590,14 @@ impl<'a> ErrorSystem<'a> {
             yi.iter_mut().zip(psi).for_each(|(a, b)| *a = s * b);
         }
         self.add_laplacian(dir, -self.gains.flow_coupling, x, y);
+    }
+
+    /// Number of Taylor substeps (flows) or maps (jumps) a step takes.
+    pub fn substeps(&self, step: &Step) -> usize {
+        match *step {
+            Step::Flow { k, h } => (h * self.generator_norm(k as usize)).ceil().max(1.0) as usize,
+            Step::Jump { .. } => 1,
+        }
     }
 
     /// Upper bound on ‖A‖₂ on grid interval `k`.

@@ -51,6 +51,17 @@ pub struct Gains {
     pub link_weight: f64,
 }
 
+impl Gains {
+    /// The jump gain as it enters the excitation Gramian:
+    /// `min(γ_d, 2 − γ_d)`. Along a large regressor the jump multiplies
+    /// the error by about `1 − γ_d`, which has the same size for γ_d and
+    /// 2 − γ_d, so a gain above 1 is credited like its mirror below 1 and
+    /// never more (docs/theory.md §3, "Jump weighting").
+    pub fn jump_weight(&self) -> f64 {
+        self.jump_gain.min(2.0 - self.jump_gain).max(0.0)
+    }
+}
+
 impl Default for Gains {
     fn default() -> Self {
         Gains {
@@ -475,8 +486,9 @@ impl Validator<'_> {
                 &e.jump_gain,
                 "jump_gain",
                 d.jump_gain,
-                non_negative,
-                "a number ≥ 0",
+                |x| (0.0..=2.0).contains(&x),
+                "a number from 0 to 2 (above 2 a unit's own jump map expands the error \
+                 along a large regressor, whatever the links)",
             )?,
             flow_coupling: self.optional(
                 &e.flow_coupling,

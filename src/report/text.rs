@@ -2,7 +2,8 @@
 
 use super::CAUTIONS;
 use crate::analysis::{Check, ExcitationSummary};
-use crate::certify::Certificate;
+use crate::analysis::Verdict;
+use crate::certify::{Certificate, NormBoundKind};
 use crate::search::{Plan, PlanStatus};
 use crate::simulate::{Reference, Trajectory};
 use std::io::{self, Write};
@@ -150,21 +151,50 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
         certificate(cert, out)?;
         writeln!(out)?;
     }
-    if c.condition_holds {
-        writeln!(
+    if c.certificate.is_none() {
+        gain_lines(&c.gains, out)?;
+    }
+    let bad = c.source_components.iter().filter(|s| !s.excited).count();
+    match c.verdict {
+        Verdict::Converges => writeln!(
             out,
-            "Verdict: every source component is excited — every estimate converges (for these logs and this model)."
-        )?;
-    } else {
-        let bad = c.source_components.iter().filter(|s| !s.excited).count();
-        writeln!(
+            "Verdict: structure, gains and certificate hold — every estimate converges (for these logs and this model)."
+        )?,
+        Verdict::StructureFails => {
+            writeln!(
+                out,
+                "Verdict: {bad} source component(s) are not excited — the estimates they drive need not converge."
+            )?;
+            writeln!(
+                out,
+                "Fix: add a link into each such component from an excited part of the network, or give its units more excitation along the weakest direction."
+            )?;
+        }
+        Verdict::GainsFail => {
+            let units: Vec<&str> = c
+                .gains
+                .iter()
+                .filter(|g| !g.ok)
+                .filter_map(|g| g.node.as_deref())
+                .collect();
+            writeln!(
+                out,
+                "Verdict: the gain condition fails at {} — a jump can expand the error there, so convergence is not guaranteed.",
+                units.join(", ")
+            )?;
+            writeln!(
+                out,
+                "Fix: lower jump_coupling or jump_gain, or give these units fewer (or lighter) incoming links."
+            )?;
+        }
+        Verdict::NotCertified => writeln!(
             out,
-            "Verdict: {bad} source component(s) are not excited — the estimates they drive need not converge."
-        )?;
-        writeln!(
+            "Verdict: structure and gains hold, but no window of the recorded horizon shows contraction — convergence is not certified on these logs."
+        )?,
+        Verdict::RateNotChecked => writeln!(
             out,
-            "Fix: add a link into each such component from an excited part of the network, or give its units more excitation along the weakest direction."
-        )?;
+            "Verdict: every source component is excited and the gains hold; the rate was not checked (--skip-rate), so no convergence rate is certified."
+        )?,
     }
     cautions(out)
 }
@@ -179,14 +209,33 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
         Some(rate) => {
             writeln!(
                 out,
-                "Certified rate: {rate:.4e} 1/s over windows of {} s ({} windows, worst ‖Φ‖ = {:.6})",
+                "Certified rate: {rate:.4e} 1/s over windows of {} s ({} windows, worst ‖Φ‖ ≤ {:.6})",
                 c.window, c.windows, c.contraction
             )?;
             if let (Some(k), Some(t)) = (c.transient_factor, c.time_to_1pct) {
+                let h = c.envelope_from;
                 writeln!(
                     out,
-                    "  |e(t)| ≤ {k:.4} · exp(−{rate:.4e} (t − s)) · |e(s)|; error below 1 % after {t:.1} s"
+                    "  |e(t)| ≤ {k:.4} · exp(−{rate:.4e} (t − {h})) · |e({h})| for every t in the horizon, its last jumps included"
                 )?;
+                writeln!(
+                    out,
+                    "  (the transient factor {k:.4} bounds how much the error can grow inside a window before the window's contraction applies)"
+                )?;
+                if let Some(any) = c.transient_factor_any_start {
+                    writeln!(
+                        out,
+                        "  from any start s in the horizon: |e(t)| ≤ {any:.4} · exp(−{rate:.4e} (t − s)) · |e(s)|"
+                    )?;
+                }
+                if c.time_to_1pct_extrapolated {
+                    writeln!(
+                        out,
+                        "  error below 1 % after {t:.1} s — extrapolated beyond the recorded horizon (assumes the signals keep behaving as recorded)"
+                    )?;
+                } else {
+                    writeln!(out, "  error below 1 % after {t:.1} s")?;
+                }
             }
         }
         None => writeln!(
@@ -195,8 +244,29 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
             c.reason.as_deref().unwrap_or("no window shows contraction")
         )?,
     }
+    match c.norm_bound {
+        NormBoundKind::Exact => writeln!(
+            out,
+            "  window norms: exact (dense transition matrices, plus a rounding margin)"
+        )?,
+        NormBoundKind::Randomized => writeln!(
+            out,
+            "  window norms: upper bounds from randomized tests; the certificate fails with probability at most {:.1e}",
+            c.failure_probability
+        )?,
+    }
+    if c.blocks.len() > 1 {
+        writeln!(
+            out,
+            "  {} separate groups certified one by one; the slowest sets the rate",
+            c.blocks.len()
+        )?;
+    }
     if let Some(a) = c.asymptotic_rate {
-        writeln!(out, "  decay over the whole horizon: {a:.4e} 1/s")?;
+        writeln!(
+            out,
+            "  decay over the whole horizon (estimate, not certified): {a:.4e} 1/s"
+        )?;
     }
     if c.rate.is_some() {
         let top: Vec<String> = c
@@ -210,16 +280,26 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
     if c.unconverged_windows > 0 {
         writeln!(
             out,
-            "  warning: the Lanczos iteration did not settle on {} window(s); their norms are estimates",
+            "  note: on {} window(s) the upper bound is more than 0.1 % above the lower bound (still a valid bound)",
             c.unconverged_windows
         )?;
     }
-    for g in &c.gains {
+    gain_lines(&c.gains, out)
+}
+
+/// Writes the gain checks.
+fn gain_lines(gains: &[crate::certify::GainCheck], out: &mut impl Write) -> io::Result<()> {
+    for g in gains {
         writeln!(
             out,
-            "  gain check: {} — value {:.4}: {}",
+            "  gain check{}: {} — value {:.4} (limit {}): {}",
+            g.node
+                .as_deref()
+                .map(|n| format!(" at {n}"))
+                .unwrap_or_default(),
             g.condition,
             g.value,
+            g.limit,
             if g.ok { "pass" } else { "FAIL" }
         )?;
     }

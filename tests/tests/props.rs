@@ -125,7 +125,9 @@ proptest! {
             for e in log.jumps() {
                 let inside = e.time >= win.start && (e.time < win.end || (win.jumps_through_end && e.time == win.end));
                 if inside {
-                    let s = gains.1 / (1.0 + e.psi[0] * e.psi[0] + e.psi[1] * e.psi[1]);
+                    // The jump gain enters as min(γ_d, 2 − γ_d) (docs/theory.md §3).
+                    let weight = gains.1.min(2.0 - gains.1);
+                    let s = weight / (1.0 + e.psi[0] * e.psi[0] + e.psi[1] * e.psi[1]);
                     direct[0] += s * e.psi[0] * e.psi[0];
                     direct[1] += s * e.psi[0] * e.psi[1];
                     direct[2] += s * e.psi[1] * e.psi[1];

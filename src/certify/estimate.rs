@@ -1,0 +1,88 @@
+//! Lanczos *estimates* of a window norm (lower estimates, never printed as
+//! certified): used by the rate stage to screen candidate links before a
+//! full certificate.
+
+use super::bound::top_ritz;
+use super::propagate::{Direction, ErrorSystem, Step, Work};
+use crate::signal::Window;
+
+/// Lanczos stops when the Ritz residual is below this times the Ritz value.
+const TOLERANCE: f64 = 1e-4;
+
+/// Largest Krylov dimension.
+const DIMENSION: usize = 30;
+
+fn normalise(x: &mut [f64]) -> f64 {
+    let n = x.iter().map(|v| v * v).sum::<f64>().sqrt();
+    if n > 0.0 {
+        x.iter_mut().for_each(|v| *v /= n);
+    }
+    n
+}
+
+/// A deterministic starting vector with no special structure.
+pub(crate) fn start_vector(d: usize) -> Vec<f64> {
+    let mut rng = crate::synth::Rng(0x5eed_cafe);
+    let mut x: Vec<f64> = (0..d).map(|_| rng.uniform() - 0.5).collect();
+    normalise(&mut x);
+    x
+}
+
+/// ln of the top Ritz value's square root for `ΦᵀΦ` over `steps`, from
+/// `x`: a lower estimate of ln ‖Φ‖₂ (it can stop at a smaller singular
+/// value when `x` is nearly orthogonal to the top one).
+fn lanczos_estimate(system: &ErrorSystem, steps: &[Step], x: &mut Vec<f64>, work: &mut Work) -> f64 {
+    let d = x.len();
+    if normalise(x) == 0.0 {
+        *x = start_vector(d);
+    }
+    let mut basis: Vec<Vec<f64>> = vec![x.clone()];
+    let (mut alpha, mut beta) = (Vec::new(), Vec::new());
+    let mut log_ref = 0.0;
+    let mut theta = 0.0;
+    for j in 0..DIMENSION.min(d) {
+        let mut w = basis[j].clone();
+        let a = system.propagate(Direction::Forward, steps, &mut w, work);
+        let b = system.propagate(Direction::Adjoint, steps, &mut w, work);
+        if j == 0 {
+            log_ref = a + b;
+        }
+        let f = (a + b - log_ref).exp();
+        w.iter_mut().for_each(|v| *v *= f);
+        alpha.push(w.iter().zip(&basis[j]).map(|(p, q)| p * q).sum());
+        for _ in 0..2 {
+            for q in &basis {
+                let c: f64 = w.iter().zip(q).map(|(p, r)| p * r).sum();
+                w.iter_mut().zip(q).for_each(|(p, r)| *p -= c * r);
+            }
+        }
+        let norm = normalise(&mut w);
+        let (t, s) = top_ritz(&alpha, &beta);
+        theta = t;
+        if norm * s[s.len() - 1].abs() <= TOLERANCE * t || norm <= 1e-300 {
+            break;
+        }
+        beta.push(norm);
+        basis.push(w);
+    }
+    if theta > 0.0 {
+        0.5 * (theta.ln() + log_ref)
+    } else {
+        f64::NEG_INFINITY
+    }
+}
+
+/// An *estimate* (from below) of ln ‖Φ(w)‖₂ of one window for the error
+/// system, by Lanczos from `start` (or a fixed vector when it is empty or
+/// of the wrong length). For screening only: certified norms come from
+/// [`super::bound`].
+pub fn window_log_norm(system: &ErrorSystem, window: &Window, start: &[f64]) -> f64 {
+    let mut steps = Vec::new();
+    system.schedule().steps(window, &mut steps);
+    let mut x = if start.len() == system.dim() {
+        start.to_vec()
+    } else {
+        start_vector(system.dim())
+    };
+    lanczos_estimate(system, &steps, &mut x, &mut Work::default())
+}
