@@ -266,7 +266,13 @@ fn krylov(
             out.exhausted = true;
             break;
         }
-        if k >= max || stop(k, t * (2.0 * out.log_ref).exp(), residual * (2.0 * out.log_ref).exp()) {
+        if k >= max
+            || stop(
+                k,
+                t * (2.0 * out.log_ref).exp(),
+                residual * (2.0 * out.log_ref).exp(),
+            )
+        {
             break;
         }
         beta.push(norm);
@@ -327,9 +333,15 @@ pub fn randomized_norm(
     let d = system.dim();
     let mut passes = 0;
     let mut tests = 0;
-    let (first, p) = krylov(system, steps, warm.to_vec(), &[], WARM_STEPS, work, &mut |k, t, r| {
-        k >= WARM_MIN && r <= WARM_TOLERANCE * t
-    });
+    let (first, p) = krylov(
+        system,
+        steps,
+        warm.to_vec(),
+        &[],
+        WARM_STEPS,
+        work,
+        &mut |k, t, r| k >= WARM_MIN && r <= WARM_TOLERANCE * t,
+    );
     passes += p;
     let mut basis = first.basis;
     let mut images = first.images;
@@ -350,12 +362,20 @@ pub fn randomized_norm(
         let target = lower_sq * (1.0 + SLACK);
         let accept_sq = (2.0 * accept).exp();
         let lower_now = lower_sq;
-        let (tail, p) = krylov(system, steps, start, &basis, TEST_STEPS, work, &mut |k, t, _| {
-            tail_epsilon(k, room).is_some_and(|e| {
-                let ub = lower_now + t.max(0.0) / (1.0 - e);
-                ub <= target || ub <= accept_sq
-            })
-        });
+        let (tail, p) = krylov(
+            system,
+            steps,
+            start,
+            &basis,
+            TEST_STEPS,
+            work,
+            &mut |k, t, _| {
+                tail_epsilon(k, room).is_some_and(|e| {
+                    let ub = lower_now + t.max(0.0) / (1.0 - e);
+                    ub <= target || ub <= accept_sq
+                })
+            },
+        );
         passes += p;
         let k = tail.basis.len();
         let tail_top = tail.top();

@@ -31,7 +31,12 @@ pub(crate) fn start_vector(d: usize) -> Vec<f64> {
 /// ln of the top Ritz value's square root for `ΦᵀΦ` over `steps`, from
 /// `x`: a lower estimate of ln ‖Φ‖₂ (it can stop at a smaller singular
 /// value when `x` is nearly orthogonal to the top one).
-fn lanczos_estimate(system: &ErrorSystem, steps: &[Step], x: &mut Vec<f64>, work: &mut Work) -> f64 {
+fn lanczos_estimate(
+    system: &ErrorSystem,
+    steps: &[Step],
+    x: &mut Vec<f64>,
+    work: &mut Work,
+) -> f64 {
     let d = x.len();
     if normalise(x) == 0.0 {
         *x = start_vector(d);

@@ -1,8 +1,8 @@
 //! Plain-text output for people.
 
 use super::CAUTIONS;
-use crate::analysis::{Check, ExcitationSummary};
 use crate::analysis::Verdict;
+use crate::analysis::{Check, ExcitationSummary};
 use crate::certify::{Certificate, NormBoundKind};
 use crate::search::{Plan, PlanStatus};
 use crate::simulate::{Reference, Trajectory};

@@ -10,4 +10,5 @@ mod pictures;
 mod planning;
 mod props;
 mod robust;
+mod trust;
 mod whatif;
