@@ -505,6 +505,19 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         PlanStatus::TimeLimit => "stopped at the time limit",
     };
     writeln!(out, "Plan for {}: {status}", p.network)?;
+    if p.gains_ok == Some(false) {
+        let units: Vec<&str> = p
+            .gains
+            .iter()
+            .filter(|g| !g.ok)
+            .filter_map(|g| g.node.as_deref())
+            .collect();
+        writeln!(
+            out,
+            "WARNING: the gain condition fails at {} with these links (a jump can expand the error there): this plan does not guarantee convergence. The search does not yet limit in-degrees; lower jump_coupling or jump_gain, or run `check` for details.",
+            units.join(", ")
+        )?;
+    }
     threshold(out, p.min_excitation, p.min_excitation_given, p.windows)?;
     if let (PlanStatus::Infeasible, Some(r)) = (p.status, &p.rate) {
         writeln!(out)?;

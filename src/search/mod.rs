@@ -186,6 +186,13 @@ pub struct Plan {
     /// The rate stage, when the problem sets `target_rate`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub rate: Option<rate::RatePlan>,
+    /// The per-unit gain condition holds for the plan's links (`None`
+    /// when there is no plan). The search does not yet restrict in-degrees
+    /// to it, so a plan can fail it; the text output then warns.
+    pub gains_ok: Option<bool>,
+    /// The gain conditions of the plan's links (see
+    /// [`crate::certify::gain_checks`]).
+    pub gains: Vec<crate::certify::GainCheck>,
     /// Search figures.
     pub stats: PlanStats,
     /// Stage timings (text output only).
@@ -239,6 +246,11 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             },
         });
     }
+    if result.cost.is_some() {
+        let gains = crate::certify::gain_checks(problem, &result.link_set(problem));
+        result.gains_ok = Some(gains.iter().all(|g| g.ok));
+        result.gains = gains;
+    }
     result
 }
 
@@ -284,6 +296,8 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             shortfalls,
             robustness: None,
             rate: None,
+            gains_ok: None,
+            gains: Vec::new(),
             stats: stats(&inst, None, f64::NAN),
             timings: Timings {
                 greedy: started.elapsed(),
@@ -403,6 +417,8 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
         shortfalls: Vec::new(),
         robustness: None,
         rate,
+        gains_ok: None,
+        gains: Vec::new(),
         stats: stats(&inst, Some(s), greedy_cost),
         timings: Timings {
             greedy: greedy_time,
