@@ -364,7 +364,12 @@ impl<'a, 'b> Search<'a, 'b> {
         Search {
             inst,
             pool: Pool::default(),
-            best_cost: inst.cost(&start),
+            // A start that breaks the caps is no incumbent.
+            best_cost: if inst.fits(&start) {
+                inst.cost(&start)
+            } else {
+                f64::INFINITY
+            },
             best: start,
             stats: SearchStats::default(),
             start: now,
@@ -435,6 +440,9 @@ impl<'a, 'b> Search<'a, 'b> {
     /// Offers a feasible link set as incumbent, after link exchange when it
     /// is within 3 % of the incumbent.
     fn offer(&mut self, chosen: Vec<bool>) {
+        if !self.inst.fits(&chosen) {
+            return;
+        }
         let raw = self.inst.cost(&chosen);
         let chosen = if raw < 1.03 * self.best_cost {
             exchange(self.inst, &chosen, self.deadline)
@@ -608,6 +616,24 @@ fn build_lp(
         .zip(&bounds)
         .map(|(l, &b)| problem.add_var(l.cost, b))
         .collect();
+    // The caps: Σ w_k y_k ≤ cap_i at every unit where they can bind
+    // (static rows, the same in every LP, ahead of the pool's rows).
+    if let Some(caps) = &inst.caps {
+        for (i, &cap) in caps.iter().enumerate() {
+            let expr: Vec<(Variable, f64)> = inst.heads[i]
+                .iter()
+                .map(|&k| {
+                    let l = &inst.links[k];
+                    let arcs = l.arcs.iter().filter(|a| a.1 as usize == i).count();
+                    (vars[k], l.weight * arcs as f64)
+                })
+                .collect();
+            let total: f64 = expr.iter().map(|e| e.1).sum();
+            if total > cap {
+                problem.add_constraint(expr.as_slice(), ComparisonOp::Le, cap.max(0.0));
+            }
+        }
+    }
     let mut has = vec![false; pool.rows.len()];
     for &i in rows {
         let i = i as usize;
@@ -795,14 +821,14 @@ pub(crate) fn search(
         return search_with(inst, start, limits, progress, None);
     }
     let oracle = inst.oracle.fresh();
-    let (n, links) = (inst.n, inst.links.clone());
+    let (n, links, caps) = (inst.n, inst.links.clone(), inst.caps.clone());
     let (to, jobs) = mpsc::channel::<Job>();
     let (done, from) = mpsc::channel();
     let stop = Arc::new(AtomicBool::new(false));
     let flag = stop.clone();
     std::thread::scope(|scope| {
         scope.spawn(move || {
-            let sub = Instance::with_oracle(n, links, Rc::new(oracle));
+            let sub = Instance::with_oracle(n, links, Rc::new(oracle)).with_caps(caps);
             for job in jobs {
                 let t = Instant::now();
                 let result = match job {

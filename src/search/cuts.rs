@@ -782,6 +782,7 @@ mod tests {
                     arcs,
                     cost: 1.0,
                     installed: false,
+                    weight: 1.0,
                 });
             }
             let inst = Instance::from_links(n, links, &table);

@@ -603,6 +603,7 @@ mod tests {
             arcs: vec![(a, b), (b, a)],
             cost,
             installed: false,
+            weight: 1.0,
         }
     }
 

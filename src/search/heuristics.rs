@@ -20,7 +20,8 @@ fn dearest_first(inst: &Instance, chosen: &[bool]) -> Vec<usize> {
 
 /// Drops links by decreasing cost (larger index first on a tie) while the
 /// condition holds; the result is irreducible (no link can be dropped).
-/// `start` must satisfy the condition.
+/// `start` must satisfy the condition (dropping links only lowers
+/// in-degrees, so a start within the caps stays within them).
 ///
 /// # Complexity
 /// O(m (n + m)) plus the excitation checks, which are cached.
@@ -28,11 +29,56 @@ pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
     let mut chosen = start.to_vec();
     for k in dearest_first(inst, &chosen) {
         chosen[k] = false;
-        if !inst.holds(&chosen) {
+        if !inst.holds_structure(&chosen) {
             chosen[k] = true;
         }
     }
     chosen
+}
+
+/// Drops chosen links at units over their in-degree cap, the links with
+/// the smallest `y` first (then dearer, then larger index), until every
+/// cap holds. Installed links stay.
+fn within_caps(inst: &Instance, chosen: &mut [bool], y: &[f64]) {
+    if inst.fits(chosen) {
+        return;
+    }
+    let mut order: Vec<usize> = (0..inst.links.len())
+        .filter(|&k| chosen[k] && !inst.links[k].installed)
+        .collect();
+    order.sort_by(|&a, &b| {
+        y[a].total_cmp(&y[b])
+            .then(inst.links[b].cost.total_cmp(&inst.links[a].cost))
+            .then(b.cmp(&a))
+    });
+    for k in order {
+        if inst.fits(chosen) {
+            return;
+        }
+        if inst.links[k]
+            .arcs
+            .iter()
+            .any(|&(_, t)| over(inst, chosen, t))
+        {
+            chosen[k] = false;
+        }
+    }
+}
+
+/// Unit `t` is over its cap under `chosen`.
+fn over(inst: &Instance, chosen: &[bool], t: u32) -> bool {
+    let Some(caps) = &inst.caps else {
+        return false;
+    };
+    let d: f64 = inst.heads[t as usize]
+        .iter()
+        .filter(|&&j| chosen[j])
+        .map(|&j| {
+            let l = &inst.links[j];
+            l.weight * l.arcs.iter().filter(|a| a.1 == t).count() as f64
+        })
+        .sum();
+    !super::instance::within(d, caps[t as usize])
 }
 
 /// Rounds an LP point to a feasible link set: keep links with y ≥ 1/2, then
@@ -46,6 +92,7 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
         .zip(y)
         .map(|(l, &v)| l.installed || v >= 0.5)
         .collect();
+    within_caps(inst, &mut chosen, y);
     loop {
         let bad = inst.violations(&chosen);
         if bad.is_empty() {
@@ -58,7 +105,7 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
             let mut best: Option<(f64, f64, usize)> = None;
             for &b in c {
                 for &k in &inst.heads[b as usize] {
-                    if chosen[k] {
+                    if chosen[k] || !inst.fits_with(&chosen, k) {
                         continue;
                     }
                     let enters = inst.links[k]
@@ -87,7 +134,8 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
             return None;
         }
     }
-    Some(reverse_delete(inst, &chosen))
+    let chosen = reverse_delete(inst, &chosen);
+    inst.holds(&chosen).then_some(chosen)
 }
 
 /// Link exchange: for each chosen link (dearest first), drop it and look
@@ -193,7 +241,7 @@ pub(crate) fn forward_greedy(inst: &Instance) -> Option<Vec<bool>> {
         let useful = inst.links[k].arcs.iter().any(|&(f, t)| {
             bad_of[t as usize] != usize::MAX && bad_of[f as usize] != bad_of[t as usize]
         });
-        if useful {
+        if useful && inst.fits_with(&chosen, k) {
             chosen[k] = true;
             if refresh(&chosen, &mut bad_of) {
                 return Some(reverse_delete(inst, &chosen));

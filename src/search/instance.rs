@@ -19,6 +19,8 @@ pub(crate) struct PlanLink {
     pub cost: f64,
     /// Already in place: always chosen.
     pub installed: bool,
+    /// Weight of each of its arcs (the listener's in-degree grows by it).
+    pub weight: f64,
 }
 
 /// Counters of the oracle's work.
@@ -318,6 +320,15 @@ pub(crate) struct Instance<'a> {
     /// ν of partitions already counted, keyed by the parts joined with
     /// `u32::MAX` separators.
     packings: RefCell<HashMap<Vec<u32>, usize>>,
+    /// Largest weighted in-degree per unit (the jump gain condition), when
+    /// some cap can bind.
+    pub caps: Option<Vec<f64>>,
+}
+
+/// A weighted in-degree within its cap (with a relative tolerance for the
+/// rounding of the sum).
+pub(crate) fn within(degree: f64, cap: f64) -> bool {
+    degree <= cap + 1e-12 * cap.abs().max(1.0)
 }
 
 /// Which single failure a plan must survive (DESIGN §3, robust variants).
@@ -353,9 +364,67 @@ impl<'a> Instance<'a> {
                 arcs: l.arcs().map(|a| (a.from.0, a.to.0)).collect(),
                 cost: if l.installed { 0.0 } else { l.cost },
                 installed: l.installed,
+                weight: l.weight,
             })
             .collect();
-        Self::from_links(n, links, table)
+        let caps = crate::certify::degree_caps(problem);
+        // Caps matter only where all candidates together could exceed them.
+        let mut room = vec![0.0f64; n];
+        for l in &links {
+            for &(_, to) in &l.arcs {
+                room[to as usize] += l.weight;
+            }
+        }
+        let binding = caps.iter().zip(&room).any(|(c, r)| *r > *c);
+        Self::from_links(n, links, table).with_caps(binding.then_some(caps))
+    }
+
+    /// The instance with per-unit weighted in-degree caps (`None`: none).
+    pub fn with_caps(mut self, caps: Option<Vec<f64>>) -> Self {
+        self.caps = caps;
+        self
+    }
+
+    /// Weighted in-degree of every unit under `chosen`.
+    fn in_degrees(&self, chosen: &[bool]) -> Vec<f64> {
+        let mut d = vec![0.0; self.n];
+        for (l, _) in self.links.iter().zip(chosen).filter(|(_, c)| **c) {
+            for &(_, to) in &l.arcs {
+                d[to as usize] += l.weight;
+            }
+        }
+        d
+    }
+
+    /// Every unit's weighted in-degree is within its cap (the jump gain
+    /// condition, docs/theory.md §6).
+    pub fn fits(&self, chosen: &[bool]) -> bool {
+        let Some(caps) = &self.caps else {
+            return true;
+        };
+        self.in_degrees(chosen)
+            .iter()
+            .zip(caps)
+            .all(|(&d, &c)| within(d, c))
+    }
+
+    /// Adding link `k` to `chosen` keeps the caps of its listeners (only
+    /// they change).
+    pub fn fits_with(&self, chosen: &[bool], k: usize) -> bool {
+        let Some(caps) = &self.caps else {
+            return true;
+        };
+        self.links[k].arcs.iter().all(|&(_, to)| {
+            let d: f64 = self.heads[to as usize]
+                .iter()
+                .filter(|&&j| chosen[j] || j == k)
+                .map(|&j| {
+                    let l = &self.links[j];
+                    l.weight * l.arcs.iter().filter(|a| a.1 == to).count() as f64
+                })
+                .sum();
+            within(d, caps[to as usize])
+        })
     }
 
     pub fn from_links(n: usize, links: Vec<PlanLink>, table: &'a ExcitationTable) -> Self {
@@ -383,6 +452,7 @@ impl<'a> Instance<'a> {
             integral_costs,
             survive: Survive::Nothing,
             packings: RefCell::new(HashMap::default()),
+            caps: None,
         }
     }
 
@@ -535,7 +605,14 @@ impl<'a> Instance<'a> {
         out
     }
 
+    /// The condition, the caps and, under a survival requirement, every
+    /// single failure.
     pub fn holds(&self, chosen: &[bool]) -> bool {
+        self.fits(chosen) && self.holds_structure(chosen)
+    }
+
+    /// The condition (and survival) without the caps.
+    pub fn holds_structure(&self, chosen: &[bool]) -> bool {
         let plain = self
             .source_components(chosen)
             .iter()

@@ -135,10 +135,12 @@ fn reoptimise(
                 arcs: l.arcs.clone(),
                 cost: 0.0,
                 installed: true,
+                weight: l.weight,
             });
         }
     }
-    let sub = Instance::with_oracle(inst.n, links, inst.oracle.clone());
+    let sub =
+        Instance::with_oracle(inst.n, links, inst.oracle.clone()).with_caps(inst.caps.clone());
     let start: Vec<bool> = map.iter().map(|&k| current[k]).collect();
     let before = sub.cost(&start);
     let limits = Limits {

@@ -306,12 +306,24 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             },
         };
     }
+    let installed: Vec<bool> = inst.links.iter().map(|l| l.installed).collect();
+    if !inst.fits(&installed) {
+        return caps_infeasible(problem, table, &inst, started, true);
+    }
     let reverse = heuristics::reverse_delete(&inst, &all);
     let greedy = match heuristics::forward_greedy(&inst) {
-        Some(forward) if inst.cost(&forward) < inst.cost(&reverse) => forward,
+        Some(forward) if !inst.fits(&reverse) || inst.cost(&forward) < inst.cost(&reverse) => {
+            forward
+        }
         _ => reverse,
     };
-    let greedy = heuristics::exchange(&inst, &greedy, deadline);
+    // A start beyond the in-degree caps is no incumbent: the search then
+    // starts without one (and says so when it finds none).
+    let greedy = if inst.holds(&greedy) {
+        heuristics::exchange(&inst, &greedy, deadline)
+    } else {
+        greedy
+    };
     let greedy_cost = inst.cost(&greedy);
     let greedy_time = started.elapsed();
     let neighbourhood = inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing;
@@ -328,6 +340,16 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
     };
     let result = bnc::search(&inst, greedy, limits, options.progress);
     let search_time = started.elapsed() - greedy_time;
+    if !inst.holds(&result.best) {
+        // No link set within the in-degree caps was found.
+        let mut plan = caps_infeasible(problem, table, &inst, started, false);
+        // An infeasible root LP also ends the search early: only a real
+        // deadline makes this a time limit.
+        if result.timed_out && deadline.is_some_and(|d| Instant::now() >= d) {
+            plan.status = PlanStatus::TimeLimit;
+        }
+        return plan;
+    }
     // Final irreducibility: drop any link whose removal keeps the condition.
     let best = heuristics::reverse_delete(&inst, &result.best);
     let cost = inst.cost(&best);
@@ -503,6 +525,89 @@ fn failure_shortfalls(
         out.push(s);
     }
     out
+}
+
+/// The plan when no link set meets both the structure and the in-degree
+/// caps of the gain condition (`installed`: the installed links alone break
+/// a cap). Names the units with the tightest caps.
+fn caps_infeasible(
+    problem: &Problem,
+    table: &ExcitationTable,
+    inst: &Instance,
+    started: Instant,
+    installed: bool,
+) -> Plan {
+    let caps = inst.caps.clone().unwrap_or_default();
+    let mut tight: Vec<(f64, usize)> = caps
+        .iter()
+        .enumerate()
+        .filter(|(_, c)| c.is_finite())
+        .map(|(i, &c)| (c, i))
+        .collect();
+    tight.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    tight.truncate(5);
+    let names: Vec<String> = tight
+        .iter()
+        .map(|&(c, i)| format!("{} (in-degree ≤ {c:.3})", problem.nodes[i].id))
+        .collect();
+    let remedy = if installed {
+        format!(
+            "the installed links alone exceed the in-degree limit of the gain condition \
+             (δ·d_i + γ_d·s_i/2 ≤ 1) at some unit; tightest limits: {}. Lower jump_coupling \
+             or jump_gain, or lighten the installed links' weights",
+            names.join(", ")
+        )
+    } else {
+        format!(
+            "no link set both excites every source component and keeps every unit within \
+             the in-degree limit of the gain condition (δ·d_i + γ_d·s_i/2 ≤ 1); tightest \
+             limits: {}. Lower jump_coupling or jump_gain, use lighter link weights, or add \
+             candidate links that spread the listening",
+            names.join(", ")
+        )
+    };
+    let named: Vec<crate::problem::NodeId> = tight
+        .iter()
+        .map(|&(_, i)| crate::problem::NodeId(i as u32))
+        .collect();
+    let level = table.level(&named);
+    Plan {
+        network: problem.settings.name.clone(),
+        status: PlanStatus::Infeasible,
+        cost: None,
+        lower_bound: None,
+        gap: None,
+        min_excitation: table.min_excitation(),
+        min_excitation_given: table.min_excitation_given(),
+        windows: table.windows().len(),
+        links: Vec::new(),
+        source_components: Vec::new(),
+        shortfalls: vec![Shortfall {
+            nodes: tight
+                .iter()
+                .map(|&(_, i)| problem.nodes[i].id.clone())
+                .collect(),
+            excitation: level.value,
+            weakest_direction: level.direction,
+            weakest_window_start: window_start_of(table, level.window),
+            remedy,
+        }],
+        robustness: None,
+        rate: None,
+        gains_ok: None,
+        gains: Vec::new(),
+        stats: stats(inst, None, f64::NAN),
+        timings: Timings {
+            greedy: started.elapsed(),
+            excitation: inst.oracle.stats.borrow().time,
+            ..Timings::default()
+        },
+    }
+}
+
+/// Start time of window `w` (0 when out of range).
+fn window_start_of(table: &ExcitationTable, w: usize) -> f64 {
+    table.windows().get(w).map_or(0.0, |w| w.start)
 }
 
 fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {

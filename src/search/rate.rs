@@ -97,6 +97,13 @@ pub(crate) fn best_addition(
                 .any(|a| focus.contains(&problem.node_name(a.to)))
         })
         .collect();
+    // Only links that keep every unit within its in-degree cap (the jump
+    // gain condition).
+    let caps = crate::certify::degree_caps(problem);
+    let candidates: Vec<LinkId> = candidates
+        .into_iter()
+        .filter(|&l| within_caps(problem, &caps, &with(set, l)))
+        .collect();
     let current = rate_of(cert);
     let scored: Vec<(LinkId, f64, f64)> = candidates
         .par_iter()
@@ -112,6 +119,23 @@ pub(crate) fn best_addition(
         .filter(|s| s.1 > current)
         .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)))
         .map(|s| s.0)
+}
+
+/// `set` keeps every unit within its in-degree cap.
+fn keep_caps(problem: &Problem, set: &LinkSet) -> bool {
+    within_caps(problem, &crate::certify::degree_caps(problem), set)
+}
+
+/// Every unit's weighted in-degree under `set` is within `caps`.
+pub(crate) fn within_caps(problem: &Problem, caps: &[f64], set: &LinkSet) -> bool {
+    let mut degree = vec![0.0f64; problem.n()];
+    for a in problem.arcs(set) {
+        degree[a.to.index()] += a.weight;
+    }
+    degree
+        .iter()
+        .zip(caps)
+        .all(|(&d, &c)| super::instance::within(d, c))
 }
 
 pub(crate) fn rate_of(c: &Certificate) -> f64 {
@@ -178,8 +202,15 @@ pub fn meet_target(
         // The greedy stalled: is the target reachable at all?
         let all = problem.all_links();
         let everything = certify_with(problem, table, &schedule, &all);
-        best_reachable = Some(rate_of(&cert).max(rate_of(&everything)));
-        if rate_of(&everything) >= target {
+        // All candidates at once can break an in-degree cap: then they are
+        // neither a start nor a reachable rate.
+        let fits = keep_caps(problem, &all);
+        best_reachable = Some(if fits {
+            rate_of(&cert).max(rate_of(&everything))
+        } else {
+            rate_of(&cert)
+        });
+        if rate_of(&everything) >= target && fits {
             set = all;
             cert = everything;
             added = set

@@ -503,3 +503,60 @@ fn plans_with_the_helper_thread_are_identical_across_runs() {
         assert_eq!(runs[0], runs[1], "{n} units");
     }
 }
+
+/// Brute force with the in-degree caps of the gain condition: every unit's
+/// weighted in-degree at most (1 − γ_d s_i/2)/δ, s_i = 0 here (no jumps).
+fn brute_force_capped(problem: &Problem, table: &ExcitationTable, cap: f64) -> Option<f64> {
+    let m = problem.links.len();
+    let mut best: Option<f64> = None;
+    for mask in 0u32..(1 << m) {
+        let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
+        let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
+        if best.is_some_and(|b| cost >= b) {
+            continue;
+        }
+        let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
+        let mut degree = vec![0.0; problem.n()];
+        for a in problem.arcs(&set) {
+            degree[a.to.index()] += a.weight;
+        }
+        if degree.iter().all(|&d| d <= cap + 1e-12) && holds(problem, table, &chosen) {
+            best = Some(cost);
+        }
+    }
+    best
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 48, ..ProptestConfig::default() })]
+
+    /// With a jump coupling large enough for the in-degree caps to bind
+    /// (δ = 0.4, 0.55 or 0.9: each unit may listen to at most 2, 1 or 1
+    /// links of weight 1), the plan matches brute force over all link
+    /// subsets that meet both the condition and the caps, and never breaks
+    /// a cap; `check` of the plan passes the gain condition.
+    #[test]
+    fn plan_with_degree_caps_matches_brute_force(
+        (n, p, edges, gram) in instance_strategy(),
+        which in 0usize..3,
+    ) {
+        let delta = [0.4, 0.55, 0.9][which];
+        let (base, table) = synthetic(n, p, &edges, 2, gram, 0.05);
+        let mut settings = base.settings.clone();
+        settings.gains.jump_coupling = delta;
+        let problem = Problem::from_parts(base.path.clone(), settings, base.nodes, base.links).unwrap();
+        let got = plan(&problem, &table);
+        let want = brute_force_capped(&problem, &table, 1.0 / delta);
+        match want {
+            None => prop_assert_eq!(got.status, PlanStatus::Infeasible),
+            Some(best) => {
+                prop_assert_eq!(got.status, PlanStatus::Optimal);
+                let cost = got.cost.unwrap();
+                prop_assert!((cost - best).abs() < 1e-9, "plan {} vs brute force {}", cost, best);
+                prop_assert_eq!(got.gains_ok, Some(true));
+                let set = LinkSet::new(chosen_indices(&problem, &got).iter().map(|&k| LinkId(k as u32)).collect());
+                prop_assert!(exmesh::certify::gain_checks(&problem, &set).iter().all(|g| g.ok));
+            }
+        }
+    }
+}
