@@ -514,7 +514,7 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             .collect();
         writeln!(
             out,
-            "WARNING: the gain condition fails at {} with these links (a jump can expand the error there): this plan does not guarantee convergence. The search does not yet limit in-degrees; lower jump_coupling or jump_gain, or run `check` for details.",
+            "WARNING: the gain condition fails at {} with these links (a jump can expand the error there): this plan does not guarantee convergence; run `check` for details.",
             units.join(", ")
         )?;
     }

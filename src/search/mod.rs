@@ -187,8 +187,8 @@ pub struct Plan {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub rate: Option<rate::RatePlan>,
     /// The per-unit gain condition holds for the plan's links (`None`
-    /// when there is no plan). The search does not yet restrict in-degrees
-    /// to it, so a plan can fail it; the text output then warns.
+    /// when there is no plan; the search keeps every unit within its
+    /// in-degree cap, so a plan meets it).
     pub gains_ok: Option<bool>,
     /// The gain conditions of the plan's links (see
     /// [`crate::certify::gain_checks`]).
