@@ -30,12 +30,14 @@ pub(crate) fn start_vector(d: usize) -> Vec<f64> {
 
 /// ln of the top Ritz value's square root for `ΦᵀΦ` over `steps`, from
 /// `x`: a lower estimate of ln ‖Φ‖₂ (it can stop at a smaller singular
-/// value when `x` is nearly orthogonal to the top one).
-fn lanczos_estimate(
+/// value when `x` is nearly orthogonal to the top one). On return `x`
+/// holds the Ritz vector; `passes` counts the propagations.
+pub(crate) fn lanczos_estimate(
     system: &ErrorSystem,
     steps: &[Step],
     x: &mut Vec<f64>,
     work: &mut Work,
+    passes: &mut usize,
 ) -> f64 {
     let d = x.len();
     if normalise(x) == 0.0 {
@@ -49,6 +51,7 @@ fn lanczos_estimate(
         let mut w = basis[j].clone();
         let a = system.propagate(Direction::Forward, steps, &mut w, work);
         let b = system.propagate(Direction::Adjoint, steps, &mut w, work);
+        *passes += 2;
         if j == 0 {
             log_ref = a + b;
         }
@@ -64,7 +67,14 @@ fn lanczos_estimate(
         let norm = normalise(&mut w);
         let (t, s) = top_ritz(&alpha, &beta);
         theta = t;
-        if norm * s[s.len() - 1].abs() <= TOLERANCE * t || norm <= 1e-300 {
+        let done = norm * s[s.len() - 1].abs() <= TOLERANCE * t || norm <= 1e-300;
+        if done || j + 1 == DIMENSION.min(d) {
+            let mut v = vec![0.0; d];
+            for (q, &c) in basis.iter().zip(&s) {
+                v.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
+            }
+            normalise(&mut v);
+            *x = v;
             break;
         }
         beta.push(norm);
@@ -89,5 +99,5 @@ pub fn window_log_norm(system: &ErrorSystem, window: &Window, start: &[f64]) -> 
     } else {
         start_vector(system.dim())
     };
-    lanczos_estimate(system, &steps, &mut x, &mut Work::default())
+    lanczos_estimate(system, &steps, &mut x, &mut Work::default(), &mut 0)
 }

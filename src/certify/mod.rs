@@ -45,6 +45,11 @@ const CHUNK: usize = 16;
 /// Fewest chunks a batch of windows is split into.
 const PIECES: usize = 4;
 
+/// Blocks with more unknowns than this choose T_c from Lanczos estimates
+/// and bound only the chosen trial's windows (exact or randomized); smaller
+/// blocks bound every window they evaluate.
+const ESTIMATE_FIRST: usize = 16;
+
 /// Multiples of the excitation window tried as the certificate window.
 pub const MULTIPLES: [usize; 5] = [1, 2, 4, 8, 16];
 
@@ -283,6 +288,7 @@ fn window_norms(
     seeds: &[u64],
     accept: f64,
     warm: &(dyn Fn(&Window) -> Option<Vec<f64>> + Sync),
+    mode: Mode,
 ) -> Vec<NormBound> {
     let d = system.dim();
     let size = windows.len().div_ceil(PIECES).clamp(1, CHUNK);
@@ -300,7 +306,30 @@ fn window_norms(
                 .zip(seeds)
                 .map(|(w, &seed)| {
                     system.schedule().steps(w, &mut steps);
-                    let b = bound::window_bound(system, &steps, &x, seed, accept, &mut work);
+                    let b = match mode {
+                        Mode::Bound => {
+                            bound::window_bound(system, &steps, &x, seed, accept, &mut work)
+                        }
+                        Mode::Estimate => {
+                            let mut v = x.clone();
+                            let mut passes = 0;
+                            let log = estimate::lanczos_estimate(
+                                system,
+                                &steps,
+                                &mut v,
+                                &mut work,
+                                &mut passes,
+                            );
+                            NormBound {
+                                log_upper: log,
+                                log_lower: log,
+                                right: v,
+                                passes,
+                                tests: 0,
+                                exact: false,
+                            }
+                        }
+                    };
                     if b.right.len() == d {
                         x.clone_from(&b.right);
                     }
@@ -369,8 +398,23 @@ pub fn chain_pieces(problem: &Problem, length: f64) -> (Vec<Window>, Window) {
     (chain, last)
 }
 
+/// How a trial's windows are evaluated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Mode {
+    /// Upper bounds (the certificate).
+    Bound,
+    /// Lanczos estimates from below, to choose T_c cheaply on large
+    /// blocks; never printed as certified.
+    Estimate,
+}
+
 struct Trial {
     length: f64,
+    /// Upper bounds or estimates.
+    mode: Mode,
+    /// Windows whose bound falls to this (ln) may stop early: a lower
+    /// bound on ρ known beforehand.
+    accept_floor: f64,
     /// ln of the chain length (the rate's time unit) for this trial.
     chain: f64,
     log_rho: f64,
@@ -434,6 +478,8 @@ impl Trial {
         let length = chain_length(problem, multiple, &windows);
         Some(Trial {
             length,
+            mode: Mode::Bound,
+            accept_floor: f64::NEG_INFINITY,
             chain: length,
             log_rho: f64::NEG_INFINITY,
             worst: 0,
@@ -514,10 +560,14 @@ impl Trial {
                 let k = p.index_at(w.start)?;
                 p.norms[k].as_ref().map(|n| n.right.clone())
             };
-            for (k, r) in todo
-                .into_iter()
-                .zip(window_norms(system, &batch, &seeds, best, &warm))
-            {
+            for (k, r) in todo.into_iter().zip(window_norms(
+                system,
+                &batch,
+                &seeds,
+                best.max(self.accept_floor),
+                &warm,
+                self.mode,
+            )) {
                 self.upper[k] = self.upper[k].min(r.log_upper);
                 self.norms[k] = Some(r);
             }
@@ -611,6 +661,7 @@ fn longer_trials(
         let Some(mut t) = Trial::new(problem, m, trials.last(), seed) else {
             break;
         };
+        t.mode = trials[0].mode;
         t.evaluate(system, trials.last(), false, f64::INFINITY);
         if first_pending {
             first_pending = false;
@@ -695,7 +746,15 @@ fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed:
             problem.settings.window * MULTIPLES[0] as f64
         );
     }
+    // On blocks too large for exact norms, T_c is chosen from Lanczos
+    // estimates (cheap), and only the chosen trial's windows are bounded.
+    let mode = if system.dim() > ESTIMATE_FIRST {
+        Mode::Estimate
+    } else {
+        Mode::Bound
+    };
     let first = Trial::new(problem, MULTIPLES[0], None, seed).map(|mut t| {
+        t.mode = mode;
         t.evaluate(system, None, lazy, f64::INFINITY);
         t
     });
@@ -754,9 +813,30 @@ fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed:
         horizon_time,
     };
     block.exact = block.exact && block.tests == 0;
-    let Some(t) = best.or(trials.len().checked_sub(1)).map(|k| &trials[k]) else {
+    let Some(chosen) = best.or(trials.len().checked_sub(1)) else {
         block.reason = Some("no certificate window fits in the horizon".into());
         return block;
+    };
+    let bounded;
+    let t = if trials[chosen].mode == Mode::Estimate {
+        // Bound every window of the chosen length; the largest estimate is
+        // a lower bound on ρ, so windows whose bound falls below it stop
+        // early; each starts from its estimate's singular vector.
+        let estimate = &trials[chosen];
+        let multiple = MULTIPLES[chosen];
+        let t0 = std::time::Instant::now();
+        let mut t = Trial::new(problem, multiple, None, seed ^ 0xB0_0B)
+            .expect("the estimated trial has windows");
+        t.accept_floor = estimate.lower();
+        t.evaluate(system, Some(estimate), false, f64::INFINITY);
+        block.passes += t.passes();
+        block.tests += t.tests();
+        block.exact = block.exact && t.tests() == 0;
+        block.windows_time += t0.elapsed();
+        bounded = t;
+        &bounded
+    } else {
+        &trials[chosen]
     };
     block.length = t.length;
     block.log_rho = t.log_rho;
