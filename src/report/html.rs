@@ -118,6 +118,25 @@ pub fn report(r: &ReportInput) -> String {
     );
     row(
         &mut h,
+        "verdict",
+        match c.verdict {
+            crate::analysis::Verdict::Converges => {
+                "structure, gains and certificate hold: every estimate converges".into()
+            }
+            crate::analysis::Verdict::StructureFails => {
+                "NOT converging: a source component is not excited".into()
+            }
+            crate::analysis::Verdict::GainsFail => {
+                "NOT guaranteed: the gain condition fails at some unit".into()
+            }
+            crate::analysis::Verdict::NotCertified => {
+                "NOT certified: no window of the horizon shows contraction".into()
+            }
+            crate::analysis::Verdict::RateNotChecked => "rate not checked".into(),
+        },
+    );
+    row(
+        &mut h,
         "required excitation μ_req",
         format!(
             "{:.4e} ({}; {} windows)",
@@ -139,7 +158,27 @@ pub fn report(r: &ReportInput) -> String {
                     format!("{x:.4e} 1/s")
                 }),
         );
-        row(&mut h, "time to 1 %", f(cert.time_to_1pct, 1) + " s");
+        row(
+            &mut h,
+            "time to 1 %",
+            f(cert.time_to_1pct, 1)
+                + if cert.time_to_1pct_extrapolated {
+                    " s (extrapolated beyond the recorded horizon)"
+                } else {
+                    " s"
+                },
+        );
+        row(
+            &mut h,
+            "window norms",
+            match cert.norm_bound {
+                crate::certify::NormBoundKind::Exact => "exact (plus a rounding margin)".into(),
+                crate::certify::NormBoundKind::Randomized => format!(
+                    "upper bounds from randomized tests (fail with probability ≤ {:.1e})",
+                    cert.failure_probability
+                ),
+            },
+        );
     }
     if let Some(t) = p.settings.target_rate {
         row(&mut h, "target rate", format!("{t:.4e} 1/s"));
@@ -197,16 +236,25 @@ pub fn report(r: &ReportInput) -> String {
             Some(rate) => {
                 let _ = writeln!(
                     h,
-                    "<p>On the recorded data, |e(t)| ≤ {} · exp(−{rate:.4e} (t − s)) · |e(s)| for the \
-                     stacked estimation error: certified rate <strong>{rate:.4e} 1/s</strong> over windows \
-                     of {} s (worst ‖Φ‖ = {:.6} over {} windows); the bound falls to 1 % after {} s. \
-                     Decay over the whole horizon: {} 1/s.</p>",
+                    "<p>On the recorded data, |e(t)| ≤ {} · exp(−{rate:.4e} (t − {h0})) · |e({h0})| for the \
+                     stacked estimation error and every t of the horizon (its last jumps included): \
+                     certified rate <strong>{rate:.4e} 1/s</strong> over windows \
+                     of {} s (worst ‖Φ‖ ≤ {:.6} over {} windows); the bound falls to 1 % after {} s{}. \
+                     The transient factor bounds how much the error can grow inside a window before \
+                     that window's contraction applies. Decay over the whole horizon (an estimate, \
+                     not certified): {} 1/s.</p>",
                     f(cert.transient_factor, 4),
                     cert.window,
                     cert.contraction,
                     cert.windows,
                     f(cert.time_to_1pct, 1),
-                    e(cert.asymptotic_rate)
+                    if cert.time_to_1pct_extrapolated {
+                        " (extrapolated beyond the recorded horizon)"
+                    } else {
+                        ""
+                    },
+                    e(cert.asymptotic_rate),
+                    h0 = cert.envelope_from,
                 );
                 let top: Vec<String> = cert
                     .units
@@ -234,14 +282,16 @@ pub fn report(r: &ReportInput) -> String {
         }
         let _ = writeln!(
             h,
-            "<table>\n<tr><th>gain condition</th><th>value</th><th>result</th></tr>"
+            "<table>\n<tr><th>unit</th><th>gain condition</th><th>value</th><th>limit</th><th>result</th></tr>"
         );
         for g in &cert.gains {
             let _ = writeln!(
                 h,
-                "<tr><td>{}</td><td class=\"num\">{:.4}</td><td>{}</td></tr>",
+                "<tr><td>{}</td><td>{}</td><td class=\"num\">{:.4}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+                escape(g.node.as_deref().unwrap_or("—")),
                 escape(&g.condition),
                 g.value,
+                g.limit,
                 if g.ok { "pass" } else { "FAIL" }
             );
         }
