@@ -179,3 +179,51 @@ fn check_against_brute_force(
     }
     Ok(())
 }
+
+/// In-degrees within the cap (weight-1 links).
+fn within_cap(problem: &Problem, chosen: &[usize], cap: f64) -> bool {
+    let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
+    let mut degree = vec![0.0; problem.n()];
+    for a in problem.arcs(&set) {
+        degree[a.to.index()] += a.weight;
+    }
+    degree.iter().all(|&d| d <= cap + 1e-12)
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 32, ..ProptestConfig::default() })]
+
+    /// Surviving a link failure under the in-degree caps of the gain
+    /// condition (δ = 0.4: at most two weight-1 links into a unit): the
+    /// plan matches brute force over all subsets that survive and meet
+    /// the caps.
+    #[test]
+    fn survive_link_with_degree_caps_matches_brute_force((n, p, edges, gram) in dense_strategy(3)) {
+        let (base, table) = synthetic(n, p, &edges, 2, gram, 0.05);
+        let mut settings = base.settings.clone();
+        settings.gains.jump_coupling = 0.4;
+        let problem = Problem::from_parts(base.path.clone(), settings, base.nodes, base.links).unwrap();
+        let got = plan(&problem, &table, Survive::Link);
+        let m = problem.links.len();
+        let mut best: Option<f64> = None;
+        for mask in 0u32..(1 << m) {
+            let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
+            let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
+            if best.is_some_and(|b| cost >= b) {
+                continue;
+            }
+            if within_cap(&problem, &chosen, 2.5) && survives(&problem, &table, &chosen, Survive::Link) {
+                best = Some(cost);
+            }
+        }
+        match best {
+            None => prop_assert_eq!(got.status, PlanStatus::Infeasible),
+            Some(best) => {
+                prop_assert_eq!(got.status, PlanStatus::Optimal);
+                prop_assert!((got.cost.unwrap() - best).abs() < 1e-9, "plan {:?} vs brute force {}", got.cost, best);
+                let chosen = chosen_indices(&problem, &got);
+                prop_assert!(within_cap(&problem, &chosen, 2.5));
+            }
+        }
+    }
+}
