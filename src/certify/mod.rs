@@ -415,7 +415,7 @@ struct Trial {
     /// Windows whose bound falls to this (ln) may stop early: a lower
     /// bound on ρ known beforehand.
     accept_floor: f64,
-    /// ln of the chain length (the rate's time unit) for this trial.
+    /// Length of the chain windows (the rate's time unit) for this trial.
     chain: f64,
     log_rho: f64,
     worst: usize,
