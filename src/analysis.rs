@@ -157,7 +157,8 @@ fn names(problem: &Problem, nodes: &[NodeId]) -> Vec<String> {
         .collect()
 }
 
-fn window_start(problem: &Problem, table: &ExcitationTable, w: usize) -> f64 {
+/// Start time of excitation window `w` (h0 when out of range).
+pub(crate) fn window_start(problem: &Problem, table: &ExcitationTable, w: usize) -> f64 {
     table
         .windows()
         .get(w)

@@ -103,11 +103,11 @@ impl Gaussian {
     }
 }
 
-fn dot(a: &[f64], b: &[f64]) -> f64 {
+pub(super) fn dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
-fn normalise(x: &mut [f64]) -> f64 {
+pub(super) fn normalise(x: &mut [f64]) -> f64 {
     let n = dot(x, x).sqrt();
     if n > 0.0 {
         x.iter_mut().for_each(|v| *v /= n);
@@ -115,8 +115,18 @@ fn normalise(x: &mut [f64]) -> f64 {
     n
 }
 
+/// `Σ_i coeffs[i]·basis[i]` (vectors of length d), normalised.
+pub(super) fn combine(basis: &[Vec<f64>], coeffs: &[f64], d: usize) -> Vec<f64> {
+    let mut x = vec![0.0; d];
+    for (q, &c) in basis.iter().zip(coeffs) {
+        x.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
+    }
+    normalise(&mut x);
+    x
+}
+
 /// Subtracts the components along the orthonormal `basis` (twice).
-fn orthogonalise(x: &mut [f64], basis: &[Vec<f64>]) {
+pub(super) fn orthogonalise(x: &mut [f64], basis: &[Vec<f64>]) {
     for _ in 0..2 {
         for q in basis {
             let c = dot(x, q);
@@ -152,17 +162,13 @@ pub fn exact_norm(system: &ErrorSystem, steps: &[Step], work: &mut Work) -> Norm
     }
     let top = scales.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let phi = nalgebra::DMatrix::from_fn(d, d, |r, c| columns[c][r] * (scales[c] - top).exp());
-    let gram = phi.transpose() * &phi;
-    let e = nalgebra::SymmetricEigen::new(gram);
-    let best = (0..d)
-        .max_by(|&a, &b| e.eigenvalues[a].total_cmp(&e.eigenvalues[b]))
-        .unwrap_or(0);
-    let value = e.eigenvalues[best].max(0.0).sqrt() * top.exp();
+    let (largest, right) = top_eigen(phi.transpose() * &phi);
+    let value = largest.max(0.0).sqrt() * top.exp();
     let upper = value * (1.0 + propagation_margin(system, steps));
     NormBound {
         log_upper: upper.ln(),
         log_lower: value.ln(),
-        right: e.eigenvectors.column(best).iter().copied().collect(),
+        right,
         passes: d,
         tests: 0,
         exact: true,
@@ -210,7 +216,13 @@ pub fn top_ritz(a: &[f64], b: &[f64]) -> (f64, Vec<f64>) {
             0.0
         }
     });
-    let e = nalgebra::SymmetricEigen::new(t);
+    top_eigen(t)
+}
+
+/// Largest eigenvalue of a symmetric matrix and its eigenvector.
+fn top_eigen(m: nalgebra::DMatrix<f64>) -> (f64, Vec<f64>) {
+    let k = m.nrows();
+    let e = nalgebra::SymmetricEigen::new(m);
     let best = (0..k)
         .max_by(|&x, &y| e.eigenvalues[x].total_cmp(&e.eigenvalues[y]))
         .unwrap_or(0);
@@ -317,16 +329,9 @@ fn projected_norm(basis: &[Vec<f64>], images: &[Vec<f64>], logs: &[f64]) -> (f64
     let g = nalgebra::DMatrix::from_fn(k, k, |r, c| {
         dot(&images[r], &images[c]) * (logs[r] + logs[c] - 2.0 * top).exp()
     });
-    let e = nalgebra::SymmetricEigen::new(g);
-    let best = (0..k)
-        .max_by(|&a, &b| e.eigenvalues[a].total_cmp(&e.eigenvalues[b]))
-        .unwrap_or(0);
-    let mut x = vec![0.0; basis.first().map_or(0, Vec::len)];
-    for (q, &c) in basis.iter().zip(e.eigenvectors.column(best).iter()) {
-        x.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
-    }
-    normalise(&mut x);
-    (e.eigenvalues[best].max(0.0) * (2.0 * top).exp(), x)
+    let (largest, y) = top_eigen(g);
+    let x = combine(basis, &y, basis[0].len());
+    (largest.max(0.0) * (2.0 * top).exp(), x)
 }
 
 /// An upper bound on ‖Φ‖₂ for a block too large for [`exact_norm`]: warm

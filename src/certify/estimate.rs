@@ -2,7 +2,7 @@
 //! certified): used by the rate stage to screen candidate links before a
 //! full certificate.
 
-use super::bound::top_ritz;
+use super::bound::{combine, dot, normalise, orthogonalise, top_ritz};
 use super::propagate::{Direction, ErrorSystem, Step, Work};
 use crate::signal::Window;
 
@@ -11,14 +11,6 @@ const TOLERANCE: f64 = 1e-4;
 
 /// Largest Krylov dimension.
 const DIMENSION: usize = 30;
-
-fn normalise(x: &mut [f64]) -> f64 {
-    let n = x.iter().map(|v| v * v).sum::<f64>().sqrt();
-    if n > 0.0 {
-        x.iter_mut().for_each(|v| *v /= n);
-    }
-    n
-}
 
 /// A deterministic starting vector with no special structure.
 pub(crate) fn start_vector(d: usize) -> Vec<f64> {
@@ -57,24 +49,14 @@ pub(crate) fn lanczos_estimate(
         }
         let f = (a + b - log_ref).exp();
         w.iter_mut().for_each(|v| *v *= f);
-        alpha.push(w.iter().zip(&basis[j]).map(|(p, q)| p * q).sum());
-        for _ in 0..2 {
-            for q in &basis {
-                let c: f64 = w.iter().zip(q).map(|(p, r)| p * r).sum();
-                w.iter_mut().zip(q).for_each(|(p, r)| *p -= c * r);
-            }
-        }
+        alpha.push(dot(&w, &basis[j]));
+        orthogonalise(&mut w, &basis);
         let norm = normalise(&mut w);
         let (t, s) = top_ritz(&alpha, &beta);
         theta = t;
         let done = norm * s[s.len() - 1].abs() <= TOLERANCE * t || norm <= 1e-300;
         if done || j + 1 == DIMENSION.min(d) {
-            let mut v = vec![0.0; d];
-            for (q, &c) in basis.iter().zip(&s) {
-                v.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
-            }
-            normalise(&mut v);
-            *x = v;
+            *x = combine(&basis, &s, d);
             break;
         }
         beta.push(norm);

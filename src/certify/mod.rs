@@ -198,21 +198,29 @@ pub struct CertTiming {
 /// jump map applies along ψ.
 pub fn jump_shares(problem: &Problem) -> Vec<f64> {
     let (h0, h1) = (problem.domain.h0, problem.domain.h1);
-    let p = problem.settings.parameters;
     problem
         .nodes
         .iter()
         .map(|v| {
-            let log = &v.log;
-            (0..log.len().saturating_sub(1))
-                .filter(|&k| log.j[k + 1] == log.j[k] + 1 && log.t[k] >= h0 && log.t[k] <= h1)
-                .map(|k| {
-                    let sq: f64 = log.psi[k * p..(k + 1) * p].iter().map(|x| x * x).sum();
+            v.log
+                .jumps()
+                .filter(|e| e.time >= h0 && e.time <= h1)
+                .map(|e| {
+                    let sq: f64 = e.psi.iter().map(|x| x * x).sum();
                     sq / (1.0 + sq)
                 })
                 .fold(0.0, f64::max)
         })
         .collect()
+}
+
+/// Weighted in-degree of every unit under the links of `set`.
+pub fn in_degrees(problem: &Problem, set: &LinkSet) -> Vec<f64> {
+    let mut degree = vec![0.0f64; problem.n()];
+    for a in problem.arcs(set) {
+        degree[a.to.index()] += a.weight;
+    }
+    degree
 }
 
 /// The largest weighted in-degree each unit may have for its jump map to
@@ -246,10 +254,7 @@ pub fn degree_caps(problem: &Problem) -> Vec<f64> {
 /// sum of block norms).
 pub fn gain_checks(problem: &Problem, set: &LinkSet) -> Vec<GainCheck> {
     let g = problem.settings.gains;
-    let mut degree = vec![0.0f64; problem.n()];
-    for a in problem.arcs(set) {
-        degree[a.to.index()] += a.weight;
-    }
+    let degree = in_degrees(problem, set);
     let shares = jump_shares(problem);
     let rows: Vec<GainCheck> = degree
         .iter()
@@ -409,14 +414,13 @@ enum Mode {
 }
 
 struct Trial {
+    /// Length of the chain windows, T_c (the rate's time unit).
     length: f64,
     /// Upper bounds or estimates.
     mode: Mode,
     /// Windows whose bound falls to this (ln) may stop early: a lower
     /// bound on ρ known beforehand.
     accept_floor: f64,
-    /// Length of the chain windows (the rate's time unit) for this trial.
-    chain: f64,
     log_rho: f64,
     worst: usize,
     windows: Vec<Window>,
@@ -480,7 +484,6 @@ impl Trial {
             length,
             mode: Mode::Bound,
             accept_floor: f64::NEG_INFINITY,
-            chain: length,
             log_rho: f64::NEG_INFINITY,
             worst: 0,
             norms: vec![None; windows.len()],
@@ -860,15 +863,12 @@ fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed:
         let mut steps = Vec::new();
         system.schedule().steps(&t.windows[t.worst], &mut steps);
         system.propagate(Direction::Forward, &steps, &mut left, &mut Work::default());
-        let norm = left.iter().map(|x| x * x).sum::<f64>().sqrt();
-        if norm > 0.0 {
-            left.iter_mut().for_each(|x| *x /= norm);
-        }
+        bound::normalise(&mut left);
         block.left = left;
     }
     match t.rate() {
         Some(rate) => {
-            let (chain, last) = chain_pieces(problem, t.chain);
+            let (chain, last) = chain_pieces(problem, t.length);
             let mut pieces = chain;
             pieces.push(last);
             block.log_m = log_partial_bound(system, &pieces);

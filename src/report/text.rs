@@ -171,16 +171,10 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
             )?;
         }
         Verdict::GainsFail => {
-            let units: Vec<&str> = c
-                .gains
-                .iter()
-                .filter(|g| !g.ok)
-                .filter_map(|g| g.node.as_deref())
-                .collect();
             writeln!(
                 out,
                 "Verdict: the gain condition fails at {} — a jump can expand the error there, so convergence is not guaranteed.",
-                units.join(", ")
+                failing_units(&c.gains)
             )?;
             writeln!(
                 out,
@@ -285,6 +279,16 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
         )?;
     }
     gain_lines(&c.gains, out)
+}
+
+/// The units whose gain condition fails, comma-separated.
+fn failing_units(gains: &[crate::certify::GainCheck]) -> String {
+    let units: Vec<&str> = gains
+        .iter()
+        .filter(|g| !g.ok)
+        .filter_map(|g| g.node.as_deref())
+        .collect();
+    units.join(", ")
 }
 
 /// Writes the gain checks.
@@ -506,16 +510,10 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     };
     writeln!(out, "Plan for {}: {status}", p.network)?;
     if p.gains_ok == Some(false) {
-        let units: Vec<&str> = p
-            .gains
-            .iter()
-            .filter(|g| !g.ok)
-            .filter_map(|g| g.node.as_deref())
-            .collect();
         writeln!(
             out,
             "WARNING: the gain condition fails at {} with these links (a jump can expand the error there): this plan does not guarantee convergence; run `check` for details.",
-            units.join(", ")
+            failing_units(&p.gains)
         )?;
     }
     threshold(out, p.min_excitation, p.min_excitation_given, p.windows)?;

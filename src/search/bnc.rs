@@ -622,11 +622,7 @@ fn build_lp(
         for (i, &cap) in caps.iter().enumerate() {
             let expr: Vec<(Variable, f64)> = inst.heads[i]
                 .iter()
-                .map(|&k| {
-                    let l = &inst.links[k];
-                    let arcs = l.arcs.iter().filter(|a| a.1 as usize == i).count();
-                    (vars[k], l.weight * arcs as f64)
-                })
+                .map(|&k| (vars[k], inst.links[k].weight_into(i as u32)))
                 .collect();
             let total: f64 = expr.iter().map(|e| e.1).sum();
             if total > cap {

@@ -58,27 +58,11 @@ fn within_caps(inst: &Instance, chosen: &mut [bool], y: &[f64]) {
         if inst.links[k]
             .arcs
             .iter()
-            .any(|&(_, t)| over(inst, chosen, t))
+            .any(|&(_, t)| inst.over_cap(chosen, t))
         {
             chosen[k] = false;
         }
     }
-}
-
-/// Unit `t` is over its cap under `chosen`.
-fn over(inst: &Instance, chosen: &[bool], t: u32) -> bool {
-    let Some(caps) = &inst.caps else {
-        return false;
-    };
-    let d: f64 = inst.heads[t as usize]
-        .iter()
-        .filter(|&&j| chosen[j])
-        .map(|&j| {
-            let l = &inst.links[j];
-            l.weight * l.arcs.iter().filter(|a| a.1 == t).count() as f64
-        })
-        .sum();
-    !super::instance::within(d, caps[t as usize])
 }
 
 /// Rounds an LP point to a feasible link set: keep links with y ≥ 1/2, then

@@ -23,6 +23,13 @@ pub(crate) struct PlanLink {
     pub weight: f64,
 }
 
+impl PlanLink {
+    /// What the link adds to unit `to`'s weighted in-degree.
+    pub fn weight_into(&self, to: u32) -> f64 {
+        self.weight * self.arcs.iter().filter(|a| a.1 == to).count() as f64
+    }
+}
+
 /// Counters of the oracle's work.
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct OracleStats {
@@ -408,23 +415,32 @@ impl<'a> Instance<'a> {
             .all(|(&d, &c)| within(d, c))
     }
 
+    /// Weighted in-degree of unit `to` under `chosen` plus link `extra`.
+    fn degree_at(&self, chosen: &[bool], to: u32, extra: Option<usize>) -> f64 {
+        self.heads[to as usize]
+            .iter()
+            .filter(|&&j| chosen[j] || Some(j) == extra)
+            .map(|&j| self.links[j].weight_into(to))
+            .sum()
+    }
+
     /// Adding link `k` to `chosen` keeps the caps of its listeners (only
     /// they change).
     pub fn fits_with(&self, chosen: &[bool], k: usize) -> bool {
         let Some(caps) = &self.caps else {
             return true;
         };
-        self.links[k].arcs.iter().all(|&(_, to)| {
-            let d: f64 = self.heads[to as usize]
-                .iter()
-                .filter(|&&j| chosen[j] || j == k)
-                .map(|&j| {
-                    let l = &self.links[j];
-                    l.weight * l.arcs.iter().filter(|a| a.1 == to).count() as f64
-                })
-                .sum();
-            within(d, caps[to as usize])
-        })
+        self.links[k]
+            .arcs
+            .iter()
+            .all(|&(_, to)| within(self.degree_at(chosen, to, Some(k)), caps[to as usize]))
+    }
+
+    /// Unit `t` is over its cap under `chosen`.
+    pub fn over_cap(&self, chosen: &[bool], t: u32) -> bool {
+        self.caps
+            .as_ref()
+            .is_some_and(|caps| !within(self.degree_at(chosen, t, None), caps[t as usize]))
     }
 
     pub fn from_links(n: usize, links: Vec<PlanLink>, table: &'a ExcitationTable) -> Self {

@@ -282,29 +282,14 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             plain.iter().map(|c| shortfall(problem, table, c)).collect()
         };
         let check = analysis::check(problem, table, &problem.all_links());
-        return Plan {
-            network: problem.settings.name.clone(),
-            status: PlanStatus::Infeasible,
-            cost: None,
-            lower_bound: None,
-            gap: None,
-            min_excitation: table.min_excitation(),
-            min_excitation_given: table.min_excitation_given(),
-            windows: table.windows().len(),
-            links: Vec::new(),
-            source_components: check.source_components,
+        return infeasible(
+            problem,
+            table,
+            &inst,
+            started,
+            check.source_components,
             shortfalls,
-            robustness: None,
-            rate: None,
-            gains_ok: None,
-            gains: Vec::new(),
-            stats: stats(&inst, None, f64::NAN),
-            timings: Timings {
-                greedy: started.elapsed(),
-                excitation: inst.oracle.stats.borrow().time,
-                ..Timings::default()
-            },
-        };
+        );
     }
     let installed: Vec<bool> = inst.links.iter().map(|l| l.installed).collect();
     if !inst.fits(&installed) {
@@ -571,6 +556,28 @@ fn caps_infeasible(
         .map(|&(_, i)| crate::problem::NodeId(i as u32))
         .collect();
     let level = table.level(&named);
+    let shortfall = Shortfall {
+        nodes: tight
+            .iter()
+            .map(|&(_, i)| problem.nodes[i].id.clone())
+            .collect(),
+        excitation: level.value,
+        weakest_direction: level.direction,
+        weakest_window_start: analysis::window_start(problem, table, level.window),
+        remedy,
+    };
+    infeasible(problem, table, inst, started, Vec::new(), vec![shortfall])
+}
+
+/// An infeasible plan with its explanation.
+fn infeasible(
+    problem: &Problem,
+    table: &ExcitationTable,
+    inst: &Instance,
+    started: Instant,
+    source_components: Vec<SourceComponent>,
+    shortfalls: Vec<Shortfall>,
+) -> Plan {
     Plan {
         network: problem.settings.name.clone(),
         status: PlanStatus::Infeasible,
@@ -581,17 +588,8 @@ fn caps_infeasible(
         min_excitation_given: table.min_excitation_given(),
         windows: table.windows().len(),
         links: Vec::new(),
-        source_components: Vec::new(),
-        shortfalls: vec![Shortfall {
-            nodes: tight
-                .iter()
-                .map(|&(_, i)| problem.nodes[i].id.clone())
-                .collect(),
-            excitation: level.value,
-            weakest_direction: level.direction,
-            weakest_window_start: window_start_of(table, level.window),
-            remedy,
-        }],
+        source_components,
+        shortfalls,
         robustness: None,
         rate: None,
         gains_ok: None,
@@ -603,11 +601,6 @@ fn caps_infeasible(
             ..Timings::default()
         },
     }
-}
-
-/// Start time of window `w` (0 when out of range).
-fn window_start_of(table: &ExcitationTable, w: usize) -> f64 {
-    table.windows().get(w).map_or(0.0, |w| w.start)
 }
 
 fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {
@@ -650,9 +643,6 @@ fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfa
         nodes: names,
         excitation: level.value,
         weakest_direction: level.direction,
-        weakest_window_start: table
-            .windows()
-            .get(level.window)
-            .map_or(problem.domain.h0, |w| w.start),
+        weakest_window_start: analysis::window_start(problem, table, level.window),
     }
 }

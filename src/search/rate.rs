@@ -128,11 +128,7 @@ fn keep_caps(problem: &Problem, set: &LinkSet) -> bool {
 
 /// Every unit's weighted in-degree under `set` is within `caps`.
 pub(crate) fn within_caps(problem: &Problem, caps: &[f64], set: &LinkSet) -> bool {
-    let mut degree = vec![0.0f64; problem.n()];
-    for a in problem.arcs(set) {
-        degree[a.to.index()] += a.weight;
-    }
-    degree
+    crate::certify::in_degrees(problem, set)
         .iter()
         .zip(caps)
         .all(|(&d, &c)| super::instance::within(d, c))

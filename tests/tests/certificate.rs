@@ -269,7 +269,7 @@ fn taylor_flow_step_matches_dense_exponential() {
 
 /// A hybrid log: flows sampled every `h` on `[0, end]` with regressor
 /// `f(t)`, and a jump at each of `jumps` (pre-jump regressor `g(k)`).
-fn hybrid_log(
+pub(super) fn hybrid_log(
     p: usize,
     h: f64,
     end: f64,

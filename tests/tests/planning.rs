@@ -101,7 +101,9 @@ pub(super) fn holds(problem: &Problem, table: &ExcitationTable, chosen: &[usize]
         .all(|c| table.level(&c.nodes).value >= table.min_excitation())
 }
 
-fn brute_force(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
+/// The least cost of a link subset that `ok` accepts, by trying every
+/// subset (`None`: none is accepted).
+pub(super) fn cheapest(problem: &Problem, ok: impl Fn(&[usize]) -> bool) -> Option<f64> {
     let m = problem.links.len();
     let mut best: Option<f64> = None;
     for mask in 0u32..(1 << m) {
@@ -110,11 +112,15 @@ fn brute_force(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
         if best.is_some_and(|b| cost >= b) {
             continue;
         }
-        if holds(problem, table, &chosen) {
+        if ok(&chosen) {
             best = Some(cost);
         }
     }
     best
+}
+
+fn brute_force(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
+    cheapest(problem, |chosen| holds(problem, table, chosen))
 }
 
 fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
@@ -507,24 +513,20 @@ fn plans_with_the_helper_thread_are_identical_across_runs() {
 /// Brute force with the in-degree caps of the gain condition: every unit's
 /// weighted in-degree at most (1 − γ_d s_i/2)/δ, s_i = 0 here (no jumps).
 fn brute_force_capped(problem: &Problem, table: &ExcitationTable, cap: f64) -> Option<f64> {
-    let m = problem.links.len();
-    let mut best: Option<f64> = None;
-    for mask in 0u32..(1 << m) {
-        let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
-        let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
-        if best.is_some_and(|b| cost >= b) {
-            continue;
-        }
-        let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
-        let mut degree = vec![0.0; problem.n()];
-        for a in problem.arcs(&set) {
-            degree[a.to.index()] += a.weight;
-        }
-        if degree.iter().all(|&d| d <= cap + 1e-12) && holds(problem, table, &chosen) {
-            best = Some(cost);
-        }
+    cheapest(problem, |chosen| {
+        within_cap(problem, chosen, cap) && holds(problem, table, chosen)
+    })
+}
+
+/// Every unit's weighted in-degree under the links `chosen` is at most
+/// `cap`.
+pub(super) fn within_cap(problem: &Problem, chosen: &[usize], cap: f64) -> bool {
+    let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
+    let mut degree = vec![0.0; problem.n()];
+    for a in problem.arcs(&set) {
+        degree[a.to.index()] += a.weight;
     }
-    best
+    degree.iter().all(|&d| d <= cap + 1e-12)
 }
 
 proptest! {

@@ -2,7 +2,7 @@
 //! force.
 
 use super::fixtures::{Edge, one_root, synthetic};
-use super::planning::{holds, rank_one_grams};
+use super::planning::{cheapest, holds, rank_one_grams, within_cap};
 use exmesh::problem::{LinkId, LinkSet, NodeId};
 use exmesh::search::{self, Options, PlanStatus, Survive};
 use exmesh::topology::Topology;
@@ -56,19 +56,7 @@ fn survives(problem: &Problem, table: &ExcitationTable, chosen: &[usize], s: Sur
 }
 
 fn brute_force(problem: &Problem, table: &ExcitationTable, s: Survive) -> Option<f64> {
-    let m = problem.links.len();
-    let mut best: Option<f64> = None;
-    for mask in 0u32..(1 << m) {
-        let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
-        let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
-        if best.is_some_and(|b| cost >= b) {
-            continue;
-        }
-        if survives(problem, table, &chosen, s) {
-            best = Some(cost);
-        }
-    }
-    best
+    cheapest(problem, |chosen| survives(problem, table, chosen, s))
 }
 
 /// Common practice (no source): on the complete graph K_n with unit-cost
@@ -180,16 +168,6 @@ fn check_against_brute_force(
     Ok(())
 }
 
-/// In-degrees within the cap (weight-1 links).
-fn within_cap(problem: &Problem, chosen: &[usize], cap: f64) -> bool {
-    let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
-    let mut degree = vec![0.0; problem.n()];
-    for a in problem.arcs(&set) {
-        degree[a.to.index()] += a.weight;
-    }
-    degree.iter().all(|&d| d <= cap + 1e-12)
-}
-
 proptest! {
     #![proptest_config(ProptestConfig { cases: 32, ..ProptestConfig::default() })]
 
@@ -204,18 +182,9 @@ proptest! {
         settings.gains.jump_coupling = 0.4;
         let problem = Problem::from_parts(base.path.clone(), settings, base.nodes, base.links).unwrap();
         let got = plan(&problem, &table, Survive::Link);
-        let m = problem.links.len();
-        let mut best: Option<f64> = None;
-        for mask in 0u32..(1 << m) {
-            let chosen: Vec<usize> = (0..m).filter(|&k| mask & (1 << k) != 0).collect();
-            let cost: f64 = chosen.iter().map(|&k| problem.links[k].cost).sum();
-            if best.is_some_and(|b| cost >= b) {
-                continue;
-            }
-            if within_cap(&problem, &chosen, 2.5) && survives(&problem, &table, &chosen, Survive::Link) {
-                best = Some(cost);
-            }
-        }
+        let best = cheapest(&problem, |chosen| {
+            within_cap(&problem, chosen, 2.5) && survives(&problem, &table, chosen, Survive::Link)
+        });
         match best {
             None => prop_assert_eq!(got.status, PlanStatus::Infeasible),
             Some(best) => {

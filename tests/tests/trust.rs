@@ -4,7 +4,7 @@
 //! awkward cases (separate groups, weak coupling, one-way links, jumps at
 //! the horizon's end), plus the gain condition and the tie rule.
 
-use super::certificate::{flow_log, network};
+use super::certificate::{hybrid_log, network};
 use exmesh::certify::propagate::{Schedule, Step};
 use exmesh::certify::{certificate_windows, certify, gain_checks};
 use exmesh::problem::{Ends, Gains, LinkSet, NodeId, Problem};
@@ -15,7 +15,7 @@ use nalgebra::DMatrix;
 use proptest::prelude::*;
 
 /// A hybrid log on [0, 20] (samples every 0.1 s, a new regressor value
-/// every 0.5 s, zero 40 % of the time) with one jump at each of `jumps`.
+/// every 0.5 s, zero 40 % of the time) with one jump at each of `jumps` (increasing).
 fn unit_log(rng: &mut Rng, p: usize, jumps: &[f64]) -> Log {
     let values: Vec<Vec<f64>> = (0..41)
         .map(|_| {
@@ -27,29 +27,14 @@ fn unit_log(rng: &mut Rng, p: usize, jumps: &[f64]) -> Log {
     let kicks: Vec<Vec<f64>> = (0..jumps.len())
         .map(|_| (0..p).map(|_| rng.range(-2.0, 2.0)).collect())
         .collect();
-    let mut log = flow_log(p, 0.1, 20.0, move |t| {
-        values[((t + 1e-9) / 0.5) as usize].clone()
-    });
-    let (mut t, mut j, mut psi) = (Vec::new(), Vec::new(), Vec::new());
-    let mut level = 0u32;
-    for k in 0..log.t.len() {
-        let tk = log.t[k];
-        if let Some(q) = jumps.iter().position(|&s| (s - tk).abs() < 1e-9)
-            && k > 0
-        {
-            t.push(tk);
-            j.push(level);
-            psi.extend_from_slice(&kicks[q]);
-            level += 1;
-        }
-        t.push(tk);
-        j.push(level);
-        psi.extend_from_slice(log.row(k));
-    }
-    log.t = t;
-    log.j = j;
-    log.psi = psi;
-    log
+    hybrid_log(
+        p,
+        0.1,
+        20.0,
+        jumps,
+        move |t| values[((t + 1e-9) / 0.5) as usize].clone(),
+        move |k| kicks[k].clone(),
+    )
 }
 
 /// A random network of n units in `groups` separate groups (a random tree
