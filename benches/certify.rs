@@ -19,7 +19,7 @@ fn benches(c: &mut Criterion) {
     let table = ExcitationTable::build(&demo);
     let options = Options {
         time_limit: Some(Duration::from_secs(10)),
-        progress: false,
+        progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
     let plan = search::plan(&demo, &table, &options);

@@ -32,7 +32,7 @@ fn benches(c: &mut Criterion) {
     let table = ExcitationTable::build(&problem);
     let limited = Options {
         time_limit: Some(Duration::from_secs(10)),
-        progress: false,
+        progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
     let plan = search::plan(&problem, &table, &limited);

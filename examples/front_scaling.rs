@@ -21,7 +21,7 @@ fn main() {
     let started = Instant::now();
     let options = Options {
         time_limit: Some(Duration::from_secs_f64(limit)),
-        progress: true,
+        progress: exmesh::progress::Sink::silent(),
         ..Options::default()
     };
     let front = pareto::front(&problem, &table, &options, None, steps);

@@ -19,7 +19,7 @@ fn main() {
     let build = t.elapsed();
     let options = Options {
         time_limit: Some(Duration::from_secs_f64(limit)),
-        progress: true,
+        progress: exmesh::progress::Sink::silent(),
         node_limit,
         ..Default::default()
     };

@@ -30,7 +30,7 @@ fn main() {
         let table = ExcitationTable::build(&problem);
         let options = Options {
             node_limit: Some(nodes),
-            progress: false,
+            progress: exmesh::progress::Sink::silent(),
             ..Default::default()
         };
         save(
@@ -46,7 +46,7 @@ fn main() {
         save(&dir, &format!("{tag}-check.json"), &check);
         let front = search::pareto::front(&problem, &table, &options, None, 3);
         save(&dir, &format!("{tag}-budget.json"), &front);
-        let stress = search::stress::stress(&problem, &table, &set, n <= 30);
+        let stress = search::stress::stress(&problem, &table, &set, n <= 30, &Default::default());
         save(&dir, &format!("{tag}-stress.json"), &stress);
         let retire = search::replan::retire(&problem, &[NodeId(0), NodeId(3)], &set, &options)
             .map_err(|e| e.to_string());

@@ -1,5 +1,5 @@
 //! Gain-weighted hybrid Gramians per unit and window, excitation levels of
-//! unit sets, and weakest directions (DESIGN §2).
+//! unit sets, and weakest directions (docs/theory.md §3).
 //!
 //! For window w and unit i,
 //! `G_i^w = γ_c ∫_{flows in w} ψψᵀ dt + γ_d Σ_{jumps in w} ψψᵀ/(1+|ψ|²)`;

@@ -1,4 +1,4 @@
-//! Runs the estimators of DESIGN §2 on the recorded logs for a link set and
+//! Runs the estimators of docs/theory.md §1 on the recorded logs for a link set and
 //! compares each unit's error with the certified envelope.
 //!
 //! With a given true parameter the outputs are made as `y_i = ψ_iᵀ θ`, and
@@ -81,10 +81,10 @@ pub struct Trajectory {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum SimError {
     /// A vector of the wrong length.
-    #[error("{what} has {got} values; the problem has {expected} parameters")]
+    #[error("{which} has {got} values; the problem has {expected} parameters")]
     Dimension {
         /// Which vector.
-        what: &'static str,
+        which: Given,
         /// Its length.
         got: usize,
         /// p.
@@ -152,12 +152,30 @@ fn pooled_fit(problem: &Problem, schedule: &Schedule) -> Result<Vec<f64>, SimErr
     Ok(sol.iter().copied().collect())
 }
 
-fn check_len(what: &'static str, v: &[f64], p: usize) -> Result<(), SimError> {
+/// A vector the caller gives to a simulation.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Given {
+    /// [`SimOptions::truth`].
+    Truth,
+    /// [`SimOptions::initial`].
+    Initial,
+}
+
+impl std::fmt::Display for Given {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Given::Truth => "the true parameter",
+            Given::Initial => "the initial estimate",
+        })
+    }
+}
+
+fn check_len(which: Given, v: &[f64], p: usize) -> Result<(), SimError> {
     if v.len() == p {
         Ok(())
     } else {
         Err(SimError::Dimension {
-            what,
+            which,
             got: v.len(),
             expected: p,
         })
@@ -183,10 +201,10 @@ pub fn simulate(
     let n = problem.n();
     let schedule = Schedule::new(problem);
     if let Some(t) = &options.truth {
-        check_len("the true parameter", t, p)?;
+        check_len(Given::Truth, t, p)?;
     }
     if let Some(t) = &options.initial {
-        check_len("the initial estimate", t, p)?;
+        check_len(Given::Initial, t, p)?;
     }
     let (reference, kind) = match &options.truth {
         Some(t) => (t.clone(), Reference::Truth),

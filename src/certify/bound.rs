@@ -89,7 +89,7 @@ pub struct NormBound {
 
 /// A deterministic generator of standard normal numbers (Box–Muller over
 /// the project's splitmix generator).
-struct Gaussian(crate::synth::Rng);
+struct Gaussian(crate::rng::Rng);
 
 impl Gaussian {
     fn vector(&mut self, d: usize) -> Vec<f64> {
@@ -361,7 +361,7 @@ pub fn randomized_norm(
     passes += p;
     let (mut basis, mut images, mut logs, exhausted) =
         (first.basis, first.images, first.image_logs, first.exhausted);
-    let mut gauss = Gaussian(crate::synth::Rng(seed));
+    let mut gauss = Gaussian(crate::rng::Rng(seed));
     let mut upper_sq = f64::INFINITY;
     let (mut lower_sq, mut right) = projected_norm(&basis, &images, &logs);
     if exhausted && basis.len() >= d {

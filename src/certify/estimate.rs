@@ -14,7 +14,7 @@ const DIMENSION: usize = 30;
 
 /// A deterministic starting vector with no special structure.
 pub(crate) fn start_vector(d: usize) -> Vec<f64> {
-    let mut rng = crate::synth::Rng(0x5eed_cafe);
+    let mut rng = crate::rng::Rng(0x5eed_cafe);
     let mut x: Vec<f64> = (0..d).map(|_| rng.uniform() - 0.5).collect();
     normalise(&mut x);
     x

@@ -28,12 +28,12 @@ pub use estimate::window_log_norm;
 use crate::analysis;
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkSet, Problem};
+use crate::progress::Sink;
 use crate::signal::{Window, WindowKind, window_at};
 use bound::NormBound;
 use propagate::{Direction, ErrorSystem, Schedule, Work};
 use rayon::prelude::*;
 use serde::Serialize;
-use std::io::IsTerminal;
 
 /// Windows handled one after another by one thread, each warm-starting the
 /// next one's Lanczos run from its singular vector: at most this many, and
@@ -641,7 +641,7 @@ fn longer_trials(
     system: &ErrorSystem,
     first: Option<Trial>,
     lazy: bool,
-    progress: bool,
+    progress: &Sink,
     seed: u64,
 ) -> (Vec<Trial>, Option<usize>) {
     let Some(first) = first else {
@@ -654,13 +654,13 @@ fn longer_trials(
         if !fits(problem, m) {
             break;
         }
-        if progress {
-            eprint!(
-                "\rcertificate: windows of {} s ({} tried so far)   ",
+        progress.update(|| {
+            format!(
+                "certificate: windows of {} s ({} tried so far)",
                 problem.settings.window * m as f64,
                 trials.len()
-            );
-        }
+            )
+        });
         let Some(mut t) = Trial::new(problem, m, trials.last(), seed) else {
             break;
         };
@@ -732,23 +732,33 @@ struct Block {
 }
 
 /// Certifies one weakly connected block.
-fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed: u64) -> Block {
+fn certify_block(
+    problem: &Problem,
+    system: &ErrorSystem,
+    units: Vec<u32>,
+    seed: u64,
+    sink: &Sink,
+) -> Block {
     let horizon = problem.domain.h1 - problem.domain.h0;
     // A progress line on a terminal when the block is large enough for
     // the certificate to take a while.
-    let progress =
-        std::io::stderr().is_terminal() && system.dim() * problem.domain.grid.len() > 2_000_000;
+    let silent = Sink::silent();
+    let progress = if system.dim() * problem.domain.grid.len() > 2_000_000 {
+        sink
+    } else {
+        &silent
+    };
     let t0 = std::time::Instant::now();
     // The first trial is only sampled while a longer one follows: its exact
     // ρ matters only when the longer window does not improve the rate by
     // 1 %, which a sampled window can rule out.
     let lazy = MULTIPLES.get(1).is_some_and(|&m| fits(problem, m));
-    if progress {
-        eprint!(
-            "\rcertificate: windows of {} s   ",
+    progress.update(|| {
+        format!(
+            "certificate: windows of {} s",
             problem.settings.window * MULTIPLES[0] as f64
-        );
-    }
+        )
+    });
     // On blocks too large for exact norms, T_c is chosen from Lanczos
     // estimates (cheap), and only the chosen trial's windows are bounded.
     let mode = if system.dim() > ESTIMATE_FIRST {
@@ -791,9 +801,7 @@ fn certify_block(problem: &Problem, system: &ErrorSystem, units: Vec<u32>, seed:
             (log, t0.elapsed())
         },
     );
-    if progress {
-        eprintln!();
-    }
+    progress.done();
     let mut block = Block {
         units,
         rate: None,
@@ -924,16 +932,27 @@ fn weak_components(n: usize, arcs: &[(u32, u32, f64)]) -> Vec<Vec<u32>> {
 /// blocks, O(W·S·I·m·(bp + A·p)) with I Lanczos steps and m Taylor terms
 /// for larger ones; windows and blocks run in parallel.
 pub fn certify(problem: &Problem, table: &ExcitationTable, set: &LinkSet) -> Certificate {
-    let schedule = Schedule::new(problem);
-    certify_with(problem, table, &schedule, set)
+    certify_showing(problem, table, set, &Sink::silent())
 }
 
-/// Like [`certify`], with a prepared schedule (for repeated use).
+/// Like [`certify`], reporting the longer blocks' progress to `progress`.
+pub fn certify_showing(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &LinkSet,
+    progress: &Sink,
+) -> Certificate {
+    let schedule = Schedule::new(problem);
+    certify_with(problem, table, &schedule, set, progress)
+}
+
+/// Like [`certify_showing`], with a prepared schedule (for repeated use).
 pub fn certify_with(
     problem: &Problem,
     table: &ExcitationTable,
     schedule: &Schedule,
     set: &LinkSet,
+    progress: &Sink,
 ) -> Certificate {
     let gains = gain_checks(problem, set);
     let gains_ok = gains.iter().all(|g| g.ok);
@@ -997,7 +1016,7 @@ pub fn certify_with(
             let sub = schedule.restrict(&units);
             let system = ErrorSystem::new(&sub, problem.settings.gains, sub_arcs);
             let seed = 0x5eed_cafe_u64 ^ (b as u64 + 1).wrapping_mul(0xA24B_AED4_963E_E407);
-            certify_block(problem, &system, units, seed)
+            certify_block(problem, &system, units, seed, progress)
         })
         .collect();
     // The slowest block: one without a rate first, else the smallest rate

@@ -1,5 +1,5 @@
 //! Exact propagation of the stacked error system over the merged hybrid time
-//! domain (DESIGN §2), forward and adjoint, applied to vectors only.
+//! domain (docs/theory.md §1–2), forward and adjoint, applied to vectors only.
 //!
 //! Flows: `ė = A e` with `A = −(Γ + κ L⊗I_p)` held constant on each interval
 //! of the merged grid; `exp(hA) x` by a truncated Taylor series on substeps
@@ -686,7 +686,7 @@ impl<'a> ErrorSystem<'a> {
 
     /// One step of the estimators themselves (not their errors), driven by
     /// the measurements `y[i]` (unit i's logged outputs, one per log row):
-    /// flows add `γ_c ψ_i y_i`, jumps `γ_d ψ_i y_i/(1+|ψ_i|²)` (DESIGN §2).
+    /// flows add `γ_c ψ_i y_i`, jumps `γ_d ψ_i y_i/(1+|ψ_i|²)` (docs/theory.md §1–2).
     pub fn step_estimates(&self, step: &Step, theta: &mut [f64], y: &[Vec<f64>], work: &mut Work) {
         let n = self.schedule.n;
         let p = self.schedule.p;

@@ -4,7 +4,7 @@
 mod plan_file;
 mod raw;
 
-pub use plan_file::read_link_set;
+pub use plan_file::{PlanFacts, read_link_set, read_plan_file};
 
 use crate::error::{InputError, line_of};
 use crate::signal::{Log, TimeDomain, Window, WindowKind, parse_log, windows};
@@ -36,7 +36,7 @@ impl LinkId {
     }
 }
 
-/// Estimator gains (DESIGN §2).
+/// Estimator gains (docs/theory.md §1).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct Gains {
     /// γ_c, flow gain.

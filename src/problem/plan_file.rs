@@ -11,6 +11,29 @@ use std::path::Path;
 struct RawPlan<'a> {
     #[serde(borrow)]
     links: Vec<&'a RawValue>,
+    // Read leniently: a key of another type is treated as absent.
+    #[serde(default)]
+    status: serde_json::Value,
+    #[serde(default)]
+    cost: serde_json::Value,
+    #[serde(default)]
+    lower_bound: serde_json::Value,
+    #[serde(default)]
+    gap: serde_json::Value,
+}
+
+/// Status, cost, bound and gap of a plan file written by `plan` (each
+/// empty when the file does not carry it).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct PlanFacts {
+    /// `status`.
+    pub status: Option<String>,
+    /// `cost`.
+    pub cost: Option<f64>,
+    /// `lower_bound`.
+    pub lower_bound: Option<f64>,
+    /// `gap`.
+    pub gap: Option<f64>,
 }
 
 #[derive(Deserialize)]
@@ -33,14 +56,24 @@ struct RawPlanLink {
 pub fn read_link_set(problem: &Problem, path: &Path) -> Result<LinkSet, InputError> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| InputError::whole(path, format!("cannot read the plan file: {e}")))?;
-    parse_link_set(problem, path, &text)
+    parse_plan_file(problem, path, &text).map(|(set, _)| set)
 }
 
-pub(crate) fn parse_link_set(
+/// Like [`read_link_set`], with the plan's recorded facts (one parse).
+///
+/// # Errors
+/// As [`read_link_set`].
+pub fn read_plan_file(problem: &Problem, path: &Path) -> Result<(LinkSet, PlanFacts), InputError> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| InputError::whole(path, format!("cannot read the plan file: {e}")))?;
+    parse_plan_file(problem, path, &text)
+}
+
+fn parse_plan_file(
     problem: &Problem,
     path: &Path,
     text: &str,
-) -> Result<LinkSet, InputError> {
+) -> Result<(LinkSet, PlanFacts), InputError> {
     let json_err = |e: serde_json::Error, what: &str| InputError {
         file: path.to_path_buf(),
         line: (e.line() > 0).then_some(e.line()),
@@ -48,6 +81,12 @@ pub(crate) fn parse_link_set(
     };
     let raw: RawPlan = serde_json::from_str(text)
         .map_err(|e| json_err(e, "expected a JSON object with a `links` list"))?;
+    let facts = PlanFacts {
+        status: raw.status.as_str().map(str::to_string),
+        cost: raw.cost.as_f64(),
+        lower_bound: raw.lower_bound.as_f64(),
+        gap: raw.gap.as_f64(),
+    };
     let mut ids = Vec::with_capacity(raw.links.len());
     for entry in raw.links {
         let offset = entry.get().as_ptr() as usize - text.as_ptr() as usize;
@@ -96,5 +135,5 @@ pub(crate) fn parse_link_set(
         })?;
         ids.push(id);
     }
-    Ok(LinkSet::new(ids))
+    Ok((LinkSet::new(ids), facts))
 }

@@ -10,18 +10,7 @@ use crate::search::pareto::Front;
 use crate::simulate::{Reference, Trajectory};
 use std::fmt::Write as _;
 
-/// What the plan file says about itself (when it came from `plan`).
-#[derive(Debug, Clone, Default)]
-pub struct PlanFacts {
-    /// `status`.
-    pub status: Option<String>,
-    /// `cost`.
-    pub cost: Option<f64>,
-    /// `lower_bound`.
-    pub lower_bound: Option<f64>,
-    /// `gap`.
-    pub gap: Option<f64>,
-}
+pub use crate::problem::PlanFacts;
 
 /// Everything the report shows.
 pub struct ReportInput<'a> {
@@ -54,6 +43,61 @@ fn f(v: Option<f64>, digits: usize) -> String {
 
 fn e(v: Option<f64>) -> String {
     v.map_or("—".into(), |x| format!("{x:.4e}"))
+}
+
+/// Runs everything the report of `set` shows (check, certificate,
+/// simulation from `truth` or the pooled fit, and with `front` the budget
+/// sweep, reporting to `progress`) and writes the page.
+///
+/// # Errors
+/// A message when a figure of the front cannot be drawn (a failed
+/// simulation is shown in the page instead).
+pub fn assemble(
+    problem: &crate::problem::Problem,
+    table: &crate::ExcitationTable,
+    set: &crate::problem::LinkSet,
+    facts: PlanFacts,
+    truth: Option<Vec<f64>>,
+    front: bool,
+    progress: &crate::progress::Sink,
+) -> Result<String, String> {
+    use crate::{analysis, certify, simulate};
+    let check = analysis::check(problem, table, set);
+    let cert = certify::certify_showing(problem, table, set, progress);
+    let options = simulate::SimOptions {
+        truth,
+        initial: None,
+    };
+    let simulation = simulate::simulate(problem, set, Some(&cert), &options)
+        .map_err(|e| e.to_string())
+        .and_then(|t| {
+            let svg = super::chart::errors_svg(problem, &t)?;
+            Ok((t, svg))
+        });
+    let check = check.with_certificate(cert);
+    let front = match front {
+        true => {
+            let options = crate::search::Options {
+                progress: progress.clone(),
+                ..Default::default()
+            };
+            let f = crate::search::pareto::front(problem, table, &options, None, 8);
+            let svg = super::chart::front_svg(&f, problem.settings.target_rate)
+                .map_err(|e| format!("drawing the front: {e}"))?;
+            Some((f, svg))
+        }
+        false => None,
+    };
+    let scene = super::map::Scene::new(problem, table, set);
+    Ok(report(&ReportInput {
+        problem,
+        set,
+        check: &check,
+        facts,
+        map_svg: super::map::svg(&scene),
+        simulation,
+        front,
+    }))
 }
 
 /// Renders the report.

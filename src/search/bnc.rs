@@ -7,13 +7,13 @@ use super::cuts::{
 use super::groups;
 use super::heuristics::{exchange, repair};
 use super::instance::{Instance, OracleStats};
+use crate::progress::Sink;
 use microlp::{
     ComparisonOp, LinearExpr, OptimizationDirection, Solution, SolveOutcome, Variable, WarmStart,
 };
 use std::cell::Cell;
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
-use std::io::IsTerminal;
 use std::rc::Rc;
 use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
 use std::sync::{Arc, mpsc};
@@ -346,7 +346,7 @@ struct Search<'a, 'b> {
     stats: SearchStats,
     start: Instant,
     deadline: Option<Instant>,
-    progress: bool,
+    progress: Sink,
     last_progress: Instant,
     /// Objective of the last LP looked at by the cut loop.
     last_objective: f64,
@@ -359,7 +359,7 @@ struct Search<'a, 'b> {
 }
 
 impl<'a, 'b> Search<'a, 'b> {
-    fn new(inst: &'a Instance<'b>, start: Vec<bool>, limits: Limits, progress: bool) -> Self {
+    fn new(inst: &'a Instance<'b>, start: Vec<bool>, limits: Limits, progress: &Sink) -> Self {
         let now = Instant::now();
         Search {
             inst,
@@ -374,7 +374,7 @@ impl<'a, 'b> Search<'a, 'b> {
             stats: SearchStats::default(),
             start: now,
             deadline: limits.deadline,
-            progress: progress && std::io::stderr().is_terminal(),
+            progress: progress.clone(),
             last_progress: now,
             last_objective: f64::NEG_INFINITY,
             shown_bound: f64::NEG_INFINITY,
@@ -571,20 +571,23 @@ impl<'a, 'b> Search<'a, 'b> {
         if let Some(b) = bound {
             self.shown_bound = self.shown_bound.max(b);
         }
-        if !self.progress || self.last_progress.elapsed() < Duration::from_millis(500) {
+        if !self.progress.wants() || self.last_progress.elapsed() < Duration::from_millis(500) {
             return;
         }
         self.last_progress = Instant::now();
         let b = self.shown_bound.max(0.0);
-        eprint!(
-            "\r  {:>6.1} s  nodes {:>6}  rounds {:>6}  rows {:>6}  best {:>12.2}  bound {:>12.2}   ",
-            self.start.elapsed().as_secs_f64(),
-            self.stats.nodes,
-            self.stats.rounds,
-            self.stats.cuts,
-            self.best_cost,
-            b
-        );
+        let (elapsed, stats, best) = (self.start.elapsed(), &self.stats, self.best_cost);
+        self.progress.update(|| {
+            format!(
+                "  {:>6.1} s  nodes {:>6}  rounds {:>6}  rows {:>6}  best {:>12.2}  bound {:>12.2}",
+                elapsed.as_secs_f64(),
+                stats.nodes,
+                stats.rounds,
+                stats.cuts,
+                best,
+                b
+            )
+        });
     }
 }
 
@@ -811,7 +814,7 @@ pub(crate) fn search(
     inst: &Instance,
     start: Vec<bool>,
     limits: Limits,
-    progress: bool,
+    progress: &Sink,
 ) -> SearchResult {
     if !limits.neighbourhood {
         return search_with(inst, start, limits, progress, None);
@@ -822,6 +825,7 @@ pub(crate) fn search(
     let (done, from) = mpsc::channel();
     let stop = Arc::new(AtomicBool::new(false));
     let flag = stop.clone();
+    let sink = progress.clone();
     std::thread::scope(|scope| {
         scope.spawn(move || {
             let sub = Instance::with_oracle(n, links, Rc::new(oracle)).with_caps(caps);
@@ -849,6 +853,7 @@ pub(crate) fn search(
                             &THRESHOLDS,
                             limits.deadline,
                             &flag,
+                            &sink,
                         );
                         // Its LP point, rounded and repaired, starts one
                         // more neighbourhood search (another basin than the
@@ -882,7 +887,7 @@ fn search_with(
     inst: &Instance,
     start: Vec<bool>,
     limits: Limits,
-    progress: bool,
+    progress: &Sink,
     mut helper: Option<Helper>,
 ) -> SearchResult {
     let deadline = limits.deadline;
@@ -1136,9 +1141,7 @@ fn search_with(
             // A relative margin for the LP's tolerances.
             floor = bound_of(inst, g.bound - 1e-9 * g.bound.abs());
             s.stats.group = Some(g);
-            if std::env::var("EXMESH_DEBUG_GROUPS").is_ok() {
-                eprintln!("[groups] {g:?}");
-            }
+            s.progress.debug(|| format!("[groups] {g:?}"));
         }
     }
     let open_bound = heap.iter().map(|n| n.bound).fold(f64::INFINITY, f64::min);
@@ -1151,9 +1154,7 @@ fn search_with(
 }
 
 fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
-    if s.progress {
-        eprintln!();
-    }
+    s.progress.done();
     SearchResult {
         best: s.best,
         lower_bound: lower_bound.min(s.best_cost).min(s.lost.get()),
@@ -1178,7 +1179,7 @@ mod probe {
     pub(super) fn optimum(inst: &Instance) -> SearchResult {
         let all = vec![true; inst.links.len()];
         let greedy = super::super::heuristics::reverse_delete(inst, &all);
-        search(inst, greedy, Limits::default(), false)
+        search(inst, greedy, Limits::default(), &Sink::silent())
     }
 
     /// Diagnostic, run by hand: the root LP point next to the optimum.
@@ -1192,7 +1193,7 @@ mod probe {
         let inst = Instance::new(&problem, &table);
         let opt = optimum(&inst);
         // The root cutting alone, with no incumbent to prune it.
-        let mut s = Search::new(&inst, opt.best.clone(), Limits::default(), false);
+        let mut s = Search::new(&inst, opt.best.clone(), Limits::default(), &Sink::silent());
         s.best_cost = f64::INFINITY;
         s.seed_pool();
         let root = s.root_lp().unwrap();

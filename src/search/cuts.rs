@@ -708,9 +708,9 @@ pub(crate) fn connected_sets(
 mod tests {
     use super::*;
     use crate::excitation::ExcitationTable;
+    use crate::rng::Rng;
     use crate::search::instance::PlanLink;
     use crate::signal::Window;
-    use crate::synth::Rng;
 
     /// The early-stopping scan agrees with the full sum (common practice:
     /// a shortcut is checked against the plain computation): on random rows

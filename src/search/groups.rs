@@ -107,6 +107,7 @@ pub(crate) fn group_bound(
     thresholds: &[f64],
     deadline: Option<Instant>,
     stop: &AtomicBool,
+    sink: &crate::progress::Sink,
 ) -> Option<(GroupStats, Vec<f64>)> {
     let t0 = Instant::now();
     let late =
@@ -117,7 +118,7 @@ pub(crate) fn group_bound(
             d.saturating_duration_since(Instant::now()).min(ROUND_TIME)
         })
     };
-    let debug = std::env::var("EXMESH_DEBUG_GROUPS").is_ok();
+    let debug = sink.wants_debug();
     let n = inst.n;
     let m = inst.links.len();
     let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
@@ -169,13 +170,15 @@ pub(crate) fn group_bound(
         Some(excited)
     });
     if debug {
-        eprintln!(
-            "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
-            sets.len(),
-            columns.len(),
-            t0.elapsed(),
-            if stopped { " (stopped)" } else { "" }
-        );
+        sink.debug(|| {
+            format!(
+                "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
+                sets.len(),
+                columns.len(),
+                t0.elapsed(),
+                if stopped { " (stopped)" } else { "" }
+            )
+        });
     }
     if stopped {
         return None;
@@ -312,7 +315,9 @@ pub(crate) fn group_bound(
                 optimal(p.solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows)))
                     .or_else(|| {
                         if debug {
-                            eprintln!("[groups] warm solve failed after {:.1?}", ts.elapsed());
+                            sink.debug(|| {
+                                format!("[groups] warm solve failed after {:.1?}", ts.elapsed())
+                            });
                         }
                         p.set_time_limit(time_left());
                         optimal(p.solve())
@@ -322,7 +327,7 @@ pub(crate) fn group_bound(
         };
         let Some(sol) = solved else {
             if debug {
-                eprintln!("[groups] round {}: no optimal LP", stats.rounds);
+                sink.debug(|| format!("[groups] round {}: no optimal LP", stats.rounds));
             }
             break;
         };
@@ -450,17 +455,17 @@ pub(crate) fn group_bound(
         take_most(&mut large, NEW_LARGE_ROWS, &mut new_rows);
 
         if debug {
-            eprintln!("[groups] solve {:.2?}", ts.elapsed());
+            sink.debug(|| format!("[groups] solve {:.2?}", ts.elapsed()));
             let xs: Vec<f64> = x.iter().map(|&v| sol.var_value_raw(v)).collect();
-            eprintln!(
+            sink.debug(|| format!(
                 "[groups] large units {:.2} (fractional u {}), columns used {} (fractional {}), z total {:.2}",
                 uv.iter().sum::<f64>(),
                 uv.iter().filter(|&&v| v > TOL && v < 1.0 - TOL).count(),
                 xs.iter().filter(|&&v| v > TOL).count(),
                 xs.iter().filter(|&&v| v > TOL && v < 1.0 - TOL).count(),
                 zv.iter().sum::<f64>()
-            );
-            eprintln!(
+            ));
+            sink.debug(|| format!(
                 "[groups] round {} value {value:.1} least {least:.2} bound {:.1} columns {} (+{}) rows {} (+{}) at {:.1?}",
                 stats.rounds,
                 stats.bound,
@@ -469,7 +474,7 @@ pub(crate) fn group_bound(
                 extras.len(),
                 new_rows.len(),
                 t0.elapsed()
-            );
+            ));
         }
         if !priced.is_empty() {
             // Columns alone this round: the grown basis then stays primal
@@ -584,9 +589,9 @@ fn touching(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: im
 mod tests {
     use super::*;
     use crate::excitation::ExcitationTable;
+    use crate::rng::Rng;
     use crate::search::instance::PlanLink;
     use crate::signal::Window;
-    use crate::synth::Rng;
 
     fn windows(count: usize) -> Vec<Window> {
         (0..count)
@@ -619,6 +624,7 @@ mod tests {
             &[0.999, 0.5, 0.2, 1e-6],
             None,
             &stop,
+            &crate::progress::Sink::silent(),
         )
         .expect("a bound")
         .0
@@ -677,6 +683,7 @@ mod tests {
             &[0.5],
             None,
             &stop,
+            &crate::progress::Sink::silent(),
         )
         .expect("a bound");
         let chosen: Vec<bool> = y.iter().map(|&v| v > 0.5).collect();

@@ -338,7 +338,7 @@ pub(crate) fn within(degree: f64, cap: f64) -> bool {
     degree <= cap + 1e-12 * cap.abs().max(1.0)
 }
 
-/// Which single failure a plan must survive (DESIGN §3, robust variants).
+/// Which single failure a plan must survive (docs/theory.md §9).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Survive {

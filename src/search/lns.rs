@@ -149,7 +149,7 @@ fn reoptimise(
         neighbourhood: false,
         root_deadline: None,
     };
-    let result = search(&sub, start, limits, false);
+    let result = search(&sub, start, limits, &crate::progress::Sink::silent());
     if sub.cost(&result.best) >= before - 1e-9 {
         return None;
     }

@@ -29,8 +29,8 @@ use std::time::{Duration, Instant};
 pub struct Options {
     /// Stop after this long and return the best plan with its gap.
     pub time_limit: Option<Duration>,
-    /// Print a progress line on stderr (only when stderr is a terminal).
-    pub progress: bool,
+    /// Where progress goes (silent by default; the library never prints).
+    pub progress: crate::progress::Sink,
     /// Single failure the plan must survive.
     pub survive: Survive,
     /// Stop after this many branch-and-bound nodes (a deterministic effort
@@ -232,7 +232,7 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             table,
             &Options {
                 survive: Survive::Nothing,
-                progress: false,
+                progress: crate::progress::Sink::silent(),
                 ..options.clone()
             },
         );
@@ -323,7 +323,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             .filter(|_| neighbourhood)
             .map(|d| started + d.mul_f64(ROOT_SHARE)),
     };
-    let result = bnc::search(&inst, greedy, limits, options.progress);
+    let result = bnc::search(&inst, greedy, limits, &options.progress);
     let search_time = started.elapsed() - greedy_time;
     if !inst.holds(&result.best) {
         // No link set within the in-degree caps was found.
@@ -372,7 +372,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             target,
             deadline,
             &keep,
-            options.progress,
+            &options.progress,
         )
     });
     let (mut cost, mut gap) = (Some(cost), Some(gap));

@@ -1,4 +1,4 @@
-//! The cost–rate front (DESIGN §5 step 5): from the structural optimum,
+//! The cost–rate front (docs/theory.md §10): from the structural optimum,
 //! links are added one at a time by estimated certified-rate gain per cost;
 //! every set is certified and the non-dominated ones form the front.
 
@@ -8,9 +8,9 @@ use crate::certify::certify_with;
 use crate::certify::propagate::Schedule;
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, Problem};
+use crate::progress::Sink;
 use rayon::prelude::*;
 use serde::Serialize;
-use std::io::IsTerminal;
 use std::time::Instant;
 
 /// One point of the front.
@@ -95,7 +95,7 @@ pub fn front(
     let ids: Vec<String> = base.links.iter().map(|c| c.id.clone()).collect();
     let mut set = LinkSet::new(set_of(problem, &ids));
     let schedule = Schedule::new(problem);
-    let mut cert = certify_with(problem, table, &schedule, &set);
+    let mut cert = certify_with(problem, table, &schedule, &set, &options.progress);
     out.certified_sets += 1;
     let point = |set: &LinkSet, rate: Option<f64>| FrontPoint {
         cost: problem.cost(set),
@@ -108,7 +108,7 @@ pub fn front(
     };
     let mut visited = vec![point(&set, cert.rate)];
     let mut rejected: Vec<LinkId> = Vec::new();
-    let progress = options.progress && std::io::stderr().is_terminal();
+    let progress = &options.progress;
     let mut step = 0;
     while step < steps && max_cost.is_none_or(|b| base_cost <= b) {
         if deadline.is_some_and(|d| Instant::now() >= d) {
@@ -120,27 +120,25 @@ pub fn front(
             break;
         };
         let trial = with(&set, l);
-        let full = certify_with(problem, table, &schedule, &trial);
+        let full = certify_with(problem, table, &schedule, &trial, &options.progress);
         out.certified_sets += 1;
         if rate_of(&full) > rate_of(&cert) {
             set = trial;
             cert = full;
             visited.push(point(&set, cert.rate));
             step += 1;
-            if progress {
-                eprint!(
-                    "\rfront: {step}/{steps} points, cost {:.2}, rate {:.4e} 1/s   ",
+            progress.update(|| {
+                format!(
+                    "front: {step}/{steps} points, cost {:.2}, rate {:.4e} 1/s",
                     problem.cost(&set),
                     rate_of(&cert)
-                );
-            }
+                )
+            });
         } else {
             rejected.push(l);
         }
     }
-    if progress {
-        eprintln!();
-    }
+    progress.done();
     // Sweep: for each rate reached by the chain, the rate stage of `plan`
     // (additions, then pruning) from the structural plan, in parallel; its
     // pruned sets are often cheaper than the chain's.
@@ -150,7 +148,15 @@ pub fn front(
         let swept: Vec<FrontPoint> = targets
             .par_iter()
             .map(|&t| {
-                let r = meet_target(problem, table, &start, t, deadline, &|_| true, false);
+                let r = meet_target(
+                    problem,
+                    table,
+                    &start,
+                    t,
+                    deadline,
+                    &|_| true,
+                    &Sink::silent(),
+                );
                 point(&r.set, r.certified)
             })
             .collect();

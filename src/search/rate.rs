@@ -1,4 +1,4 @@
-//! Meeting a required convergence rate (DESIGN §5 step 4): from the
+//! Meeting a required convergence rate (docs/theory.md §7): from the
 //! structural optimum, add links by estimated rate gain per cost until the
 //! certified rate reaches the target, then drop links whose removal keeps
 //! it. The structural optimum's lower bound stays valid for the result.
@@ -7,9 +7,9 @@ use crate::certify::propagate::{ErrorSystem, Schedule};
 use crate::certify::{Certificate, certify_with, window_log_norm};
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, Problem};
+use crate::progress::Sink;
 use rayon::prelude::*;
 use serde::Serialize;
-use std::io::IsTerminal;
 use std::time::Instant;
 
 /// Units whose share of the slowest mode makes their links candidates for
@@ -153,13 +153,12 @@ pub fn meet_target(
     target: f64,
     deadline: Option<Instant>,
     keep: &dyn Fn(&LinkSet) -> bool,
-    progress: bool,
+    progress: &Sink,
 ) -> RatePlan {
-    let progress = progress && std::io::stderr().is_terminal();
     let schedule = Schedule::new(problem);
     let structural_cost = problem.cost(start);
     let mut set = start.clone();
-    let mut cert = certify_with(problem, table, &schedule, &set);
+    let mut cert = certify_with(problem, table, &schedule, &set, progress);
     let mut added: Vec<LinkId> = Vec::new();
     let mut rejected: Vec<LinkId> = Vec::new();
     let late = || deadline.is_some_and(|d| Instant::now() >= d);
@@ -174,30 +173,30 @@ pub fn meet_target(
         };
         let current = rate_of(&cert);
         let trial = with(&set, l);
-        let full = certify_with(problem, table, &schedule, &trial);
+        let full = certify_with(problem, table, &schedule, &trial, progress);
         if rate_of(&full) > current {
             set = trial;
             cert = full;
             added.push(l);
-            if progress {
-                eprint!(
-                    "\rrate stage: {} link(s) added, certified {:.4e} of {target:.4e} 1/s   ",
+            progress.update(|| {
+                format!(
+                    "rate stage: {} link(s) added, certified {:.4e} of {target:.4e} 1/s",
                     added.len(),
                     rate_of(&cert)
-                );
-            }
+                )
+            });
         } else {
             rejected.push(l);
         }
     }
-    if !added.is_empty() && progress {
-        eprintln!();
+    if !added.is_empty() {
+        progress.done();
     }
     let mut best_reachable = None;
     if rate_of(&cert) < target && !timed_out {
         // The greedy stalled: is the target reachable at all?
         let all = problem.all_links();
-        let everything = certify_with(problem, table, &schedule, &all);
+        let everything = certify_with(problem, table, &schedule, &all, progress);
         // All candidates at once can break an in-degree cap: then they are
         // neither a start nor a reachable rate.
         let fits = keep_caps(problem, &all);
@@ -258,7 +257,7 @@ pub fn meet_target(
             if !keep(&candidate) {
                 continue;
             }
-            let c = certify_with(problem, table, &schedule, &candidate);
+            let c = certify_with(problem, table, &schedule, &candidate, progress);
             if rate_of(&c) < target {
                 continue;
             }
@@ -334,7 +333,7 @@ fn prune(
         if !keep(&trial) {
             continue;
         }
-        let c = certify_with(problem, table, schedule, &trial);
+        let c = certify_with(problem, table, schedule, &trial, &Sink::silent());
         if rate_of(&c) >= target {
             set = trial;
             cert = c;

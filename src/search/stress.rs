@@ -5,9 +5,9 @@ use crate::analysis;
 use crate::certify::{Certificate, certify};
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, NodeId, Problem};
+use crate::progress::Sink;
 use rayon::prelude::*;
 use serde::Serialize;
-use std::io::IsTerminal;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 /// What fails.
@@ -67,15 +67,18 @@ fn unexcited(c: &analysis::Check) -> Vec<String> {
 /// # Complexity
 /// One structural check per scenario; with `rates`, one certificate per
 /// scenario whose condition holds.
-pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: bool) -> Stress {
+pub fn stress(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &LinkSet,
+    rates: bool,
+    progress: &Sink,
+) -> Stress {
     let total = set.ids().len() + problem.n();
     let done = AtomicUsize::new(0);
-    let progress = std::io::stderr().is_terminal();
     let tick = || {
         let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-        if progress {
-            eprint!("\rstress: {k}/{total} failures checked   ");
-        }
+        progress.update(|| format!("stress: {k}/{total} failures checked"));
     };
     let base = analysis::check(problem, table, set);
     let rate_of = |p: &Problem, t: &ExcitationTable, s: &LinkSet, holds: bool| -> Option<f64> {
@@ -138,9 +141,7 @@ pub fn stress(problem: &Problem, table: &ExcitationTable, set: &LinkSet, rates: 
         })
         .collect();
     scenarios.extend(units);
-    if progress {
-        eprintln!();
-    }
+    progress.done();
     scenarios.sort_by(|a, b| {
         a.condition_holds
             .cmp(&b.condition_holds)

@@ -532,7 +532,7 @@ proptest! {
 
     /// The certificate is a bound: on random small hybrid networks the
     /// simulated stacked error never leaves c·e^{−λt}·|e(0)| (the definition
-    /// of the certificate, DESIGN §4; Khalil, "Nonlinear Systems", 3rd ed.,
+    /// of the certificate, docs/theory.md §6; Khalil, "Nonlinear Systems", 3rd ed.,
     /// 2002, §4.6 for uniform exponential stability from the transition
     /// matrix).
     #[test]
@@ -590,7 +590,7 @@ proptest! {
         prop_assume!(mu > 1e-6 && factor > 0.0);
         let analytic = -0.5 * factor.ln() / t;
         let schedule = Schedule::new(&problem);
-        let c = certify_with(&problem, &table, &schedule, &LinkSet::default());
+        let c = certify_with(&problem, &table, &schedule, &LinkSet::default(), &Default::default());
         let rate = c.rate.expect("a PE unit is certified");
         prop_assert!(rate >= analytic * (1.0 - 1e-9), "{} < {}", rate, analytic);
     }

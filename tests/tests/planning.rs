@@ -380,7 +380,7 @@ fn large_network_plan_is_valid_under_a_time_limit() {
     let table = ExcitationTable::build(&problem);
     let options = Options {
         time_limit: Some(std::time::Duration::from_secs(4)),
-        progress: false,
+        progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
     let p = search::plan(&problem, &table, &options);

@@ -1,0 +1,242 @@
+//! The command line: every flag is checked by its parser here (a bad value
+//! exits 2 through clap, naming the flag and what was expected), and nothing
+//! else.
+
+use clap::{Args, Parser, Subcommand};
+use std::path::PathBuf;
+use std::time::Duration;
+
+#[derive(Parser)]
+#[command(
+    name = "exmesh",
+    version,
+    about = "Plan estimate-sharing links so every unit's hybrid gradient estimator provably converges"
+)]
+pub(crate) struct Cli {
+    #[command(subcommand)]
+    pub(crate) command: Command,
+}
+
+#[derive(Subcommand)]
+pub(crate) enum Command {
+    /// Per-unit excitation: level, weakest direction, rank, flow vs jump share.
+    Excitation {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Cheapest link set that makes every source component excited, with a proven lower bound.
+    Plan {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Write the plan (JSON) to this file.
+        #[arg(long, value_name = "PLAN.json")]
+        out: Option<PathBuf>,
+        /// Stop after this many seconds and return the best plan with its gap.
+        #[arg(long, value_name = "SECONDS", value_parser = seconds)]
+        time_limit: Option<Duration>,
+        /// Plan so that the condition still holds after any one link fails, or any one unit is lost.
+        #[arg(long, value_enum)]
+        survive: Option<SurviveArg>,
+        #[command(flatten)]
+        pictures: Pictures,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Run the estimators on the logs for a plan and compare with the certified rate.
+    Simulate {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list) whose links carry the estimates.
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Write each unit's error norm over time (CSV).
+        #[arg(long, value_name = "TRAJ.csv")]
+        out: Option<PathBuf>,
+        /// Draw the errors and the certified envelope (SVG).
+        #[arg(long, value_name = "ERRORS.svg")]
+        svg: Option<PathBuf>,
+        /// True parameter, comma-separated; outputs are made from it instead of the logged y.
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true, value_parser = vector)]
+        truth: Option<Vector>,
+        /// Initial estimate of every unit, comma-separated (default zero).
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true, value_parser = vector)]
+        initial: Option<Vector>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Cost–rate front: the best certified rate each budget buys.
+    Budget {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Only plans costing at most this much; report the best rate within it.
+        #[arg(long, value_name = "B", value_parser = cost)]
+        max_cost: Option<f64>,
+        /// Most links added beyond the structural optimum.
+        #[arg(long, value_name = "N", default_value_t = 8)]
+        steps: usize,
+        /// Draw the front (SVG).
+        #[arg(long, value_name = "FRONT.svg")]
+        svg: Option<PathBuf>,
+        /// Stop after this many seconds (half for the structural search, half for the sweep).
+        #[arg(long, value_name = "SECONDS", value_parser = seconds)]
+        time_limit: Option<Duration>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Every single link failure and unit loss of a plan: does the condition hold, at what rate?
+    Stress {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list).
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Only the structural check of each failure: skip the certified rates.
+        #[arg(long)]
+        skip_rate: bool,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// One self-contained HTML report of a plan (map, links, components, certificate, errors).
+    Report {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The plan (JSON with a `links` list).
+        #[arg(long, value_name = "PLAN.json")]
+        plan: PathBuf,
+        /// Write the report here.
+        #[arg(long, value_name = "REPORT.html")]
+        out: PathBuf,
+        /// Include the cost–rate front (runs the budget sweep).
+        #[arg(long)]
+        front: bool,
+        /// True parameter for the error figure, comma-separated (else the logged y).
+        #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true, value_parser = vector)]
+        truth: Option<Vector>,
+    },
+    /// Retire units: drop them, their logs and links, and re-plan with the links in place kept free.
+    Retire {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// Unit to retire (repeat for several).
+        #[arg(long = "node", value_name = "ID", required = true)]
+        nodes: Vec<String>,
+        /// The links in place (a plan file); links marked `installed` count too.
+        #[arg(long, value_name = "INSTALLED.json")]
+        plan: Option<PathBuf>,
+        /// Write the new plan (JSON) to this file.
+        #[arg(long, value_name = "PLAN.json")]
+        out: Option<PathBuf>,
+        /// Stop the search after this many seconds.
+        #[arg(long, value_name = "SECONDS", value_parser = seconds)]
+        time_limit: Option<Duration>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Check a link set: are all source components jointly excited?
+    Check {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        #[command(flatten)]
+        links: LinkChoice,
+        #[command(flatten)]
+        pictures: Pictures,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+        /// Only the structural check: skip the certified convergence rate.
+        #[arg(long)]
+        skip_rate: bool,
+    },
+}
+
+#[derive(Args)]
+pub(crate) struct Pictures {
+    /// Draw the map of the links (SVG).
+    #[arg(long = "svg", value_name = "MAP.svg")]
+    pub(crate) map: Option<PathBuf>,
+    /// Write the chosen digraph in Graphviz DOT.
+    #[arg(long, value_name = "FILE.dot")]
+    pub(crate) dot: Option<PathBuf>,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+pub(crate) enum SurviveArg {
+    /// Any one link failing.
+    Link,
+    /// Any one unit lost (its own estimate excepted).
+    Unit,
+}
+
+#[derive(Args)]
+#[group(required = true, multiple = false)]
+pub(crate) struct LinkChoice {
+    /// Every candidate link.
+    #[arg(long)]
+    pub(crate) all: bool,
+    /// Only the links marked `installed`.
+    #[arg(long)]
+    pub(crate) installed: bool,
+    /// The links of a plan file (JSON with a `links` list).
+    #[arg(long, value_name = "FILE")]
+    pub(crate) plan: Option<PathBuf>,
+}
+
+/// `--time-limit`: a positive, finite number of seconds.
+fn seconds(text: &str) -> Result<Duration, String> {
+    match text.trim().parse::<f64>() {
+        Ok(t) if t.is_finite() && t > 0.0 => Ok(Duration::from_secs_f64(t)),
+        _ => Err("expected a positive number of seconds".into()),
+    }
+}
+
+/// `--max-cost`: a finite cost of zero or more.
+fn cost(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(b) if b.is_finite() && b >= 0.0 => Ok(b),
+        _ => Err("expected a cost of zero or more".into()),
+    }
+}
+
+/// A vector given on the command line.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Vector(pub(crate) Vec<f64>);
+
+/// `--truth`, `--initial`: comma-separated finite numbers.
+fn vector(text: &str) -> Result<Vector, String> {
+    let values: Result<Vec<f64>, String> = text
+        .split(',')
+        .map(|v| {
+            v.trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|x| x.is_finite())
+                .ok_or_else(|| format!("expected comma-separated finite numbers, found {v:?}"))
+        })
+        .collect();
+    values.map(Vector)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn flag_values_are_checked_in_their_parsers() {
+        assert_eq!(seconds("1.5"), Ok(Duration::from_millis(1500)));
+        for bad in ["0", "-1", "nan", "inf", "x"] {
+            assert!(seconds(bad).is_err(), "{bad}");
+        }
+        assert_eq!(cost("0"), Ok(0.0));
+        assert!(cost("-1").is_err() && cost("NaN").is_err());
+        assert_eq!(vector("1, -2"), Ok(Vector(vec![1.0, -2.0])));
+        assert!(vector("1,x").unwrap_err().contains("finite numbers"));
+    }
+}

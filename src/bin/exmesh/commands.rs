@@ -1,0 +1,259 @@
+//! One short function per command: load, call the library, hand the answer
+//! to `output`.
+
+use crate::args::{LinkChoice, Pictures, SurviveArg, Vector};
+use crate::output::{
+    FlagError, emit, progress, verdict, write_atomically, write_pictures, write_plan_file,
+};
+use anyhow::Context;
+use exmesh::{ExcitationTable, LinkSet, analysis, certify, problem, report, search, simulate};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::time::Duration;
+
+/// `excitation`: per-unit excitation summary.
+pub(crate) fn excitation(
+    out: &mut impl Write,
+    path: &Path,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let table = ExcitationTable::build(&problem);
+    let summary = analysis::excitation_summary(&problem, &table);
+    emit(out, json, &summary, |o| {
+        report::text::excitation(&summary, o)
+    })
+    .context("writing the excitation summary")?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `plan`: the cheapest link set, its pictures and plan file.
+pub(crate) fn plan(
+    out: &mut impl Write,
+    path: &Path,
+    plan_path: Option<PathBuf>,
+    time_limit: Option<Duration>,
+    survive: Option<SurviveArg>,
+    pictures: &Pictures,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let table = ExcitationTable::build(&problem);
+    let options = search::Options {
+        time_limit,
+        progress: progress(),
+        survive: match survive {
+            None => search::Survive::Nothing,
+            Some(SurviveArg::Link) => search::Survive::Link,
+            Some(SurviveArg::Unit) => search::Survive::Unit,
+        },
+        node_limit: None,
+    };
+    let plan = search::plan(&problem, &table, &options);
+    let feasible = plan.status != search::PlanStatus::Infeasible;
+    // The picture of an infeasible problem shows every candidate.
+    let set = if feasible {
+        plan.link_set(&problem)
+    } else {
+        problem.all_links()
+    };
+    let (map, dot) = (pictures.map.as_deref(), pictures.dot.as_deref());
+    write_pictures(map, dot, &problem, &table, &set)?;
+    write_plan_file(plan_path, &plan)?;
+    emit(out, json, &plan, |o| report::text::plan(&plan, o)).context("writing the plan")?;
+    Ok(verdict(feasible))
+}
+
+/// `budget`: the cost–rate front.
+pub(crate) fn budget(
+    out: &mut impl Write,
+    path: &Path,
+    max_cost: Option<f64>,
+    steps: usize,
+    svg: Option<PathBuf>,
+    time_limit: Option<Duration>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let table = ExcitationTable::build(&problem);
+    let options = search::Options {
+        time_limit,
+        progress: progress(),
+        ..Default::default()
+    };
+    let front = search::pareto::front(&problem, &table, &options, max_cost, steps);
+    if let Some(path) = svg {
+        let text = report::chart::front_svg(&front, problem.settings.target_rate)
+            .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
+        write_atomically(&path, text.as_bytes())
+            .with_context(|| format!("writing the figure to {}", path.display()))?;
+    }
+    emit(out, json, &front, |o| report::text::front(&front, o)).context("writing the front")?;
+    let ok = front.structural_cost.is_some()
+        && (max_cost.is_none() || front.best_within_budget.is_some());
+    Ok(verdict(ok))
+}
+
+/// `stress`: every single failure of a plan.
+pub(crate) fn stress(
+    out: &mut impl Write,
+    path: &Path,
+    plan: &Path,
+    skip_rate: bool,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let set = problem::read_link_set(&problem, plan)?;
+    let table = ExcitationTable::build(&problem);
+    let result = search::stress::stress(&problem, &table, &set, !skip_rate, &progress());
+    emit(out, json, &result, |o| report::text::stress(&result, o))
+        .context("writing the failure report")?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `report`: one HTML page of a plan.
+pub(crate) fn report(
+    out: &mut impl Write,
+    path: &Path,
+    plan: &Path,
+    page: &Path,
+    front: bool,
+    truth: Option<Vector>,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let (set, facts) = problem::read_plan_file(&problem, plan)?;
+    let table = ExcitationTable::build(&problem);
+    let truth = truth.map(|v| v.0);
+    let html = report::html::assemble(&problem, &table, &set, facts, truth, front, &progress())
+        .map_err(anyhow::Error::msg)?;
+    write_atomically(page, html.as_bytes())
+        .with_context(|| format!("writing the report to {}", page.display()))?;
+    writeln!(out, "wrote {}", page.display()).context("writing to standard output")?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `retire`: drop units and re-plan.
+pub(crate) fn retire(
+    out: &mut impl Write,
+    path: &Path,
+    nodes: &[String],
+    plan: Option<&Path>,
+    plan_path: Option<PathBuf>,
+    time_limit: Option<Duration>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let mut units = Vec::new();
+    for name in nodes {
+        let id = problem.node_id(name).ok_or_else(|| FlagError {
+            flag: "--node",
+            message: format!("unknown unit {name:?}; expected one of the problem's [[node]] ids"),
+        })?;
+        if !units.contains(&id) {
+            units.push(id);
+        }
+    }
+    let in_place = match plan {
+        Some(path) => problem::read_link_set(&problem, path)?,
+        None => LinkSet::default(),
+    };
+    let options = search::Options {
+        time_limit,
+        progress: progress(),
+        ..Default::default()
+    };
+    let result = search::replan::retire(&problem, &units, &in_place, &options)
+        .map_err(|e| exmesh::InputError::whole(&problem.path, e.to_string()))?;
+    let feasible = result.plan.status != search::PlanStatus::Infeasible;
+    write_plan_file(plan_path, &result.plan)?;
+    emit(out, json, &result, |o| report::text::retirement(&result, o))
+        .context("writing the re-plan")?;
+    Ok(verdict(feasible))
+}
+
+/// The files `simulate` writes besides its summary.
+pub(crate) struct SimulationFiles {
+    /// The error trajectories (CSV).
+    pub(crate) csv: Option<PathBuf>,
+    /// The error figure (SVG).
+    pub(crate) svg: Option<PathBuf>,
+}
+
+/// `simulate`: run the estimators on the logs for a plan.
+pub(crate) fn simulate(
+    out: &mut impl Write,
+    path: &Path,
+    plan: &Path,
+    files: SimulationFiles,
+    truth: Option<Vector>,
+    initial: Option<Vector>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let set = problem::read_link_set(&problem, plan)?;
+    let table = ExcitationTable::build(&problem);
+    let cert = certify::certify_showing(&problem, &table, &set, &progress());
+    let options = simulate::SimOptions {
+        truth: truth.map(|v| v.0),
+        initial: initial.map(|v| v.0),
+    };
+    let traj = simulate::simulate(&problem, &set, Some(&cert), &options).map_err(|e| {
+        let flag = match &e {
+            simulate::SimError::Dimension { which, .. } => match which {
+                simulate::Given::Truth => "--truth",
+                simulate::Given::Initial => "--initial",
+            },
+            _ => {
+                return anyhow::Error::new(exmesh::InputError::whole(&problem.path, e.to_string()));
+            }
+        };
+        anyhow::Error::new(FlagError {
+            flag,
+            message: e.to_string(),
+        })
+    })?;
+    if let Some(path) = files.csv {
+        let mut bytes = Vec::new();
+        simulate::write_csv(&problem, &traj, &mut bytes)?;
+        write_atomically(&path, &bytes)
+            .with_context(|| format!("writing the trajectory to {}", path.display()))?;
+    }
+    if let Some(path) = files.svg {
+        let text = report::chart::errors_svg(&problem, &traj)
+            .map_err(|e| anyhow::anyhow!("drawing the error figure: {e}"))?;
+        write_atomically(&path, text.as_bytes())
+            .with_context(|| format!("writing the figure to {}", path.display()))?;
+    }
+    emit(out, json, &traj, |o| report::text::simulation(&traj, o))
+        .context("writing the simulation summary")?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `check`: are all source components jointly excited, at what rate?
+pub(crate) fn check(
+    out: &mut impl Write,
+    path: &Path,
+    links: &LinkChoice,
+    pictures: &Pictures,
+    json: bool,
+    skip_rate: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let set: LinkSet = match (links.all, links.installed, &links.plan) {
+        (true, _, _) => problem.all_links(),
+        (_, true, _) => problem.installed_links(),
+        (_, _, Some(plan)) => problem::read_link_set(&problem, plan)?,
+        _ => unreachable!("clap requires one link choice"),
+    };
+    let table = ExcitationTable::build(&problem);
+    let (map, dot) = (pictures.map.as_deref(), pictures.dot.as_deref());
+    write_pictures(map, dot, &problem, &table, &set)?;
+    let mut check = analysis::check(&problem, &table, &set);
+    if !skip_rate {
+        let cert = certify::certify_showing(&problem, &table, &set, &progress());
+        check = check.with_certificate(cert);
+    }
+    emit(out, json, &check, |o| report::text::check(&check, o)).context("writing the check")?;
+    Ok(verdict(check.verdict.ok()))
+}
