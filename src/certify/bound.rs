@@ -68,7 +68,7 @@ const SLACK: f64 = 2e-3;
 
 /// Allowance per propagation substep for truncation (1e−14) and rounding,
 /// relative to the vector's norm.
-const STEP_ERROR: f64 = 2e-13;
+pub const STEP_ERROR: f64 = 2e-13;
 
 /// The bound of one window.
 #[derive(Debug, Clone)]
