@@ -1,5 +1,5 @@
-//! Branch and cut on the covering model, with microlp's incremental LP
-//! (dual simplex after adding rows or fixing variables).
+//! Branch and cut on the covering model, with the LP solver's incremental
+//! solves (dual simplex after adding rows or fixing variables; see `lp`).
 
 use super::cuts::{
     Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
@@ -7,10 +7,8 @@ use super::cuts::{
 use super::groups;
 use super::heuristics::{exchange, repair};
 use super::instance::{Instance, OracleStats};
+use super::lp::{self, Basis, Col, Sense, Solved};
 use crate::progress::Sink;
-use microlp::{
-    ComparisonOp, LinearExpr, OptimizationDirection, Solution, SolveOutcome, Variable, WarmStart,
-};
 use std::cell::Cell;
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
@@ -22,12 +20,12 @@ use std::time::{Duration, Instant};
 /// Counters and timings of a search.
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct SearchStats {
-    pub lp_solves: u64,
+    /// LP solves (and restarts after edits) and their time.
+    pub lp: lp::Clock,
     pub rounds: u64,
     pub nodes: u64,
     pub cuts: u64,
     pub root_bound: f64,
-    pub lp_time: Duration,
     pub separation_time: Duration,
     /// Excitation checks made during separation (inside `separation_time`).
     pub separation_checks: Duration,
@@ -77,9 +75,10 @@ const GROUP_MIN_UNITS: usize = 100;
 const GROUP_SIZE: usize = 6;
 const GROUP_SETS: usize = 500_000;
 
-struct Lp {
-    sol: Solution,
-    vars: Vec<Variable>,
+/// The covering LP of a node: link columns, cap rows and pool rows.
+struct CoverLp {
+    sol: Solved,
+    vars: Vec<Col>,
     /// Pool rows present in this LP.
     has: Vec<bool>,
     /// The same rows in the LP's order (for restarting it from a basis).
@@ -90,12 +89,9 @@ struct Lp {
     lost: Rc<Cell<f64>>,
 }
 
-impl Lp {
+impl CoverLp {
     fn values(&self) -> Vec<f64> {
-        self.vars
-            .iter()
-            .map(|&v| self.sol.var_value_raw(v))
-            .collect()
+        self.vars.iter().map(|&v| self.sol.value(v)).collect()
     }
 
     fn objective(&self) -> f64 {
@@ -105,7 +101,7 @@ impl Lp {
     /// Adds pool rows in one batch (one refactorisation and one dual
     /// simplex pass); `None` as for [`Lp::edit`].
     fn add_all(mut self, rows: &[(usize, &Row)]) -> Option<Self> {
-        let batch: Vec<(LinearExpr, ComparisonOp, f64)> = rows
+        let batch: Vec<lp::NewRow> = rows
             .iter()
             .map(|&(index, row)| {
                 if self.has.len() <= index {
@@ -113,26 +109,23 @@ impl Lp {
                 }
                 self.has[index] = true;
                 self.rows.push(index as u32);
-                let expr: LinearExpr = row
+                let terms = row
                     .links
                     .iter()
                     .map(|&k| (self.vars[k as usize], 1.0))
                     .collect();
-                (expr, ComparisonOp::Ge, row.rhs as f64)
+                (terms, Sense::Ge, row.rhs as f64)
             })
             .collect();
-        self.edit(|sol, _| sol.add_constraints(batch))
+        self.edit(|sol, _| sol.add_rows(batch))
     }
 
     /// Applies an edit to the solved LP: the LP when it solves, `None` when
     /// infeasible or lost (a numerical failure, recorded in `lost` with the
     /// objective before the edit, a bound for everything below it).
-    fn edit(
-        self,
-        change: impl FnOnce(Solution, &[Variable]) -> Result<SolveOutcome, microlp::Error>,
-    ) -> Option<Self> {
+    fn edit(self, change: impl FnOnce(Solved, &[Col]) -> lp::Outcome) -> Option<Self> {
         let before = self.objective();
-        let Lp {
+        let CoverLp {
             sol,
             vars,
             has,
@@ -140,15 +133,15 @@ impl Lp {
             lost,
         } = self;
         match change(sol, &vars) {
-            Ok(SolveOutcome::Solution(sol)) => Some(Lp {
+            lp::Outcome::Solved(sol) => Some(CoverLp {
                 sol,
                 vars,
                 has,
                 rows,
                 lost,
             }),
-            Ok(_) | Err(microlp::Error::Infeasible) => None,
-            Err(_) => {
+            lp::Outcome::NoSolution => None,
+            lp::Outcome::Trouble => {
                 lost.set(lost.get().min(before));
                 None
             }
@@ -156,7 +149,7 @@ impl Lp {
     }
 
     fn fix(self, k: usize, value: bool) -> Option<Self> {
-        self.edit(|sol, vars| sol.fix_var(vars[k], if value { 1.0 } else { 0.0 }))
+        self.edit(|sol, vars| sol.fix(vars[k], if value { 1.0 } else { 0.0 }))
     }
 
     /// Applies fixings together (one dual-simplex pass).
@@ -165,16 +158,16 @@ impl Lp {
             return Some(self);
         }
         self.edit(|sol, vars| {
-            let fixes: Vec<(Variable, f64)> = fixings
+            let fixes: Vec<(Col, f64)> = fixings
                 .iter()
                 .map(|&(k, v)| (vars[k as usize], if v { 1.0 } else { 0.0 }))
                 .collect();
-            sol.fix_vars(&fixes)
+            sol.fix_all(&fixes)
         })
     }
 
     fn duplicate(&self) -> Self {
-        Lp {
+        CoverLp {
             sol: self.sol.clone(),
             vars: self.vars.clone(),
             has: self.has.clone(),
@@ -187,7 +180,7 @@ impl Lp {
     /// (about 10 kB at 150 units, against about 1.5 MB for a copy of the
     /// solver with its matrix and factors).
     fn resume(&self) -> NodeLp {
-        match self.sol.warm_start() {
+        match self.sol.basis() {
             Some(warm) => NodeLp::Warm(Box::new(Resume {
                 rows: self.rows.clone(),
                 warm,
@@ -197,7 +190,7 @@ impl Lp {
     }
 
     fn reduced_cost(&self, k: usize) -> f64 {
-        self.sol.reduced_cost_raw(self.vars[k]).unwrap_or(0.0)
+        self.sol.reduced_cost(self.vars[k])
     }
 
     fn has(&self, index: usize) -> bool {
@@ -229,7 +222,7 @@ enum NodeLp {
 /// An LP's rows (pool indices, in the LP's order) and basis.
 struct Resume {
     rows: Vec<u32>,
-    warm: WarmStart,
+    warm: Basis,
 }
 
 impl Node {
@@ -404,23 +397,16 @@ impl<'a, 'b> Search<'a, 'b> {
     }
 
     /// The root LP over the used pool rows, solved.
-    fn root_lp(&mut self) -> Option<Lp> {
+    fn root_lp(&mut self) -> Option<CoverLp> {
         let used: Vec<u32> = (0..self.pool.rows.len() as u32)
             .filter(|&i| self.pool.used[i as usize])
             .collect();
         // A failure here leaves the search without a bound (the caller's
         // answer), so nothing is recorded in `lost`.
-        let lp = build_lp(
-            self.inst,
-            &self.pool,
-            &used,
-            &[],
-            None,
-            &self.lost,
-            f64::INFINITY,
-        );
-        self.stats.lp_solves += 1;
-        lp
+        let (inst, pool, lost) = (self.inst, &self.pool, &self.lost);
+        self.stats.lp.run(1, || {
+            build_lp(inst, pool, &used, &[], None, lost, f64::INFINITY)
+        })
     }
 
     fn timed_out(&self) -> bool {
@@ -473,7 +459,7 @@ impl<'a, 'b> Search<'a, 'b> {
 
     /// Rows violated by `y` that the LP lacks: first from the pool, then by
     /// separation.
-    fn violated(&mut self, lp: &Lp, y: &[f64], deep: bool) -> Vec<usize> {
+    fn violated(&mut self, lp: &CoverLp, y: &[f64], deep: bool) -> Vec<usize> {
         let t = Instant::now();
         let checks = self.inst.oracle.stats.borrow().time;
         let mut found: Vec<(f64, usize)> = self
@@ -535,7 +521,12 @@ impl<'a, 'b> Search<'a, 'b> {
 
     /// Cuts the node's LP until no violated row is found or the bound passes
     /// the cutoff. Returns the LP (None: infeasible or pruned) and its point.
-    fn cut_loop(&mut self, mut lp: Lp, max_rounds: u32, deep: bool) -> Option<(Lp, Vec<f64>)> {
+    fn cut_loop(
+        &mut self,
+        mut lp: CoverLp,
+        max_rounds: u32,
+        deep: bool,
+    ) -> Option<(CoverLp, Vec<f64>)> {
         let mut rounds = 0;
         loop {
             self.last_objective = lp.objective();
@@ -551,11 +542,8 @@ impl<'a, 'b> Search<'a, 'b> {
             if rows.is_empty() || (rounds >= max_rounds && !integral) || self.timed_out() {
                 return Some((lp, y));
             }
-            let t = Instant::now();
             let batch: Vec<(usize, &Row)> = rows.iter().map(|&i| (i, &self.pool.rows[i])).collect();
-            lp = lp.add_all(&batch)?;
-            self.stats.lp_solves += 1;
-            self.stats.lp_time += t.elapsed();
+            lp = self.stats.lp.run(1, || lp.add_all(&batch))?;
             rounds += 1;
             if rounds % if deep { 25 } else { 5 } == 0 {
                 let y = lp.values();
@@ -599,11 +587,11 @@ fn build_lp(
     pool: &Pool,
     rows: &[u32],
     fixings: &[(u32, bool)],
-    warm: Option<&WarmStart>,
+    warm: Option<&Basis>,
     lost: &Rc<Cell<f64>>,
     bound: f64,
-) -> Option<Lp> {
-    let mut problem = microlp::Problem::new(OptimizationDirection::Minimize);
+) -> Option<CoverLp> {
+    let mut problem = lp::Lp::minimise();
     let mut bounds: Vec<(f64, f64)> = inst
         .links
         .iter()
@@ -613,51 +601,47 @@ fn build_lp(
         let v = if v { 1.0 } else { 0.0 };
         bounds[k as usize] = (v, v);
     }
-    let vars: Vec<Variable> = inst
+    let vars: Vec<Col> = inst
         .links
         .iter()
         .zip(&bounds)
-        .map(|(l, &b)| problem.add_var(l.cost, b))
+        .map(|(l, &(lo, hi))| problem.column(l.cost, lo, hi))
         .collect();
     // The caps: Σ w_k y_k ≤ cap_i at every unit where they can bind
     // (static rows, the same in every LP, ahead of the pool's rows).
     if let Some(caps) = &inst.caps {
         for (i, &cap) in caps.iter().enumerate() {
-            let expr: Vec<(Variable, f64)> = inst.heads[i]
+            let expr: Vec<(Col, f64)> = inst.heads[i]
                 .iter()
                 .map(|&k| (vars[k], inst.links[k].weight_into(i as u32)))
                 .collect();
             let total: f64 = expr.iter().map(|e| e.1).sum();
             if total > cap {
-                problem.add_constraint(expr.as_slice(), ComparisonOp::Le, cap.max(0.0));
+                problem.row(&expr, Sense::Le, cap.max(0.0));
             }
         }
     }
     let mut has = vec![false; pool.rows.len()];
     for &i in rows {
         let i = i as usize;
-        let expr: Vec<(Variable, f64)> = pool.rows[i]
+        let expr: Vec<(Col, f64)> = pool.rows[i]
             .links
             .iter()
             .map(|&k| (vars[k as usize], 1.0))
             .collect();
-        problem.add_constraint(expr.as_slice(), ComparisonOp::Ge, pool.rows[i].rhs as f64);
+        problem.row(&expr, Sense::Ge, pool.rows[i].rhs as f64);
         has[i] = true;
     }
-    let solved = match warm {
-        Some(w) => problem.solve_warm(w),
-        None => problem.solve(),
-    };
-    match solved {
-        Ok(SolveOutcome::Solution(sol)) => Some(Lp {
+    match problem.solve(warm) {
+        lp::Outcome::Solved(sol) => Some(CoverLp {
             sol,
             vars,
             has,
             rows: rows.to_vec(),
             lost: lost.clone(),
         }),
-        Ok(_) | Err(microlp::Error::Infeasible) => None,
-        Err(_) => {
+        lp::Outcome::NoSolution => None,
+        lp::Outcome::Trouble => {
             lost.set(lost.get().min(bound));
             None
         }
@@ -667,7 +651,7 @@ fn build_lp(
 /// The LP rebuilt with only the rows it holds that are tight at its point
 /// (dropping slack rows leaves the optimum unchanged and makes every later
 /// dual-simplex step cheaper).
-fn compact(inst: &Instance, pool: &Pool, lp: Lp) -> Lp {
+fn compact(inst: &Instance, pool: &Pool, lp: CoverLp) -> CoverLp {
     let y = lp.values();
     let tight: Vec<u32> = (0..pool.rows.len() as u32)
         .filter(|&i| lp.has(i as usize) && pool.rows[i as usize].violation(&y) > -1e-7)
@@ -895,12 +879,10 @@ fn search_with(
     // The incumbent changes only when something strictly cheaper is found.
     let start_cost = s.best_cost;
     s.seed_pool();
-    let t = Instant::now();
     let Some(root) = s.root_lp() else {
         // The seed rows are valid, so this only happens on numerical trouble.
         return finish(s, f64::NEG_INFINITY, true);
     };
-    s.stats.lp_time += t.elapsed();
 
     let mut lower = f64::NEG_INFINITY;
     // The root's cutting may stop early to leave time for what follows.
@@ -931,10 +913,7 @@ fn search_with(
     if s.timed_out() {
         return finish(s, lower, true);
     }
-    let t = Instant::now();
-    let master = compact(inst, &s.pool, root);
-    s.stats.lp_time += t.elapsed();
-    s.stats.lp_solves += 1;
+    let master = s.stats.lp.run(1, || compact(inst, &s.pool, root));
 
     // A second bound, from small components as columns, on large two-way
     // networks, computed by the helper thread after its second run. It lifts
@@ -971,28 +950,24 @@ fn search_with(
         }
         let global = node.bound.max(lower);
         s.report(Some(global));
-        let t = Instant::now();
-        let lp = match node.lp {
-            NodeLp::Warm(r) => {
-                s.stats.lp_solves += 1;
-                let (pool, lost) = (&s.pool, &s.lost);
-                build_lp(
-                    inst,
-                    pool,
-                    &r.rows,
-                    &node.fixings,
-                    Some(&r.warm),
-                    lost,
-                    global,
-                )
-            }
-            // Rebuild from the master (which holds every used pool row).
-            NodeLp::Rebuild => {
-                s.stats.lp_solves += node.fixings.len() as u64 + 1;
-                master.duplicate().fix_all(&node.fixings)
-            }
+        let solves = match node.lp {
+            NodeLp::Warm(_) => 1,
+            NodeLp::Rebuild => node.fixings.len() as u64 + 1,
         };
-        s.stats.lp_time += t.elapsed();
+        let (pool, lost) = (&s.pool, &s.lost);
+        let lp = s.stats.lp.run(solves, || match node.lp {
+            NodeLp::Warm(r) => build_lp(
+                inst,
+                pool,
+                &r.rows,
+                &node.fixings,
+                Some(&r.warm),
+                lost,
+                global,
+            ),
+            // Rebuild from the master (which holds every used pool row).
+            NodeLp::Rebuild => master.duplicate().fix_all(&node.fixings),
+        });
         let Some(mut current) = lp else { continue };
         let mut fixings = node.fixings;
         let mut depth = node.depth;
@@ -1038,10 +1013,7 @@ fn search_with(
             }
             let fixed = fixings.len() - start;
             if fixed > 0 {
-                let t = Instant::now();
-                let next = lp.fix_all(&fixings[start..]);
-                s.stats.lp_time += t.elapsed();
-                s.stats.lp_solves += 1;
+                let next = s.stats.lp.run(1, || lp.fix_all(&fixings[start..]));
                 s.stats.fixed_by_cost += fixed as u64;
                 match next {
                     Some(next) => lp = next,
@@ -1097,10 +1069,7 @@ fn search_with(
                     });
                     fixings.push((k as u32, true));
                     depth += 1;
-                    let t = Instant::now();
-                    let next = lp.fix(k, true);
-                    s.stats.lp_time += t.elapsed();
-                    s.stats.lp_solves += 1;
+                    let next = s.stats.lp.run(1, || lp.fix(k, true));
                     let Some(next) = next else { break };
                     // Plunge only while the child stays near the best open
                     // bound; otherwise it waits in the queue with its LP.
@@ -1160,180 +1129,5 @@ fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
         lower_bound: lower_bound.min(s.best_cost).min(s.lost.get()),
         timed_out,
         stats: s.stats,
-    }
-}
-
-#[cfg(test)]
-mod probe {
-    use super::*;
-
-    /// A number from the environment, or `default`.
-    pub(super) fn env_or<T: std::str::FromStr>(name: &str, default: T) -> T {
-        std::env::var(name)
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(default)
-    }
-
-    /// Branch and cut to optimality from the reverse-delete incumbent.
-    pub(super) fn optimum(inst: &Instance) -> SearchResult {
-        let all = vec![true; inst.links.len()];
-        let greedy = super::super::heuristics::reverse_delete(inst, &all);
-        search(inst, greedy, Limits::default(), &Sink::silent())
-    }
-
-    /// Diagnostic, run by hand: the root LP point next to the optimum.
-    #[test]
-    #[ignore]
-    fn root_point_against_optimum() {
-        let n: usize = env_or("PROBE_N", 20);
-        let seed: u64 = env_or("PROBE_SEED", 6);
-        let problem = crate::synth::bench_problem(n, seed, 0.03);
-        let table = crate::ExcitationTable::build(&problem);
-        let inst = Instance::new(&problem, &table);
-        let opt = optimum(&inst);
-        // The root cutting alone, with no incumbent to prune it.
-        let mut s = Search::new(&inst, opt.best.clone(), Limits::default(), &Sink::silent());
-        s.best_cost = f64::INFINITY;
-        s.seed_pool();
-        let root = s.root_lp().unwrap();
-        let (root, y) = s.cut_loop(root, u32::MAX, true).unwrap();
-        eprintln!(
-            "root {:.1} optimum {:.1}",
-            root.objective(),
-            opt.lower_bound
-        );
-        let w = table.windows().len();
-        for v in 0..n {
-            let r: Vec<usize> = (0..w)
-                .map(|k| {
-                    crate::excitation::eigenvalues(
-                        4,
-                        table.gramian(k, crate::problem::NodeId(v as u32)),
-                    )
-                    .iter()
-                    .filter(|&&l| l >= table.min_excitation() / n as f64)
-                    .count()
-                })
-                .collect();
-            eprintln!(
-                "unit {v}: rank min {} max {}",
-                r.iter().min().unwrap(),
-                r.iter().max().unwrap()
-            );
-        }
-        for (k, l) in inst.links.iter().enumerate() {
-            if y[k] > 1e-6 || opt.best[k] {
-                eprintln!(
-                    "link {k:3} {:?} cost {:6.0} y {:.3} opt {}",
-                    l.arcs[0], l.cost, y[k], opt.best[k] as u8
-                );
-            }
-        }
-        for c in inst.source_components(&opt.best) {
-            eprintln!("opt component {c:?}");
-        }
-    }
-}
-
-#[cfg(test)]
-mod grouping_probe {
-    use super::probe::env_or;
-    use super::*;
-
-    /// Diagnostic, run by hand: the set-covering LP over excited connected
-    /// groups of at most `PROBE_K` units (cost = spanning tree of the group)
-    /// next to the root bound and the optimum. Restricted columns make its
-    /// value an upper estimate of the full grouping LP, not a bound.
-    #[test]
-    #[ignore]
-    fn grouping_lp_against_root() {
-        let n: usize = env_or("PROBE_N", 20);
-        let seed: u64 = env_or("PROBE_SEED", 6);
-        let k: usize = env_or("PROBE_K", 6);
-        let problem = crate::synth::bench_problem(n, seed, 0.03);
-        let table = crate::ExcitationTable::build(&problem);
-        let inst = Instance::new(&problem, &table);
-        let opt = super::probe::optimum(&inst);
-        // Excited connected sets up to k units (not grown further once
-        // excited; the loop below adds one attached unit).
-        let mut columns: Vec<(Vec<u32>, f64)> = Vec::new();
-        super::super::cuts::connected_sets(&inst.neighbours(), k, |s| {
-            if !inst.oracle.excited(s) {
-                return true;
-            }
-            // Spanning tree of the group (Kruskal on links inside it).
-            let mut edges: Vec<(f64, u32, u32)> = inst
-                .links
-                .iter()
-                .map(|l| (l.cost, l.arcs[0].0, l.arcs[0].1))
-                .filter(|&(_, a, b)| s.contains(&a) && s.contains(&b))
-                .collect();
-            edges.sort_by(|x, y| x.0.total_cmp(&y.0));
-            let mut comp: Vec<u32> = s.to_vec();
-            let mut cost = 0.0;
-            for (c, a, b) in edges {
-                let ia = s.iter().position(|&x| x == a).unwrap();
-                let ib = s.iter().position(|&x| x == b).unwrap();
-                let (ca, cb) = (comp[ia], comp[ib]);
-                if ca != cb {
-                    cost += c;
-                    comp.iter_mut().for_each(|x| {
-                        if *x == cb {
-                            *x = ca
-                        }
-                    });
-                }
-            }
-            columns.push((s.to_vec(), cost));
-            false
-        });
-        // Also grow excited groups by one unit (rank-0 units must attach).
-        let base: Vec<(Vec<u32>, f64)> = columns.clone();
-        for (s, c) in base {
-            for &v in &s {
-                for l in &inst.links {
-                    let (a, b) = l.arcs[0];
-                    let u = if a == v {
-                        b
-                    } else if b == v {
-                        a
-                    } else {
-                        continue;
-                    };
-                    if !s.contains(&u) {
-                        let mut t = s.clone();
-                        t.push(u);
-                        t.sort_unstable();
-                        columns.push((t, c + l.cost));
-                    }
-                }
-            }
-        }
-        let mut p = microlp::Problem::new(OptimizationDirection::Minimize);
-        let vars: Vec<Variable> = columns
-            .iter()
-            .map(|(_, c)| p.add_var(*c, (0.0, f64::INFINITY)))
-            .collect();
-        for v in 0..n as u32 {
-            let expr: Vec<(Variable, f64)> = columns
-                .iter()
-                .zip(&vars)
-                .filter(|((s, _), _)| s.contains(&v))
-                .map(|(_, &x)| (x, 1.0))
-                .collect();
-            p.add_constraint(expr.as_slice(), ComparisonOp::Ge, 1.0);
-        }
-        let value = match p.solve() {
-            Ok(SolveOutcome::Solution(sol)) => sol.objective(),
-            _ => f64::NAN,
-        };
-        eprintln!(
-            "n {n} seed {seed}: optimum {:.1}, root bound {:.1}, grouping LP over {} columns (groups ≤ {k} units + one attached) {:.1}",
-            opt.lower_bound,
-            opt.stats.root_bound,
-            columns.len(),
-            value
-        );
     }
 }

@@ -29,10 +29,7 @@
 
 use super::cuts::{Pool, grow_separate, separate, support_separate, walk_connected_sets};
 use super::instance::{Instance, Survive, pieces};
-use microlp::{
-    ComparisonOp, OptimizationDirection, Problem, SolveOutcome, TerminationReason, Variable,
-    WarmStart,
-};
+use super::lp::{Basis, Col, Lp, Outcome, Sense, Solved};
 use std::collections::HashSet;
 use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
 use std::time::{Duration, Instant};
@@ -208,7 +205,7 @@ pub(crate) fn group_bound(
     active.iter().for_each(|&c| is_active[c as usize] = true);
     let mut extras: Vec<Extra> = start.iter().map(|&i| Extra::Cut(i as usize)).collect();
     let mut present: HashSet<Extra> = extras.iter().cloned().collect();
-    let mut warm: Option<(WarmStart, usize, usize)> = None;
+    let mut warm: Option<(Basis, usize, usize)> = None;
     let mut last_point: Vec<f64> = Vec::new();
 
     loop {
@@ -218,18 +215,18 @@ pub(crate) fn group_bound(
         stats.rounds += 1;
         // The LP: z (m), u (n), then the active columns; coverage rows,
         // then the extra rows in the order they came.
-        let mut p = Problem::new(OptimizationDirection::Minimize);
-        let z: Vec<Variable> = inst
+        let mut p = Lp::minimise();
+        let z: Vec<Col> = inst
             .links
             .iter()
-            .map(|l| p.add_var(l.cost, (0.0, 1.0)))
+            .map(|l| p.column(l.cost, 0.0, 1.0))
             .collect();
-        let u: Vec<Variable> = (0..n).map(|_| p.add_var(0.0, (0.0, 1.0))).collect();
-        let x: Vec<Variable> = active
+        let u: Vec<Col> = (0..n).map(|_| p.column(0.0, 0.0, 1.0)).collect();
+        let x: Vec<Col> = active
             .iter()
-            .map(|&c| p.add_var(columns[c as usize].cost, (0.0, f64::INFINITY)))
+            .map(|&c| p.column(columns[c as usize].cost, 0.0, f64::INFINITY))
             .collect();
-        let mut cover: Vec<Vec<(Variable, f64)>> = (0..n).map(|i| vec![(u[i], 1.0)]).collect();
+        let mut cover: Vec<Vec<(Col, f64)>> = (0..n).map(|i| vec![(u[i], 1.0)]).collect();
         // by_link[e]: active columns whose tree holds link e.
         let mut by_link: Vec<Vec<u32>> = vec![Vec::new(); m];
         for (j, &c) in active.iter().enumerate() {
@@ -242,11 +239,11 @@ pub(crate) fn group_bound(
             }
         }
         for row in &cover {
-            p.add_constraint(row.as_slice(), ComparisonOp::Eq, 1.0);
+            p.row(row, Sense::Eq, 1.0);
         }
         let mut hits: Vec<f64> = vec![0.0; active.len()];
         for extra in &extras {
-            let mut expr: Vec<(Variable, f64)> = Vec::new();
+            let mut expr: Vec<(Col, f64)> = Vec::new();
             let rhs = match extra {
                 Extra::Cut(r) => {
                     let row = &pool.rows[*r];
@@ -286,7 +283,7 @@ pub(crate) fn group_bound(
                     0.0
                 }
             };
-            p.add_constraint(expr.as_slice(), ComparisonOp::Ge, rhs);
+            p.row(&expr, Sense::Ge, rhs);
         }
         let vars = m + n + active.len();
         let rows = n + extras.len();
@@ -300,19 +297,12 @@ pub(crate) fn group_bound(
         } else {
             limit
         });
-        let optimal = |solved: Result<SolveOutcome, microlp::Error>| match solved {
-            Ok(SolveOutcome::Solution(sol))
-                if sol.termination_reason() == TerminationReason::ProvenOptimal =>
-            {
-                Some(sol)
-            }
-            _ => None,
-        };
+        let optimal = |solved: Outcome| solved.solved().filter(Solved::proven_optimal);
         let ts = Instant::now();
         let solved = match &warm {
             // On trouble from the grown basis, a cold solve in the time left.
             Some((w, old_vars, old_rows)) => {
-                optimal(p.solve_warm(&w.grown(*old_vars, vars - old_vars, rows - old_rows)))
+                optimal(p.solve(Some(&w.grown(*old_vars, vars - old_vars, rows - old_rows))))
                     .or_else(|| {
                         if debug {
                             sink.debug(|| {
@@ -320,10 +310,10 @@ pub(crate) fn group_bound(
                             });
                         }
                         p.set_time_limit(time_left());
-                        optimal(p.solve())
+                        optimal(p.solve(None))
                     })
             }
-            None => optimal(p.solve()),
+            None => optimal(p.solve(None)),
         };
         let Some(sol) = solved else {
             if debug {
@@ -333,7 +323,7 @@ pub(crate) fn group_bound(
         };
         let value = sol.objective();
         let Some(duals) = sol.row_duals() else { break };
-        warm = sol.warm_start().map(|w| (w, vars, rows));
+        warm = sol.basis().map(|w| (w, vars, rows));
 
         // Pricing over every listed column.
         let pi = &duals[..n];
@@ -363,11 +353,11 @@ pub(crate) fn group_bound(
         priced.truncate(NEW_COLUMNS);
 
         // The point, and rows it violates.
-        let zv: Vec<f64> = z.iter().map(|&v| sol.var_value_raw(v)).collect();
-        let uv: Vec<f64> = u.iter().map(|&v| sol.var_value_raw(v)).collect();
+        let zv: Vec<f64> = z.iter().map(|&v| sol.value(v)).collect();
+        let uv: Vec<f64> = u.iter().map(|&v| sol.value(v)).collect();
         let mut y = zv.clone();
         for (j, &c) in active.iter().enumerate() {
-            let xj = sol.var_value_raw(x[j]);
+            let xj = sol.value(x[j]);
             if xj > 0.0 {
                 for &e in &columns[c as usize].tree {
                     y[e as usize] += xj;
@@ -456,7 +446,7 @@ pub(crate) fn group_bound(
 
         if debug {
             sink.debug(|| format!("[groups] solve {:.2?}", ts.elapsed()));
-            let xs: Vec<f64> = x.iter().map(|&v| sol.var_value_raw(v)).collect();
+            let xs: Vec<f64> = x.iter().map(|&v| sol.value(v)).collect();
             sink.debug(|| format!(
                 "[groups] large units {:.2} (fractional u {}), columns used {} (fractional {}), z total {:.2}",
                 uv.iter().sum::<f64>(),

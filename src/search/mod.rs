@@ -11,6 +11,7 @@ mod groups;
 mod heuristics;
 mod instance;
 mod lns;
+mod lp;
 pub mod pareto;
 pub mod rate;
 pub mod replan;
@@ -432,7 +433,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             search: search_time,
             excitation: inst.oracle.stats.borrow().time,
             separation: s.separation_time.saturating_sub(s.separation_checks),
-            solver: s.lp_time,
+            solver: s.lp.time,
             heuristics: s.heuristic_time,
             component_bound: s.group.map_or(Duration::ZERO, |g| g.time),
             rate: rate_time,
@@ -448,7 +449,7 @@ fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> Pla
         rounds: s.map_or(0, |s| s.rounds),
         cuts: s.map_or(0, |s| s.cuts),
         nodes: s.map_or(0, |s| s.nodes),
-        lp_solves: s.map_or(0, |s| s.lp_solves),
+        lp_solves: s.map_or(0, |s| s.lp.solves),
         fixed_by_reduced_cost: s.map_or(0, |s| s.fixed_by_cost),
         excitation_queries: o.queries,
         excitation_scans: o.scans,
