@@ -6,9 +6,6 @@
 //! component, so estimates converge when every source component is excited.
 
 use crate::problem::{Arc, NodeId};
-use petgraph::algo::tarjan_scc;
-use petgraph::graph::{DiGraph, NodeIndex};
-use petgraph::visit::Bfs;
 
 /// A strongly connected component.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -39,27 +36,18 @@ impl Topology {
     ///
     /// # References
     /// Tarjan, "Depth-first search and linear graph algorithms", SIAM J.
-    /// Computing 1(2), 1972 (through petgraph's `tarjan_scc`).
+    /// Computing 1(2), 1972 (through [`scc`]).
     pub fn analyse(n: usize, arcs: &[Arc]) -> Self {
-        let mut g: DiGraph<(), ()> = DiGraph::with_capacity(n, arcs.len());
-        for _ in 0..n {
-            g.add_node(());
-        }
+        let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
         for a in arcs {
-            g.add_edge(
-                NodeIndex::new(a.from.index()),
-                NodeIndex::new(a.to.index()),
-                (),
-            );
+            adj[a.from.index()].push(a.to.0);
         }
-        let mut sccs: Vec<Vec<NodeId>> = tarjan_scc(&g)
-            .into_iter()
-            .map(|c| {
-                let mut v: Vec<NodeId> = c.into_iter().map(|x| NodeId(x.index() as u32)).collect();
-                v.sort();
-                v
-            })
-            .collect();
+        let comp = scc(&adj);
+        let count = comp.iter().map(|&c| c + 1).max().unwrap_or(0);
+        let mut sccs: Vec<Vec<NodeId>> = vec![Vec::new(); count];
+        for (v, &c) in comp.iter().enumerate() {
+            sccs[c].push(NodeId(v as u32));
+        }
         sccs.sort();
         let mut component_of = vec![0; n];
         for (k, c) in sccs.iter().enumerate() {
@@ -82,9 +70,15 @@ impl Topology {
                     Vec::new()
                 } else {
                     let mut seen = vec![false; n];
-                    let mut bfs = Bfs::new(&g, NodeIndex::new(nodes[0].index()));
-                    while let Some(x) = bfs.next(&g) {
-                        seen[x.index()] = true;
+                    let mut queue = vec![nodes[0].index()];
+                    seen[nodes[0].index()] = true;
+                    while let Some(v) = queue.pop() {
+                        for &w in &adj[v] {
+                            if !seen[w as usize] {
+                                seen[w as usize] = true;
+                                queue.push(w as usize);
+                            }
+                        }
                     }
                     (0..n as u32)
                         .map(NodeId)
@@ -108,6 +102,98 @@ impl Topology {
     pub fn sources(&self) -> impl Iterator<Item = &Component> + '_ {
         self.components.iter().filter(|c| c.source)
     }
+}
+
+/// The connected pieces of an undirected graph (each edge listed at both
+/// ends), found breadth-first from the lowest unvisited vertex; members
+/// sorted, pieces in order of their lowest vertex.
+pub(crate) fn pieces(adj: &[Vec<u32>]) -> Vec<Vec<u32>> {
+    let mut seen = vec![false; adj.len()];
+    let mut out = Vec::new();
+    for start in 0..adj.len() {
+        if seen[start] {
+            continue;
+        }
+        seen[start] = true;
+        let mut members = vec![start as u32];
+        let mut i = 0;
+        while i < members.len() {
+            let v = members[i] as usize;
+            i += 1;
+            for &x in &adj[v] {
+                if !seen[x as usize] {
+                    seen[x as usize] = true;
+                    members.push(x);
+                }
+            }
+        }
+        members.sort_unstable();
+        out.push(members);
+    }
+    out
+}
+
+/// Strongly connected components (iterative Tarjan); returns the component
+/// index of each vertex.
+///
+/// # References
+/// Tarjan, "Depth-first search and linear graph algorithms", SIAM J.
+/// Computing 1(2), 1972.
+pub(crate) fn scc(adj: &[Vec<u32>]) -> Vec<usize> {
+    let n = adj.len();
+    const NONE: usize = usize::MAX;
+    let mut index = vec![NONE; n];
+    let mut low = vec![0; n];
+    let mut on_stack = vec![false; n];
+    let mut comp = vec![NONE; n];
+    let mut stack = Vec::new();
+    let mut next = 0;
+    let mut count = 0;
+    let mut call: Vec<(usize, usize)> = Vec::new();
+    for root in 0..n {
+        if index[root] != NONE {
+            continue;
+        }
+        call.push((root, 0));
+        index[root] = next;
+        low[root] = next;
+        next += 1;
+        stack.push(root);
+        on_stack[root] = true;
+        while let Some(&mut (v, ref mut k)) = call.last_mut() {
+            if *k < adj[v].len() {
+                let w = adj[v][*k] as usize;
+                *k += 1;
+                if index[w] == NONE {
+                    index[w] = next;
+                    low[w] = next;
+                    next += 1;
+                    stack.push(w);
+                    on_stack[w] = true;
+                    call.push((w, 0));
+                } else if on_stack[w] {
+                    low[v] = low[v].min(index[w]);
+                }
+            } else {
+                call.pop();
+                if let Some(&(u, _)) = call.last() {
+                    low[u] = low[u].min(low[v]);
+                }
+                if low[v] == index[v] {
+                    loop {
+                        let w = stack.pop().expect("Tarjan stack");
+                        on_stack[w] = false;
+                        comp[w] = count;
+                        if w == v {
+                            break;
+                        }
+                    }
+                    count += 1;
+                }
+            }
+        }
+    }
+    comp
 }
 
 #[cfg(test)]
@@ -135,5 +221,21 @@ mod tests {
     fn isolated_units_are_sources() {
         let t = Topology::analyse(2, &[]);
         assert_eq!(t.sources().count(), 2);
+    }
+}
+
+#[cfg(test)]
+mod scc_tests {
+    use super::scc;
+
+    #[test]
+    fn scc_of_two_cycles_and_a_tail() {
+        let adj = vec![vec![1], vec![0, 2], vec![3], vec![2], vec![]];
+        let c = scc(&adj);
+        assert_eq!(c[0], c[1]);
+        assert_eq!(c[2], c[3]);
+        assert_ne!(c[0], c[2]);
+        assert_ne!(c[4], c[0]);
+        assert_ne!(c[4], c[2]);
     }
 }

@@ -17,40 +17,7 @@
 use super::instance::Instance;
 use std::collections::HashSet;
 
-/// A row `Σ_{k ∈ links} y_k ≥ rhs` over links that are not installed.
-#[derive(Debug, Clone, PartialEq, Eq, Hash)]
-pub(crate) struct Row {
-    pub links: Vec<u32>,
-    pub rhs: u32,
-}
-
-impl Row {
-    pub fn activity(&self, y: &[f64]) -> f64 {
-        self.links.iter().map(|&k| y[k as usize]).sum()
-    }
-
-    pub fn violation(&self, y: &[f64]) -> f64 {
-        self.rhs as f64 - self.activity(y)
-    }
-
-    /// The violation when it exceeds `tol`, else `None`. Stops summing once
-    /// the partial sum reaches the right-hand side: the pool holds thousands
-    /// of rows and most are satisfied well before their last link. (LP
-    /// values are at least about −1e−9, so what the skipped terms could
-    /// subtract stays far below `tol`.)
-    pub fn violated_by(&self, y: &[f64], tol: f64) -> Option<f64> {
-        let rhs = self.rhs as f64;
-        let mut sum = 0.0;
-        for &k in &self.links {
-            sum += y[k as usize];
-            if sum >= rhs {
-                return None;
-            }
-        }
-        let v = rhs - sum;
-        (v > tol).then_some(v)
-    }
-}
+pub(crate) use super::row::Row;
 
 const REST: u32 = u32::MAX;
 
@@ -371,7 +338,7 @@ pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out:
             }
         }
     }
-    let members = super::instance::pieces(&adj);
+    let members = crate::topology::pieces(&adj);
     let mut group = vec![0u32; n];
     for (g, list) in members.iter().enumerate() {
         list.iter().for_each(|&v| group[v as usize] = g as u32);
@@ -540,7 +507,7 @@ fn components_partition(inst: &Instance, chosen: &[bool]) -> Vec<Vec<u32>> {
             adj[a as usize].push(b);
         }
     }
-    let comp = super::instance::scc(&adj);
+    let comp = crate::topology::scc(&adj);
     let count = comp.iter().copied().max().map_or(0, |m| m + 1);
     let mut parts = vec![Vec::new(); count];
     for (v, &c) in comp.iter().enumerate() {

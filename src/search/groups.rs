@@ -28,8 +28,9 @@
 //! at most `n` columns), whether or not the rounds run to the end.
 
 use super::cuts::{Pool, grow_separate, separate, support_separate, walk_connected_sets};
-use super::instance::{Instance, Survive, pieces};
+use super::instance::{Instance, Survive};
 use super::lp::{Basis, Col, Lp, Outcome, Sense, Solved};
+use crate::topology::pieces;
 use std::collections::HashSet;
 use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
 use std::time::{Duration, Instant};

@@ -4,6 +4,7 @@
 
 use crate::excitation::{ExcitationTable, eigenvalues};
 use crate::problem::{NodeId, Problem};
+use crate::topology::{pieces, scc};
 use rayon::prelude::*;
 use rustc_hash::FxHashMap as HashMap;
 use std::cell::RefCell;
@@ -680,7 +681,7 @@ impl<'a> Instance<'a> {
     /// (any one link failing), or one entering link whose tail is not the
     /// lost unit. Installed links count as chosen. `None` when installed
     /// links already satisfy it.
-    pub fn failure_row(&self, set: &[u32], failure: Failure) -> Option<super::cuts::Row> {
+    pub fn failure_row(&self, set: &[u32], failure: Failure) -> Option<super::row::Row> {
         let mut inside = vec![false; self.n];
         set.iter().for_each(|&v| inside[v as usize] = true);
         let (lost, mut rhs) = match failure {
@@ -701,117 +702,9 @@ impl<'a> Instance<'a> {
                 }
             }
         }
-        (rhs > 0).then_some(super::cuts::Row {
+        (rhs > 0).then_some(super::row::Row {
             links,
             rhs: rhs as u32,
         })
-    }
-}
-
-/// The connected pieces of an undirected graph (each edge listed at both
-/// ends), found breadth-first from the lowest unvisited vertex; members
-/// sorted, pieces in order of their lowest vertex.
-pub(crate) fn pieces(adj: &[Vec<u32>]) -> Vec<Vec<u32>> {
-    let mut seen = vec![false; adj.len()];
-    let mut out = Vec::new();
-    for start in 0..adj.len() {
-        if seen[start] {
-            continue;
-        }
-        seen[start] = true;
-        let mut members = vec![start as u32];
-        let mut i = 0;
-        while i < members.len() {
-            let v = members[i] as usize;
-            i += 1;
-            for &x in &adj[v] {
-                if !seen[x as usize] {
-                    seen[x as usize] = true;
-                    members.push(x);
-                }
-            }
-        }
-        members.sort_unstable();
-        out.push(members);
-    }
-    out
-}
-
-/// Strongly connected components (iterative Tarjan); returns the component
-/// index of each vertex.
-///
-/// # References
-/// Tarjan, "Depth-first search and linear graph algorithms", SIAM J.
-/// Computing 1(2), 1972.
-pub(crate) fn scc(adj: &[Vec<u32>]) -> Vec<usize> {
-    let n = adj.len();
-    const NONE: usize = usize::MAX;
-    let mut index = vec![NONE; n];
-    let mut low = vec![0; n];
-    let mut on_stack = vec![false; n];
-    let mut comp = vec![NONE; n];
-    let mut stack = Vec::new();
-    let mut next = 0;
-    let mut count = 0;
-    let mut call: Vec<(usize, usize)> = Vec::new();
-    for root in 0..n {
-        if index[root] != NONE {
-            continue;
-        }
-        call.push((root, 0));
-        index[root] = next;
-        low[root] = next;
-        next += 1;
-        stack.push(root);
-        on_stack[root] = true;
-        while let Some(&mut (v, ref mut k)) = call.last_mut() {
-            if *k < adj[v].len() {
-                let w = adj[v][*k] as usize;
-                *k += 1;
-                if index[w] == NONE {
-                    index[w] = next;
-                    low[w] = next;
-                    next += 1;
-                    stack.push(w);
-                    on_stack[w] = true;
-                    call.push((w, 0));
-                } else if on_stack[w] {
-                    low[v] = low[v].min(index[w]);
-                }
-            } else {
-                call.pop();
-                if let Some(&(u, _)) = call.last() {
-                    low[u] = low[u].min(low[v]);
-                }
-                if low[v] == index[v] {
-                    loop {
-                        let w = stack.pop().expect("Tarjan stack");
-                        on_stack[w] = false;
-                        comp[w] = count;
-                        if w == v {
-                            break;
-                        }
-                    }
-                    count += 1;
-                }
-            }
-        }
-    }
-    comp
-}
-
-#[cfg(test)]
-mod tests {
-    use super::scc;
-
-    #[test]
-    fn scc_of_two_cycles_and_a_tail() {
-        let adj = vec![vec![1], vec![0, 2], vec![3], vec![2], vec![]];
-        let c = scc(&adj);
-        assert_eq!(c[0], c[1]);
-        assert_eq!(c[2], c[3]);
-        assert_ne!(c[0], c[2]);
-        assert_ne!(c[4], c[0]);
-        assert_ne!(c[4], c[2]);
     }
 }

@@ -15,6 +15,7 @@ mod lp;
 pub mod pareto;
 pub mod rate;
 pub mod replan;
+mod row;
 pub mod stress;
 
 use crate::analysis::{self, SourceComponent};
