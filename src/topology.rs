@@ -36,7 +36,7 @@ impl Topology {
     ///
     /// # References
     /// Tarjan, "Depth-first search and linear graph algorithms", SIAM J.
-    /// Computing 1(2), 1972 (through [`scc`]).
+    /// Computing 1(2), 1972 (through the iterative `scc` below).
     pub fn analyse(n: usize, arcs: &[Arc]) -> Self {
         let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
         for a in arcs {

@@ -146,7 +146,7 @@ fn reoptimise(
     let limits = Limits {
         deadline,
         nodes: Some(REGION_NODES),
-        neighbourhood: false,
+        neighbourhood: None,
         root_deadline: None,
     };
     let result = search(&sub, start, limits, &crate::progress::Sink::silent());

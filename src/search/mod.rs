@@ -317,7 +317,7 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
     let limits = bnc::Limits {
         deadline,
         nodes: options.node_limit,
-        neighbourhood,
+        neighbourhood: neighbourhood.then_some(lns::improve as bnc::Improve),
         // Root cutting gets at most ROOT_SHARE of the time limit when
         // neighbourhood search runs.
         root_deadline: options

@@ -1,20 +1,25 @@
 //! Branch and cut on the covering model, with the LP solver's incremental
 //! solves (dual simplex after adding rows or fixing variables; see `lp`).
 
+mod helper;
+mod node;
+mod pseudocosts;
+
 use super::cuts::{
     Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
 };
 use super::groups;
 use super::heuristics::{exchange, repair};
-use super::instance::{Instance, OracleStats};
-use super::lp::{self, Basis, Col, Sense, Solved};
+use super::instance::Instance;
+use super::lp;
 use crate::progress::Sink;
+use helper::{HELPER_NODES, Helper};
+use node::{CoverLp, Node, NodeLp, Origin, build_lp, compact};
+use pseudocosts::Pseudocosts;
 use std::cell::Cell;
-use std::cmp::Ordering;
 use std::collections::BinaryHeap;
 use std::rc::Rc;
-use std::sync::atomic::{AtomicBool, Ordering as AtomicOrdering};
-use std::sync::{Arc, mpsc};
+use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
 /// Counters and timings of a search.
@@ -75,261 +80,10 @@ const GROUP_MIN_UNITS: usize = 100;
 const GROUP_SIZE: usize = 6;
 const GROUP_SETS: usize = 500_000;
 
-/// The covering LP of a node: link columns, cap rows and pool rows.
-struct CoverLp {
-    sol: Solved,
-    vars: Vec<Col>,
-    /// Pool rows present in this LP.
-    has: Vec<bool>,
-    /// The same rows in the LP's order (for restarting it from a basis).
-    rows: Vec<u32>,
-    /// Shared by every LP of one search: the lowest objective of an LP
-    /// lost to a numerical failure of the solver (not to infeasibility).
-    /// Its subtree was not explored, so the final bound may not exceed it.
-    lost: Rc<Cell<f64>>,
-}
-
-impl CoverLp {
-    fn values(&self) -> Vec<f64> {
-        self.vars.iter().map(|&v| self.sol.value(v)).collect()
-    }
-
-    fn objective(&self) -> f64 {
-        self.sol.objective()
-    }
-
-    /// Adds pool rows in one batch (one refactorisation and one dual
-    /// simplex pass); `None` as for [`Lp::edit`].
-    fn add_all(mut self, rows: &[(usize, &Row)]) -> Option<Self> {
-        let batch: Vec<lp::NewRow> = rows
-            .iter()
-            .map(|&(index, row)| {
-                if self.has.len() <= index {
-                    self.has.resize(index + 1, false);
-                }
-                self.has[index] = true;
-                self.rows.push(index as u32);
-                let terms = row
-                    .links
-                    .iter()
-                    .map(|&k| (self.vars[k as usize], 1.0))
-                    .collect();
-                (terms, Sense::Ge, row.rhs as f64)
-            })
-            .collect();
-        self.edit(|sol, _| sol.add_rows(batch))
-    }
-
-    /// Applies an edit to the solved LP: the LP when it solves, `None` when
-    /// infeasible or lost (a numerical failure, recorded in `lost` with the
-    /// objective before the edit, a bound for everything below it).
-    fn edit(self, change: impl FnOnce(Solved, &[Col]) -> lp::Outcome) -> Option<Self> {
-        let before = self.objective();
-        let CoverLp {
-            sol,
-            vars,
-            has,
-            rows,
-            lost,
-        } = self;
-        match change(sol, &vars) {
-            lp::Outcome::Solved(sol) => Some(CoverLp {
-                sol,
-                vars,
-                has,
-                rows,
-                lost,
-            }),
-            lp::Outcome::NoSolution => None,
-            lp::Outcome::Trouble => {
-                lost.set(lost.get().min(before));
-                None
-            }
-        }
-    }
-
-    fn fix(self, k: usize, value: bool) -> Option<Self> {
-        self.edit(|sol, vars| sol.fix(vars[k], if value { 1.0 } else { 0.0 }))
-    }
-
-    /// Applies fixings together (one dual-simplex pass).
-    fn fix_all(self, fixings: &[(u32, bool)]) -> Option<Self> {
-        if fixings.is_empty() {
-            return Some(self);
-        }
-        self.edit(|sol, vars| {
-            let fixes: Vec<(Col, f64)> = fixings
-                .iter()
-                .map(|&(k, v)| (vars[k as usize], if v { 1.0 } else { 0.0 }))
-                .collect();
-            sol.fix_all(&fixes)
-        })
-    }
-
-    fn duplicate(&self) -> Self {
-        CoverLp {
-            sol: self.sol.clone(),
-            vars: self.vars.clone(),
-            has: self.has.clone(),
-            rows: self.rows.clone(),
-            lost: self.lost.clone(),
-        }
-    }
-
-    /// What an open node keeps to restart this LP: its rows and basis
-    /// (about 10 kB at 150 units, against about 1.5 MB for a copy of the
-    /// solver with its matrix and factors).
-    fn resume(&self) -> NodeLp {
-        match self.sol.basis() {
-            Some(warm) => NodeLp::Warm(Box::new(Resume {
-                rows: self.rows.clone(),
-                warm,
-            })),
-            None => NodeLp::Rebuild,
-        }
-    }
-
-    fn reduced_cost(&self, k: usize) -> f64 {
-        self.sol.reduced_cost(self.vars[k])
-    }
-
-    fn has(&self, index: usize) -> bool {
-        self.has.get(index).copied().unwrap_or(false)
-    }
-}
-
-/// An open node: its fixings, the bound inherited from its parent, and
-/// (while memory allows) an LP to start from.
-struct Node {
-    bound: f64,
-    depth: u32,
-    fixings: Vec<(u32, bool)>,
-    lp: NodeLp,
-    /// The branching that made this node: variable, direction, parent LP
-    /// objective and the distance moved (for pseudocosts).
-    origin: Option<Origin>,
-}
-
-/// Where an open node's LP comes from.
-enum NodeLp {
-    /// Rebuilt from the master LP and the node's fixings.
-    Rebuild,
-    /// Rebuilt from the rows and basis of the parent's LP (or of the node's
-    /// own, when a dive stopped there), with the node's fixings as bounds.
-    Warm(Box<Resume>),
-}
-
-/// An LP's rows (pool indices, in the LP's order) and basis.
-struct Resume {
-    rows: Vec<u32>,
-    warm: Basis,
-}
-
-impl Node {
-    /// A node left open at the deadline, to be rebuilt from the master LP.
-    fn reopened(bound: f64, depth: u32, fixings: &[(u32, bool)]) -> Self {
-        Node {
-            bound,
-            depth,
-            fixings: fixings.to_vec(),
-            lp: NodeLp::Rebuild,
-            origin: None,
-        }
-    }
-}
-
-#[derive(Debug, Clone, Copy)]
-struct Origin {
-    var: usize,
-    up: bool,
-    parent_objective: f64,
-    distance: f64,
-}
-
-/// Pseudocosts: average objective gain per unit of distance, per variable
-/// and direction (down, up).
-struct Pseudocosts {
-    sum: Vec<[f64; 2]>,
-    count: Vec<[u32; 2]>,
-}
-
-impl Pseudocosts {
-    fn new(m: usize) -> Self {
-        Pseudocosts {
-            sum: vec![[0.0; 2]; m],
-            count: vec![[0; 2]; m],
-        }
-    }
-
-    fn record(&mut self, o: Origin, objective: f64) {
-        let gain = (objective - o.parent_objective).max(0.0) / o.distance.max(1e-6);
-        let d = usize::from(o.up);
-        self.sum[o.var][d] += gain;
-        self.count[o.var][d] += 1;
-    }
-
-    fn mean(&self, d: usize) -> Option<f64> {
-        let (s, c) = self
-            .sum
-            .iter()
-            .zip(&self.count)
-            .fold((0.0, 0u32), |(s, c), (x, n)| (s + x[d], c + n[d]));
-        (c > 0).then(|| s / c as f64)
-    }
-
-    /// Branching variable by the product rule on pseudocosts (variables
-    /// never branched on take the mean, or their cost before any record).
-    fn choose(&self, inst: &Instance, y: &[f64]) -> Option<usize> {
-        let means = [self.mean(0), self.mean(1)];
-        let mut best: Option<(f64, usize)> = None;
-        for (k, &v) in y.iter().enumerate() {
-            if v.min(1.0 - v) <= INT_TOL {
-                continue;
-            }
-            let estimate = |d: usize| {
-                if self.count[k][d] > 0 {
-                    self.sum[k][d] / self.count[k][d] as f64
-                } else {
-                    means[d].unwrap_or(inst.links[k].cost + 1.0)
-                }
-            };
-            let down = (estimate(0) * v).max(1e-6);
-            let up = (estimate(1) * (1.0 - v)).max(1e-6);
-            let score = down * up;
-            if best.is_none_or(|(s, _)| score > s) {
-                best = Some((score, k));
-            }
-        }
-        best.map(|(_, k)| k)
-    }
-}
-
 /// Open nodes that keep the rows and basis of their LP (about 10 kB each
 /// at 150 units); beyond this, nodes are rebuilt from the master LP and
 /// their fixings.
 const STORED_LPS: usize = 50_000;
-
-impl PartialEq for Node {
-    fn eq(&self, other: &Self) -> bool {
-        self.cmp(other) == Ordering::Equal
-    }
-}
-impl Eq for Node {}
-impl PartialOrd for Node {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
-    }
-}
-impl Ord for Node {
-    // BinaryHeap pops the greatest: smallest bound first, then deepest.
-    fn cmp(&self, other: &Self) -> Ordering {
-        other
-            .bound
-            .total_cmp(&self.bound)
-            .then(self.depth.cmp(&other.depth))
-            .then_with(|| other.fixings.cmp(&self.fixings))
-    }
-}
 
 struct Search<'a, 'b> {
     inst: &'a Instance<'b>,
@@ -347,7 +101,7 @@ struct Search<'a, 'b> {
     /// LP value while the root is cut, then the smallest open node bound.
     shown_bound: f64,
     node_limit: Option<u64>,
-    /// See [`Lp::lost`].
+    /// See [`CoverLp::lost`].
     lost: Rc<Cell<f64>>,
 }
 
@@ -579,91 +333,6 @@ impl<'a, 'b> Search<'a, 'b> {
     }
 }
 
-/// A fresh LP with the given pool rows and fixings, solved from scratch or
-/// from a basis of an LP with the same rows. A numerical failure of the
-/// solver (not infeasibility) records `bound` in `lost` (see [`Lp::lost`]).
-fn build_lp(
-    inst: &Instance,
-    pool: &Pool,
-    rows: &[u32],
-    fixings: &[(u32, bool)],
-    warm: Option<&Basis>,
-    lost: &Rc<Cell<f64>>,
-    bound: f64,
-) -> Option<CoverLp> {
-    let mut problem = lp::Lp::minimise();
-    let mut bounds: Vec<(f64, f64)> = inst
-        .links
-        .iter()
-        .map(|l| (if l.installed { 1.0 } else { 0.0 }, 1.0))
-        .collect();
-    for &(k, v) in fixings {
-        let v = if v { 1.0 } else { 0.0 };
-        bounds[k as usize] = (v, v);
-    }
-    let vars: Vec<Col> = inst
-        .links
-        .iter()
-        .zip(&bounds)
-        .map(|(l, &(lo, hi))| problem.column(l.cost, lo, hi))
-        .collect();
-    // The caps: Σ w_k y_k ≤ cap_i at every unit where they can bind
-    // (static rows, the same in every LP, ahead of the pool's rows).
-    if let Some(caps) = &inst.caps {
-        for (i, &cap) in caps.iter().enumerate() {
-            let expr: Vec<(Col, f64)> = inst.heads[i]
-                .iter()
-                .map(|&k| (vars[k], inst.links[k].weight_into(i as u32)))
-                .collect();
-            let total: f64 = expr.iter().map(|e| e.1).sum();
-            if total > cap {
-                problem.row(&expr, Sense::Le, cap.max(0.0));
-            }
-        }
-    }
-    let mut has = vec![false; pool.rows.len()];
-    for &i in rows {
-        let i = i as usize;
-        let expr: Vec<(Col, f64)> = pool.rows[i]
-            .links
-            .iter()
-            .map(|&k| (vars[k as usize], 1.0))
-            .collect();
-        problem.row(&expr, Sense::Ge, pool.rows[i].rhs as f64);
-        has[i] = true;
-    }
-    match problem.solve(warm) {
-        lp::Outcome::Solved(sol) => Some(CoverLp {
-            sol,
-            vars,
-            has,
-            rows: rows.to_vec(),
-            lost: lost.clone(),
-        }),
-        lp::Outcome::NoSolution => None,
-        lp::Outcome::Trouble => {
-            lost.set(lost.get().min(bound));
-            None
-        }
-    }
-}
-
-/// The LP rebuilt with only the rows it holds that are tight at its point
-/// (dropping slack rows leaves the optimum unchanged and makes every later
-/// dual-simplex step cheaper).
-fn compact(inst: &Instance, pool: &Pool, lp: CoverLp) -> CoverLp {
-    let y = lp.values();
-    let tight: Vec<u32> = (0..pool.rows.len() as u32)
-        .filter(|&i| lp.has(i as usize) && pool.rows[i as usize].violation(&y) > -1e-7)
-        .collect();
-    if tight.len() * 3 >= 2 * lp.rows.len() {
-        return lp;
-    }
-    let lost = lp.lost.clone();
-    // On failure the uncompacted LP goes on, so nothing is lost.
-    build_lp(inst, pool, &tight, &[], None, &lost, f64::INFINITY).unwrap_or(lp)
-}
-
 fn bound_of(inst: &Instance, obj: f64) -> f64 {
     if inst.integral_costs {
         (obj - 1e-6).ceil()
@@ -672,8 +341,6 @@ fn bound_of(inst: &Instance, obj: f64) -> f64 {
     }
 }
 
-/// Runs branch and cut from the incumbent `start` (which satisfies the
-/// condition), until optimality is proven or the deadline passes.
 /// When a search stops.
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct Limits {
@@ -681,187 +348,32 @@ pub(crate) struct Limits {
     pub deadline: Option<Instant>,
     /// Most branch-and-bound nodes (deterministic stop for sub-searches).
     pub nodes: Option<u64>,
-    /// Run neighbourhood search on the incumbent after the root.
-    pub neighbourhood: bool,
+    /// Neighbourhood search to run on a second thread on the incumbent
+    /// (see [`Helper`]); `None`: none.
+    pub neighbourhood: Option<Improve>,
     /// When the root's cutting stops (its LP value is still a bound).
     pub root_deadline: Option<Instant>,
 }
 
-/// Work on a second thread, with its own excitation oracle (the oracle's
-/// caches are not shared between threads): neighbourhood search from the
-/// starting incumbent while the root is cut, and from the incumbent after
-/// the root while branch and bound goes on; then, on large two-way
-/// networks, the bound from small components as columns and a
-/// neighbourhood search from its LP point. The search takes each result at
-/// a fixed point (after the root; after [`HELPER_NODES`] nodes or when the
-/// tree is done; the bound when the tree is done), waiting for it if need
-/// be, so the plan does not depend on timing unless the deadline stops the
-/// work.
-struct Helper {
-    to: mpsc::Sender<Job>,
-    from: mpsc::Receiver<Done>,
-    stop: Arc<AtomicBool>,
-    /// A run was started and its result not taken yet.
-    pending: bool,
-    /// A bound was asked for and not taken yet.
-    bound_pending: bool,
-}
+/// A neighbourhood search: the best plan it finds from an incumbent,
+/// within the deadline, stopping early when the flag is raised.
+pub(crate) type Improve = fn(&Instance, &[bool], Option<Instant>, &AtomicBool) -> Vec<bool>;
 
-/// Work for the helper thread, done in the order sent.
-enum Job {
-    /// Neighbourhood search from this incumbent.
-    Improve(Vec<bool>),
-    /// The bound from small components as columns: the pool's rows, and
-    /// those of the LP to start from.
-    Bound(Vec<Row>, Vec<u32>),
-}
-
-/// A finished job: its result (the bound's job: the bound and the plan
-/// from its neighbourhood search), time and excitation-check counts.
-enum Done {
-    Improved(Vec<bool>, Duration, OracleStats),
-    Bound(Option<groups::GroupStats>, Option<Vec<bool>>, OracleStats),
-}
-
-/// Branch-and-bound nodes after which the second neighbourhood search's
-/// result is taken.
-const HELPER_NODES: u64 = 100;
-
-impl Helper {
-    /// The next finished job; `cancel` asks the work to stop first.
-    fn receive(&mut self, cancel: bool) -> Option<Done> {
-        if cancel {
-            self.stop.store(true, AtomicOrdering::Relaxed);
-        }
-        self.from.recv().ok()
-    }
-
-    fn start(&mut self, from: &[bool]) {
-        if self.to.send(Job::Improve(from.to_vec())).is_ok() {
-            self.pending = true;
-        }
-    }
-
-    fn start_bound(&mut self, rows: Vec<Row>, start: Vec<u32>) {
-        if self.to.send(Job::Bound(rows, start)).is_ok() {
-            self.bound_pending = true;
-        }
-    }
-
-    /// Waits for the asked bound (after any pending run, see
-    /// [`Helper::take`]); `cancel` as there.
-    fn take_bound(&mut self, s: &mut Search, cancel: bool) -> Option<groups::GroupStats> {
-        if !std::mem::take(&mut self.bound_pending) {
-            return None;
-        }
-        match self.receive(cancel) {
-            // A stopped computation's figures depend on when it stopped:
-            // they are left out, so that the output stays deterministic.
-            Some(Done::Bound(group, plan, checks)) if !cancel => {
-                s.inst.oracle.stats.borrow_mut().add(&checks);
-                if let Some(plan) = plan {
-                    s.offer(plan);
-                }
-                group
-            }
-            _ => None,
-        }
-    }
-
-    /// Waits for the pending run and offers its result; `cancel` asks the
-    /// run to stop first (only when its result can no longer matter).
-    fn take(&mut self, s: &mut Search, cancel: bool) {
-        if !std::mem::take(&mut self.pending) {
-            return;
-        }
-        if let Some(Done::Improved(improved, time, checks)) = self.receive(cancel) {
-            // Both summed over the two threads. A stopped run's check
-            // counts depend on when it stopped; they are left out so that
-            // the reported figures stay deterministic.
-            s.stats.heuristic_time += time;
-            if !cancel {
-                s.inst.oracle.stats.borrow_mut().add(&checks);
-            }
-            s.offer(improved);
-        }
-    }
-}
-
-impl Drop for Helper {
-    fn drop(&mut self) {
-        // An early return: the thread's work is no longer wanted.
-        self.stop.store(true, AtomicOrdering::Relaxed);
-    }
-}
-
+/// Runs branch and cut from the incumbent `start` (which satisfies the
+/// condition), until optimality is proven or the limits stop it; with a
+/// neighbourhood search in `limits`, a second thread runs it (see
+/// [`Helper`]).
 pub(crate) fn search(
     inst: &Instance,
     start: Vec<bool>,
     limits: Limits,
     progress: &Sink,
 ) -> SearchResult {
-    if !limits.neighbourhood {
+    let Some(improve) = limits.neighbourhood else {
         return search_with(inst, start, limits, progress, None);
-    }
-    let oracle = inst.oracle.fresh();
-    let (n, links, caps) = (inst.n, inst.links.clone(), inst.caps.clone());
-    let (to, jobs) = mpsc::channel::<Job>();
-    let (done, from) = mpsc::channel();
-    let stop = Arc::new(AtomicBool::new(false));
-    let flag = stop.clone();
-    let sink = progress.clone();
+    };
     std::thread::scope(|scope| {
-        scope.spawn(move || {
-            let sub = Instance::with_oracle(n, links, Rc::new(oracle)).with_caps(caps);
-            for job in jobs {
-                let t = Instant::now();
-                let result = match job {
-                    Job::Improve(from) => {
-                        let improved = super::lns::improve(&sub, &from, limits.deadline, &flag);
-                        let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
-                        Done::Improved(improved, t.elapsed(), checks)
-                    }
-                    Job::Bound(rows, start) => {
-                        // The pool's rows are distinct, so they keep their
-                        // indices.
-                        let mut pool = Pool::default();
-                        rows.into_iter().for_each(|r| {
-                            pool.add(r);
-                        });
-                        let group = groups::group_bound(
-                            &sub,
-                            &mut pool,
-                            &start,
-                            GROUP_SIZE,
-                            GROUP_SETS,
-                            &THRESHOLDS,
-                            limits.deadline,
-                            &flag,
-                            &sink,
-                        );
-                        // Its LP point, rounded and repaired, starts one
-                        // more neighbourhood search (another basin than the
-                        // root's roundings).
-                        let plan = group
-                            .as_ref()
-                            .and_then(|(_, y)| repair(&sub, y))
-                            .map(|start| super::lns::improve(&sub, &start, limits.deadline, &flag));
-                        let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
-                        Done::Bound(group.map(|(g, _)| g), plan, checks)
-                    }
-                };
-                if done.send(result).is_err() {
-                    break;
-                }
-            }
-        });
-        let mut helper = Helper {
-            to,
-            from,
-            stop,
-            pending: false,
-            bound_pending: false,
-        };
+        let mut helper = Helper::spawn(scope, inst, limits, improve, progress);
         helper.start(&start);
         search_with(inst, start, limits, progress, Some(helper))
     })
