@@ -4,7 +4,7 @@
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use exmesh::certify::certify;
-use exmesh::search::{self, Options};
+use exmesh::plan::{self, Options};
 use exmesh::{ExcitationTable, problem, synth};
 use std::hint::black_box;
 use std::path::Path;
@@ -22,7 +22,7 @@ fn benches(c: &mut Criterion) {
         progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
-    let plan = search::plan(&demo, &table, &options);
+    let plan = plan::plan(&demo, &table, &options);
     let set = plan.link_set(&demo);
     group.bench_function("delta demo, structural plan (40 units, p = 4)", |b| {
         b.iter(|| certify(black_box(&demo), &table, &set))

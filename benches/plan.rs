@@ -6,7 +6,7 @@
 //! instances; 150 units under a 10 s limit, reporting the gap reached).
 
 use criterion::{Criterion, criterion_group, criterion_main};
-use exmesh::search::{self, Options, PlanStatus};
+use exmesh::plan::{self, Options, PlanStatus};
 use exmesh::{ExcitationTable, synth};
 use std::hint::black_box;
 use std::time::Duration;
@@ -18,14 +18,14 @@ fn benches(c: &mut Criterion) {
     for seed in [1u64, 2, 3, 4, 5] {
         let problem = synth::bench_problem(50, seed, 0.03);
         let table = ExcitationTable::build(&problem);
-        let plan = search::plan(&problem, &table, &Options::default());
+        let plan = plan::plan(&problem, &table, &Options::default());
         assert_eq!(plan.status, PlanStatus::Optimal);
         eprintln!(
             "50 units, seed {seed}: optimum {:?}, root LP bound {:.0}",
             plan.cost, plan.stats.root_lp_bound
         );
         group.bench_function(format!("50 units seed {seed} to optimality"), |b| {
-            b.iter(|| search::plan(black_box(&problem), &table, &Options::default()))
+            b.iter(|| plan::plan(black_box(&problem), &table, &Options::default()))
         });
     }
     let problem = synth::bench_problem(150, 1, 0.03);
@@ -35,13 +35,13 @@ fn benches(c: &mut Criterion) {
         progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
-    let plan = search::plan(&problem, &table, &limited);
+    let plan = plan::plan(&problem, &table, &limited);
     eprintln!(
         "150 units, seed 1, 10 s: cost {:?}, bound {:?}, gap {:?}",
         plan.cost, plan.lower_bound, plan.gap
     );
     group.bench_function("150 units seed 1 with a 10 s limit", |b| {
-        b.iter(|| search::plan(black_box(&problem), &table, &limited))
+        b.iter(|| plan::plan(black_box(&problem), &table, &limited))
     });
     group.finish();
 

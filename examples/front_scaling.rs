@@ -1,7 +1,8 @@
 //! Times the cost–rate front on the planning benchmark with a 10 s window
 //! stride: `cargo run --release --example front_scaling -- N SEED LIMIT STEPS`
 //! (defaults 150 1 300 8).
-use exmesh::search::{Options, pareto};
+use exmesh::plan::Options;
+use exmesh::whatif::budget;
 use exmesh::{ExcitationTable, Problem, synth};
 use std::time::{Duration, Instant};
 
@@ -24,7 +25,7 @@ fn main() {
         progress: exmesh::progress::Sink::silent(),
         ..Options::default()
     };
-    let front = pareto::front(&problem, &table, &options, None, steps);
+    let front = budget::front(&problem, &table, &options, None, steps);
     println!(
         "n={n} seed={seed}: structural {:?} (bound {:?}), {} front points, {} sets certified, timed out {}, {:.2?}",
         front.structural_cost,

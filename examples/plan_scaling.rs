@@ -2,7 +2,7 @@
 //! line per instance: `cargo run --release --example plan_scaling -- N SEED
 //! [TIME_LIMIT_S] [MU_FRACTION] [NODE_LIMIT]`.
 
-use exmesh::search::{self, Options};
+use exmesh::plan::{self, Options};
 use exmesh::{ExcitationTable, synth};
 use std::time::{Duration, Instant};
 
@@ -24,7 +24,7 @@ fn main() {
         ..Default::default()
     };
     let t = Instant::now();
-    let plan = search::plan(&problem, &table, &options);
+    let plan = plan::plan(&problem, &table, &options);
     let s = &plan.stats;
     let tm = &plan.timings;
     println!(

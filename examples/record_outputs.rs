@@ -6,8 +6,8 @@
 //! `diff -r` two recordings. The demos are recorded through the binary
 //! (see DEVELOPERS.md).
 
+use exmesh::plan::{self, Options};
 use exmesh::problem::NodeId;
-use exmesh::search::{self, Options};
 use exmesh::{ExcitationTable, analysis, certify, report, simulate, synth};
 use std::path::{Path, PathBuf};
 
@@ -38,18 +38,20 @@ fn main() {
             &format!("{tag}-excitation.json"),
             &analysis::excitation_summary(&problem, &table),
         );
-        let plan = search::plan(&problem, &table, &options);
+        let plan = plan::plan(&problem, &table, &options);
         save(&dir, &format!("{tag}-plan.json"), &plan);
         let set = plan.link_set(&problem);
         let cert = certify::certify(&problem, &table, &set);
         let check = analysis::check(&problem, &table, &set).with_certificate(cert.clone());
         save(&dir, &format!("{tag}-check.json"), &check);
-        let front = search::pareto::front(&problem, &table, &options, None, 3);
+        let front = exmesh::whatif::budget::front(&problem, &table, &options, None, 3);
         save(&dir, &format!("{tag}-budget.json"), &front);
-        let stress = search::stress::stress(&problem, &table, &set, n <= 30, &Default::default());
+        let stress =
+            exmesh::whatif::stress::stress(&problem, &table, &set, n <= 30, &Default::default());
         save(&dir, &format!("{tag}-stress.json"), &stress);
-        let retire = search::replan::retire(&problem, &[NodeId(0), NodeId(3)], &set, &options)
-            .map_err(|e| e.to_string());
+        let retire =
+            exmesh::whatif::retire::retire(&problem, &[NodeId(0), NodeId(3)], &set, &options)
+                .map_err(|e| e.to_string());
         match retire {
             Ok(r) => save(&dir, &format!("{tag}-retire.json"), &r),
             Err(e) => std::fs::write(dir.join(format!("{tag}-retire.txt")), e).unwrap(),

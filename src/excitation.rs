@@ -367,6 +367,14 @@ impl ExcitationTable {
         (&self.flow_total[r.clone()], &self.jump_total[r])
     }
 
+    /// Whether every source component of `set`'s digraph is jointly
+    /// excited (the convergence condition of docs/theory.md §3).
+    pub fn sources_excited(&self, problem: &Problem, set: &crate::problem::LinkSet) -> bool {
+        crate::topology::Topology::analyse(problem.n(), &problem.arcs(set))
+            .sources()
+            .all(|c| self.level(&c.nodes).value >= self.min_excitation())
+    }
+
     /// Excitation level, minimising window and weakest direction of a set.
     /// The empty set has level 0 on window 0.
     ///

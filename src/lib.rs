@@ -46,15 +46,16 @@ pub mod analysis;
 pub mod certify;
 pub mod error;
 pub mod excitation;
+pub mod plan;
 pub mod problem;
 pub mod progress;
 pub mod report;
 pub mod rng;
-pub mod search;
 pub mod signal;
 pub mod simulate;
 pub mod synth;
 pub mod topology;
+pub mod whatif;
 
 pub use error::InputError;
 pub use excitation::ExcitationTable;

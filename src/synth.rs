@@ -373,10 +373,10 @@ pub fn certificate_bench(n: usize, seed: u64, dt: f64) -> (Problem, crate::probl
     let problem = Problem::from_parts(base.path.clone(), settings, base.nodes, base.links)
         .expect("benchmark logs overlap");
     let table = crate::ExcitationTable::build(&problem);
-    let plan = crate::search::plan(
+    let plan = crate::plan::plan(
         &problem,
         &table,
-        &crate::search::Options {
+        &crate::plan::Options {
             node_limit: Some(0),
             progress: crate::progress::Sink::silent(),
             ..Default::default()

@@ -133,7 +133,7 @@ pub fn errors_svg(problem: &Problem, traj: &Trajectory) -> Result<String, String
 /// # Errors
 /// A message when plotting fails (it does not for finite data).
 pub fn front_svg(
-    front: &crate::search::pareto::Front,
+    front: &crate::whatif::budget::Front,
     target_rate: Option<f64>,
 ) -> Result<String, String> {
     let mut svg = String::new();

@@ -6,8 +6,8 @@
 use super::CAUTIONS;
 use super::svg::escape;
 use crate::analysis::Check;
-use crate::search::pareto::Front;
 use crate::simulate::{Reference, Trajectory};
+use crate::whatif::budget::Front;
 use std::fmt::Write as _;
 
 pub use crate::problem::PlanFacts;
@@ -77,11 +77,11 @@ pub fn assemble(
     let check = check.with_certificate(cert);
     let front = match front {
         true => {
-            let options = crate::search::Options {
+            let options = crate::plan::Options {
                 progress: progress.clone(),
                 ..Default::default()
             };
-            let f = crate::search::pareto::front(problem, table, &options, None, 8);
+            let f = crate::whatif::budget::front(problem, table, &options, None, 8);
             let svg = super::chart::front_svg(&f, problem.settings.target_rate)
                 .map_err(|e| format!("drawing the front: {e}"))?;
             Some((f, svg))

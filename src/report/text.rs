@@ -4,7 +4,7 @@ use super::CAUTIONS;
 use crate::analysis::Verdict;
 use crate::analysis::{Check, ExcitationSummary};
 use crate::certify::{Certificate, NormBoundKind};
-use crate::search::{Plan, PlanStatus};
+use crate::plan::{Plan, PlanStatus};
 use crate::simulate::{Reference, Trajectory};
 use std::io::{self, Write};
 
@@ -382,7 +382,7 @@ pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
 ///
 /// # Errors
 /// Any I/O error of `out`.
-pub fn front(f: &crate::search::pareto::Front, out: &mut impl Write) -> io::Result<()> {
+pub fn front(f: &crate::whatif::budget::Front, out: &mut impl Write) -> io::Result<()> {
     writeln!(out, "Cost–rate front for {}", f.network)?;
     let Some(cost) = f.structural_cost else {
         writeln!(
@@ -434,8 +434,8 @@ pub fn front(f: &crate::search::pareto::Front, out: &mut impl Write) -> io::Resu
 ///
 /// # Errors
 /// Any I/O error of `out`.
-pub fn stress(s: &crate::search::stress::Stress, out: &mut impl Write) -> io::Result<()> {
-    use crate::search::stress::FailureKind;
+pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Result<()> {
+    use crate::whatif::stress::FailureKind;
     writeln!(out, "Single failures of the plan for {}", s.network)?;
     writeln!(
         out,
@@ -474,7 +474,7 @@ pub fn stress(s: &crate::search::stress::Stress, out: &mut impl Write) -> io::Re
 ///
 /// # Errors
 /// Any I/O error of `out`.
-pub fn retirement(r: &crate::search::replan::Retirement, out: &mut impl Write) -> io::Result<()> {
+pub fn retirement(r: &crate::whatif::retire::Retirement, out: &mut impl Write) -> io::Result<()> {
     writeln!(out, "Retiring {}", r.retired.join(", "))?;
     writeln!(out, "  kept:               {}", names_or_none(&r.kept))?;
     writeln!(out, "  added:              {}", names_or_none(&r.added))?;
@@ -548,8 +548,8 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             .map(|r| r.survive)
             .filter(|_| plain_ok)
         {
-            Some(crate::search::Survive::Link) => " after a single link failure",
-            Some(crate::search::Survive::Unit) => " after the loss of a single unit",
+            Some(crate::plan::Survive::Link) => " after a single link failure",
+            Some(crate::plan::Survive::Unit) => " after the loss of a single unit",
             _ => "",
         };
         writeln!(
@@ -582,9 +582,9 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     )?;
     if let Some(r) = &p.robustness {
         let what = match r.survive {
-            crate::search::Survive::Link => "any one link failing",
-            crate::search::Survive::Unit => "the loss of any one unit",
-            crate::search::Survive::Nothing => "nothing",
+            crate::plan::Survive::Link => "any one link failing",
+            crate::plan::Survive::Unit => "the loss of any one unit",
+            crate::plan::Survive::Nothing => "nothing",
         };
         match (r.plain_cost, r.extra_cost) {
             (Some(plain), Some(extra)) => writeln!(

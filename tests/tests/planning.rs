@@ -2,14 +2,14 @@
 //! and minimum arborescence, petgraph's Kruskal, and brute force.
 
 use super::fixtures::{Edge, Folder, exmesh, one_root, small_problem, synthetic};
+use exmesh::plan::{self, Options, PlanStatus};
 use exmesh::problem::{LinkId, LinkSet, NodeId};
-use exmesh::search::{self, Options, PlanStatus};
 use exmesh::topology::Topology;
 use exmesh::{ExcitationTable, Problem};
 use proptest::prelude::*;
 
-fn plan(problem: &Problem, table: &ExcitationTable) -> search::Plan {
-    search::plan(problem, table, &Options::default())
+fn plan(problem: &Problem, table: &ExcitationTable) -> plan::Plan {
+    plan::plan(problem, table, &Options::default())
 }
 
 /// Cormen, Leiserson, Rivest & Stein, "Introduction to Algorithms", 3rd ed.,
@@ -123,7 +123,7 @@ fn brute_force(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
     cheapest(problem, |chosen| holds(problem, table, chosen))
 }
 
-fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
+fn chosen_indices(problem: &Problem, p: &plan::Plan) -> Vec<usize> {
     p.links
         .iter()
         .map(|l| problem.links.iter().position(|c| c.id == l.id).unwrap())
@@ -383,7 +383,7 @@ fn large_network_plan_is_valid_under_a_time_limit() {
         progress: exmesh::progress::Sink::silent(),
         ..Default::default()
     };
-    let p = search::plan(&problem, &table, &options);
+    let p = plan::plan(&problem, &table, &options);
     assert!(
         matches!(p.status, PlanStatus::Optimal | PlanStatus::TimeLimit),
         "{:?}",
@@ -504,7 +504,7 @@ fn plans_with_the_helper_thread_are_identical_across_runs() {
             ..Default::default()
         };
         let runs: Vec<String> = (0..2)
-            .map(|_| serde_json::to_string(&search::plan(&problem, &table, &options)).unwrap())
+            .map(|_| serde_json::to_string(&plan::plan(&problem, &table, &options)).unwrap())
             .collect();
         assert_eq!(runs[0], runs[1], "{n} units");
     }

@@ -3,14 +3,14 @@
 
 use super::fixtures::{Edge, one_root, synthetic};
 use super::planning::{cheapest, holds, rank_one_grams, within_cap};
+use exmesh::plan::{self, Options, PlanStatus, Survive};
 use exmesh::problem::{LinkId, LinkSet, NodeId};
-use exmesh::search::{self, Options, PlanStatus, Survive};
 use exmesh::topology::Topology;
 use exmesh::{ExcitationTable, Problem};
 use proptest::prelude::*;
 
-fn plan(problem: &Problem, table: &ExcitationTable, survive: Survive) -> search::Plan {
-    search::plan(
+fn plan(problem: &Problem, table: &ExcitationTable, survive: Survive) -> plan::Plan {
+    plan::plan(
         problem,
         table,
         &Options {
@@ -20,7 +20,7 @@ fn plan(problem: &Problem, table: &ExcitationTable, survive: Survive) -> search:
     )
 }
 
-fn chosen_indices(problem: &Problem, p: &search::Plan) -> Vec<usize> {
+fn chosen_indices(problem: &Problem, p: &plan::Plan) -> Vec<usize> {
     p.links
         .iter()
         .map(|l| problem.links.iter().position(|c| c.id == l.id).unwrap())

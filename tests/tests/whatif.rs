@@ -2,8 +2,8 @@
 
 use super::fixtures::synthetic;
 use super::planning::instance_strategy;
+use exmesh::plan::{self, Options, PlanStatus};
 use exmesh::problem::{LinkId, LinkSet, NodeId};
-use exmesh::search::{self, Options, PlanStatus};
 use proptest::prelude::*;
 
 proptest! {
@@ -18,7 +18,7 @@ proptest! {
         let (problem, table) = synthetic(n, p, &edges, 2, gram, 0.05);
         let unit = NodeId((pick % n) as u32);
         let options = Options::default();
-        let full = search::plan(&problem, &table, &options);
+        let full = plan::plan(&problem, &table, &options);
         let in_place = LinkSet::new(
             full.links
                 .iter()
@@ -28,9 +28,9 @@ proptest! {
         let restrict = |_: &exmesh::Problem, keep: &[NodeId]| table.restricted(keep);
         let (reduced, _) = problem.without_units(&[unit], &LinkSet::default()).unwrap();
         let kept: Vec<NodeId> = (0..n as u32).map(NodeId).filter(|&v| v != unit).collect();
-        let scratch = search::plan(&reduced, &table.restricted(&kept), &options);
+        let scratch = plan::plan(&reduced, &table.restricted(&kept), &options);
         for (before, equal) in [(in_place, false), (LinkSet::default(), true)] {
-            let r = search::replan::retire_with(&problem, &[unit], &before, &options, &restrict).unwrap();
+            let r = exmesh::whatif::retire::retire_with(&problem, &[unit], &before, &options, &restrict).unwrap();
             prop_assert_eq!(r.plan.status == PlanStatus::Infeasible, scratch.status == PlanStatus::Infeasible);
             if let (Some(added), Some(fresh)) = (r.added_cost, scratch.cost) {
                 prop_assert!(added <= fresh + 1e-9, "re-plan {} > scratch {}", added, fresh);

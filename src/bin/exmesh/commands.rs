@@ -6,7 +6,9 @@ use crate::output::{
     FlagError, emit, progress, verdict, write_atomically, write_pictures, write_plan_file,
 };
 use anyhow::Context;
-use exmesh::{ExcitationTable, LinkSet, analysis, certify, problem, report, search, simulate};
+use exmesh::{
+    ExcitationTable, LinkSet, analysis, certify, plan, problem, report, simulate, whatif,
+};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -40,18 +42,18 @@ pub(crate) fn plan(
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
     let table = ExcitationTable::build(&problem);
-    let options = search::Options {
+    let options = plan::Options {
         time_limit,
         progress: progress(),
         survive: match survive {
-            None => search::Survive::Nothing,
-            Some(SurviveArg::Link) => search::Survive::Link,
-            Some(SurviveArg::Unit) => search::Survive::Unit,
+            None => plan::Survive::Nothing,
+            Some(SurviveArg::Link) => plan::Survive::Link,
+            Some(SurviveArg::Unit) => plan::Survive::Unit,
         },
         node_limit: None,
     };
-    let plan = search::plan(&problem, &table, &options);
-    let feasible = plan.status != search::PlanStatus::Infeasible;
+    let plan = plan::plan(&problem, &table, &options);
+    let feasible = plan.status != plan::PlanStatus::Infeasible;
     // The picture of an infeasible problem shows every candidate.
     let set = if feasible {
         plan.link_set(&problem)
@@ -77,12 +79,12 @@ pub(crate) fn budget(
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
     let table = ExcitationTable::build(&problem);
-    let options = search::Options {
+    let options = plan::Options {
         time_limit,
         progress: progress(),
         ..Default::default()
     };
-    let front = search::pareto::front(&problem, &table, &options, max_cost, steps);
+    let front = whatif::budget::front(&problem, &table, &options, max_cost, steps);
     if let Some(path) = svg {
         let text = report::chart::front_svg(&front, problem.settings.target_rate)
             .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
@@ -106,7 +108,7 @@ pub(crate) fn stress(
     let problem = problem::load(path)?;
     let set = problem::read_link_set(&problem, plan)?;
     let table = ExcitationTable::build(&problem);
-    let result = search::stress::stress(&problem, &table, &set, !skip_rate, &progress());
+    let result = whatif::stress::stress(&problem, &table, &set, !skip_rate, &progress());
     emit(out, json, &result, |o| report::text::stress(&result, o))
         .context("writing the failure report")?;
     Ok(ExitCode::SUCCESS)
@@ -158,14 +160,14 @@ pub(crate) fn retire(
         Some(path) => problem::read_link_set(&problem, path)?,
         None => LinkSet::default(),
     };
-    let options = search::Options {
+    let options = plan::Options {
         time_limit,
         progress: progress(),
         ..Default::default()
     };
-    let result = search::replan::retire(&problem, &units, &in_place, &options)
+    let result = whatif::retire::retire(&problem, &units, &in_place, &options)
         .map_err(|e| exmesh::InputError::whole(&problem.path, e.to_string()))?;
-    let feasible = result.plan.status != search::PlanStatus::Infeasible;
+    let feasible = result.plan.status != plan::PlanStatus::Infeasible;
     write_plan_file(plan_path, &result.plan)?;
     emit(out, json, &result, |o| report::text::retirement(&result, o))
         .context("writing the re-plan")?;

@@ -3,7 +3,7 @@
 
 use anyhow::Context;
 use exmesh::progress::{Progress, Sink};
-use exmesh::{ExcitationTable, LinkSet, Problem, report, search};
+use exmesh::{ExcitationTable, LinkSet, Problem, plan, report};
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -92,8 +92,8 @@ pub(crate) fn verdict(ok: bool) -> ExitCode {
 
 /// Writes `plan` as a plan file when a path is given and the plan is not
 /// infeasible.
-pub(crate) fn write_plan_file(path: Option<PathBuf>, plan: &search::Plan) -> anyhow::Result<()> {
-    if let (Some(path), true) = (path, plan.status != search::PlanStatus::Infeasible) {
+pub(crate) fn write_plan_file(path: Option<PathBuf>, plan: &plan::Plan) -> anyhow::Result<()> {
+    if let (Some(path), true) = (path, plan.status != plan::PlanStatus::Infeasible) {
         let mut bytes = Vec::new();
         report::json::write(plan, &mut bytes)?;
         write_atomically(&path, &bytes)

@@ -2,11 +2,11 @@
 //! links are added one at a time by estimated certified-rate gain per cost;
 //! every set is certified and the non-dominated ones form the front.
 
-use super::rate::{best_addition, meet_target, rate_of, with};
-use super::{Options, PlanStatus, plan};
 use crate::certify::certify_with;
 use crate::certify::propagate::Schedule;
 use crate::excitation::ExcitationTable;
+use crate::plan::rate::{best_addition, meet_target, rate_of, with};
+use crate::plan::{Options, PlanStatus, plan};
 use crate::problem::{LinkId, LinkSet, Problem};
 use crate::progress::Sink;
 use rayon::prelude::*;

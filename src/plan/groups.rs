@@ -580,8 +580,8 @@ fn touching(set: &[u32], incident: &[Vec<usize>], ends: &[(u32, u32)], mut f: im
 mod tests {
     use super::*;
     use crate::excitation::ExcitationTable;
+    use crate::plan::instance::PlanLink;
     use crate::rng::Rng;
-    use crate::search::instance::PlanLink;
     use crate::signal::Window;
 
     fn windows(count: usize) -> Vec<Window> {

@@ -12,11 +12,8 @@ mod heuristics;
 mod instance;
 mod lns;
 mod lp;
-pub mod pareto;
 pub mod rate;
-pub mod replan;
 mod row;
-pub mod stress;
 
 use crate::analysis::{self, SourceComponent};
 use crate::excitation::ExcitationTable;

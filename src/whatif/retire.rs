@@ -2,8 +2,8 @@
 //! links go; the links already in place cost nothing; the cheapest additions
 //! restore the condition (and the target rate, when set).
 
-use super::{Options, Plan, PlanStatus, plan};
 use crate::excitation::ExcitationTable;
+use crate::plan::{Options, Plan, PlanStatus, plan};
 use crate::problem::{LinkId, LinkSet, NodeId, Problem};
 use serde::Serialize;
 

@@ -675,8 +675,8 @@ pub(crate) fn connected_sets(
 mod tests {
     use super::*;
     use crate::excitation::ExcitationTable;
+    use crate::plan::instance::PlanLink;
     use crate::rng::Rng;
-    use crate::search::instance::PlanLink;
     use crate::signal::Window;
 
     /// The early-stopping scan agrees with the full sum (common practice:
