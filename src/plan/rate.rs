@@ -3,13 +3,15 @@
 //! certified rate reaches the target, then drop links whose removal keeps
 //! it. The structural optimum's lower bound stays valid for the result.
 
+use super::structural::{self, Structural};
+pub use super::types::RatePlan;
+use super::types::{Options, PlanStatus};
 use crate::certify::propagate::{ErrorSystem, Schedule};
 use crate::certify::{Certificate, certify_with, window_log_norm};
 use crate::excitation::ExcitationTable;
 use crate::problem::{LinkId, LinkSet, Problem};
 use crate::progress::Sink;
 use rayon::prelude::*;
-use serde::Serialize;
 use std::time::Instant;
 
 /// Units whose share of the slowest mode makes their links candidates for
@@ -23,34 +25,6 @@ const RAISE_STEPS: usize = 4;
 /// Branch-and-bound nodes per raised μ_req (a deterministic effort limit:
 /// these plans only seed the rate stage).
 const RAISE_NODES: u64 = 200;
-
-/// The outcome of the rate stage.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct RatePlan {
-    /// Required rate (1/s).
-    pub target: f64,
-    /// Certified rate of the returned links (null when not certified).
-    pub certified: Option<f64>,
-    /// The target is met.
-    pub met: bool,
-    /// Cost of the structural plan the stage started from.
-    pub structural_cost: f64,
-    /// Ids of the links added for speed, in the order they were added.
-    pub added_links: Vec<String>,
-    /// When not met: the best certified rate found (the greedy additions or
-    /// every candidate at once, whichever is faster).
-    pub best_reachable: Option<f64>,
-    /// True when the time limit cut the stage short.
-    pub timed_out: bool,
-    /// When the returned links come from a structural plan at a raised
-    /// required excitation: that μ_req.
-    pub raised_min_excitation: Option<f64>,
-    /// The certificate of the returned links.
-    pub certificate: Certificate,
-    /// The returned link set.
-    #[serde(skip)]
-    pub set: LinkSet,
-}
 
 pub(crate) fn with(set: &LinkSet, extra: LinkId) -> LinkSet {
     let mut ids = set.ids().to_vec();
@@ -228,8 +202,6 @@ pub fn meet_target(
     // certifies faster; keep it when it meets the target for less.
     let mut raised = None;
     if !timed_out {
-        let mut plain = problem.clone();
-        plain.settings.target_rate = None;
         // Levels between μ_req and the level of all units pooled (no
         // source component can be more excited than that).
         let all: Vec<crate::problem::NodeId> = (0..problem.n() as u32)
@@ -244,16 +216,17 @@ pub fn meet_target(
             }
             let mu = base * (top / base).powf(step as f64 / (RAISE_STEPS + 1) as f64);
             let stronger = table.with_min_excitation(mu);
-            let options = super::Options {
+            let options = Options {
                 time_limit: deadline.map(|d| d.saturating_duration_since(Instant::now())),
                 node_limit: Some(RAISE_NODES),
-                ..super::Options::default()
+                ..Options::default()
             };
-            let p = super::plan_once(&plain, &stronger, &options);
-            if p.status == super::PlanStatus::Infeasible {
-                break;
-            }
-            let candidate = p.link_set(problem);
+            // The structural stage alone (it never looks at the target).
+            let candidate = match structural::run(problem, &stronger, &options) {
+                Structural::Done(p) if p.status == PlanStatus::Infeasible => break,
+                Structural::Done(p) => p.link_set(problem),
+                Structural::Found(found) => found.set,
+            };
             if !keep(&candidate) {
                 continue;
             }

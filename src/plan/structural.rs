@@ -1,0 +1,384 @@
+//! The structural stage of planning: feasibility of the all-candidates
+//! graph, a greedy incumbent, branch and cut on the covering model (rows
+//! separated lazily, docs/theory.md §4–5) and a final irreducibility pass.
+//! The rate stage (`rate`) starts from its answer.
+
+use super::bnc;
+use super::heuristics;
+use super::instance::{Failure, Instance, Survive};
+use super::lns;
+use super::types::{Options, Plan, PlanStats, PlanStatus, Shortfall, Timings};
+use crate::analysis::{self, SourceComponent};
+use crate::excitation::ExcitationTable;
+use crate::problem::{LinkId, LinkSet, Problem};
+use std::time::{Duration, Instant};
+
+/// What the structural stage ends with.
+pub(crate) enum Structural<'a> {
+    /// A final answer: infeasible (with its explanation), or no link set
+    /// within the in-degree caps found.
+    Done(Box<Plan>),
+    /// A link set, to be checked for rate and reported.
+    Found(Box<Found<'a>>),
+}
+
+/// A structural plan and how the search for it went.
+pub(crate) struct Found<'a> {
+    /// The instance searched (its oracle's figures, its cap and survival
+    /// test for the rate stage).
+    pub inst: Instance<'a>,
+    /// The link set, irreducible.
+    pub set: LinkSet,
+    pub cost: f64,
+    /// Proven lower bound on any valid plan's cost.
+    pub lower: f64,
+    pub gap: f64,
+    pub status: PlanStatus,
+    pub search: bnc::SearchStats,
+    pub greedy_cost: f64,
+    pub greedy_time: Duration,
+    pub search_time: Duration,
+    pub deadline: Option<Instant>,
+}
+
+impl Found<'_> {
+    /// Whether a link set keeps every unit within its in-degree cap and
+    /// meets the survival requirement.
+    pub fn keeps(&self, candidate: &LinkSet) -> bool {
+        let mut mask = vec![false; self.inst.links.len()];
+        candidate.ids().iter().for_each(|l| mask[l.index()] = true);
+        self.inst.holds(&mask)
+    }
+
+    /// The search figures and stage times of this stage, with the rate
+    /// stage's time.
+    pub fn figures(&self, rate_time: Duration) -> (PlanStats, Timings) {
+        let s = &self.search;
+        (
+            stats(&self.inst, Some(s), self.greedy_cost),
+            Timings {
+                greedy: self.greedy_time,
+                search: self.search_time,
+                excitation: self.inst.oracle.stats.borrow().time,
+                separation: s.separation_time.saturating_sub(s.separation_checks),
+                solver: s.lp.time,
+                heuristics: s.heuristic_time,
+                component_bound: s.group.map_or(Duration::ZERO, |g| g.time),
+                rate: rate_time,
+            },
+        )
+    }
+}
+
+/// Share of the time limit the root's cutting may use on networks that
+/// get neighbourhood search (which runs on a second thread meanwhile).
+/// 0.45 while that search ran after the root on the same core; with the
+/// second thread, 0.85 lifted the 60 s root bound at 500 units from
+/// 225009/237021 to 225295/237311 (seeds 1/2; gap 2.57/2.87 % →
+/// 2.44/2.75 %), and 150 units seed 3 (the slowest root there) kept its
+/// gap (1.78 %).
+const ROOT_SHARE: f64 = 0.85;
+
+/// Runs the structural stage: the cheapest link set whose source
+/// components are all excited, within the in-degree caps and the survival
+/// requirement of `options` (the rate target is not looked at).
+pub(crate) fn run<'a>(
+    problem: &'a Problem,
+    table: &'a ExcitationTable,
+    options: &Options,
+) -> Structural<'a> {
+    let started = Instant::now();
+    let deadline = options.time_limit.map(|d| started + d);
+    let mut inst = Instance::new(problem, table);
+    inst.survive = options.survive;
+    let all = vec![true; inst.links.len()];
+    let bad = inst.violations(&all);
+    if !bad.is_empty() {
+        let plain: Vec<Vec<u32>> = inst
+            .source_components(&all)
+            .into_iter()
+            .filter(|c| !inst.oracle.excited(c))
+            .collect();
+        let shortfalls = if plain.is_empty() {
+            failure_shortfalls(problem, table, &inst.failures(&all, false))
+        } else {
+            plain.iter().map(|c| shortfall(problem, table, c)).collect()
+        };
+        let check = analysis::check(problem, table, &problem.all_links());
+        return Structural::Done(Box::new(infeasible(
+            problem,
+            table,
+            &inst,
+            started,
+            check.source_components,
+            shortfalls,
+        )));
+    }
+    let installed: Vec<bool> = inst.links.iter().map(|l| l.installed).collect();
+    if !inst.fits(&installed) {
+        return Structural::Done(Box::new(caps_infeasible(
+            problem, table, &inst, started, true,
+        )));
+    }
+    let reverse = heuristics::reverse_delete(&inst, &all);
+    let greedy = match heuristics::forward_greedy(&inst) {
+        Some(forward) if !inst.fits(&reverse) || inst.cost(&forward) < inst.cost(&reverse) => {
+            forward
+        }
+        _ => reverse,
+    };
+    // A start beyond the in-degree caps is no incumbent: the search then
+    // starts without one (and says so when it finds none).
+    let greedy = if inst.holds(&greedy) {
+        heuristics::exchange(&inst, &greedy, deadline)
+    } else {
+        greedy
+    };
+    let greedy_cost = inst.cost(&greedy);
+    let greedy_time = started.elapsed();
+    let neighbourhood = inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing;
+    let limits = bnc::Limits {
+        deadline,
+        nodes: options.node_limit,
+        neighbourhood: neighbourhood.then_some(lns::improve as bnc::Improve),
+        // Root cutting gets at most ROOT_SHARE of the time limit when
+        // neighbourhood search runs.
+        root_deadline: options
+            .time_limit
+            .filter(|_| neighbourhood)
+            .map(|d| started + d.mul_f64(ROOT_SHARE)),
+    };
+    let result = bnc::search(&inst, greedy, limits, &options.progress);
+    let search_time = started.elapsed() - greedy_time;
+    if !inst.holds(&result.best) {
+        // No link set within the in-degree caps was found.
+        let mut plan = caps_infeasible(problem, table, &inst, started, false);
+        // An infeasible root LP also ends the search early: only a real
+        // deadline makes this a time limit.
+        if result.timed_out && deadline.is_some_and(|d| Instant::now() >= d) {
+            plan.status = PlanStatus::TimeLimit;
+        }
+        return Structural::Done(Box::new(plan));
+    }
+    // Final irreducibility: drop any link whose removal keeps the condition.
+    let best = heuristics::reverse_delete(&inst, &result.best);
+    let cost = inst.cost(&best);
+    let lower = result.lower_bound.min(cost);
+    let gap = if cost > 0.0 {
+        ((cost - lower) / cost).max(0.0)
+    } else {
+        0.0
+    };
+    let status = if gap <= 1e-9 {
+        PlanStatus::Optimal
+    } else if result.timed_out {
+        PlanStatus::TimeLimit
+    } else {
+        PlanStatus::Feasible
+    };
+    let set = LinkSet::new(
+        best.iter()
+            .enumerate()
+            .filter(|(_, c)| **c)
+            .map(|(k, _)| LinkId(k as u32))
+            .collect(),
+    );
+    Structural::Found(Box::new(Found {
+        inst,
+        set,
+        cost,
+        lower,
+        gap,
+        status,
+        search: result.stats,
+        greedy_cost,
+        greedy_time,
+        search_time,
+        deadline,
+    }))
+}
+
+fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> PlanStats {
+    let o = *inst.oracle.stats.borrow();
+    PlanStats {
+        greedy_cost,
+        root_lp_bound: s.map_or(f64::NAN, |s| s.root_bound),
+        rounds: s.map_or(0, |s| s.rounds),
+        cuts: s.map_or(0, |s| s.cuts),
+        nodes: s.map_or(0, |s| s.nodes),
+        lp_solves: s.map_or(0, |s| s.lp.solves),
+        fixed_by_reduced_cost: s.map_or(0, |s| s.fixed_by_cost),
+        excitation_queries: o.queries,
+        excitation_scans: o.scans,
+        component_bound: s.and_then(|s| s.group).map(|g| g.bound),
+        component_size: s.and_then(|s| s.group).map(|g| g.k as u32),
+        component_sets: s.and_then(|s| s.group).map(|g| g.sets as u64),
+        component_columns: s.and_then(|s| s.group).map(|g| g.columns as u64),
+        component_columns_used: s.and_then(|s| s.group).map(|g| g.used_columns as u64),
+    }
+}
+
+/// Shortfalls of a survival requirement: the group left without excitation
+/// by each failure (first failure per group).
+fn failure_shortfalls(
+    problem: &Problem,
+    table: &ExcitationTable,
+    failures: &[(Vec<u32>, Failure)],
+) -> Vec<Shortfall> {
+    let mut seen: Vec<&[u32]> = Vec::new();
+    let mut out = Vec::new();
+    for (set, failure) in failures {
+        if seen.contains(&set.as_slice()) {
+            continue;
+        }
+        seen.push(set);
+        let mut s = shortfall(problem, table, set);
+        s.remedy = match *failure {
+            Failure::Link(k) => format!(
+                "if link {} fails, no other candidate link enters this group: add a second candidate link into it",
+                problem.links[k].id
+            ),
+            Failure::Unit(v) => format!(
+                "if unit {} is lost, no candidate link enters this group from any other unit: add a candidate link into it from elsewhere, or more excitation inside it",
+                problem.nodes[v as usize].id
+            ),
+        };
+        out.push(s);
+    }
+    out
+}
+
+/// The plan when no link set meets both the structure and the in-degree
+/// caps of the gain condition (`installed`: the installed links alone break
+/// a cap). Names the units with the tightest caps.
+fn caps_infeasible(
+    problem: &Problem,
+    table: &ExcitationTable,
+    inst: &Instance,
+    started: Instant,
+    installed: bool,
+) -> Plan {
+    let caps = inst.caps.clone().unwrap_or_default();
+    let mut tight: Vec<(f64, usize)> = caps
+        .iter()
+        .enumerate()
+        .filter(|(_, c)| c.is_finite())
+        .map(|(i, &c)| (c, i))
+        .collect();
+    tight.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    tight.truncate(5);
+    let names: Vec<String> = tight
+        .iter()
+        .map(|&(c, i)| format!("{} (in-degree ≤ {c:.3})", problem.nodes[i].id))
+        .collect();
+    let remedy = if installed {
+        format!(
+            "the installed links alone exceed the in-degree limit of the gain condition \
+             (δ·d_i + γ_d·s_i/2 ≤ 1) at some unit; tightest limits: {}. Lower jump_coupling \
+             or jump_gain, or lighten the installed links' weights",
+            names.join(", ")
+        )
+    } else {
+        format!(
+            "no link set both excites every source component and keeps every unit within \
+             the in-degree limit of the gain condition (δ·d_i + γ_d·s_i/2 ≤ 1); tightest \
+             limits: {}. Lower jump_coupling or jump_gain, use lighter link weights, or add \
+             candidate links that spread the listening",
+            names.join(", ")
+        )
+    };
+    let named: Vec<crate::problem::NodeId> = tight
+        .iter()
+        .map(|&(_, i)| crate::problem::NodeId(i as u32))
+        .collect();
+    let level = table.level(&named);
+    let shortfall = Shortfall {
+        nodes: tight
+            .iter()
+            .map(|&(_, i)| problem.nodes[i].id.clone())
+            .collect(),
+        excitation: level.value,
+        weakest_direction: level.direction,
+        weakest_window_start: analysis::window_start(problem, table, level.window),
+        remedy,
+    };
+    infeasible(problem, table, inst, started, Vec::new(), vec![shortfall])
+}
+
+/// An infeasible plan with its explanation.
+fn infeasible(
+    problem: &Problem,
+    table: &ExcitationTable,
+    inst: &Instance,
+    started: Instant,
+    source_components: Vec<SourceComponent>,
+    shortfalls: Vec<Shortfall>,
+) -> Plan {
+    Plan {
+        network: problem.settings.name.clone(),
+        status: PlanStatus::Infeasible,
+        cost: None,
+        lower_bound: None,
+        gap: None,
+        min_excitation: table.min_excitation(),
+        min_excitation_given: table.min_excitation_given(),
+        windows: table.windows().len(),
+        links: Vec::new(),
+        source_components,
+        shortfalls,
+        robustness: None,
+        rate: None,
+        gains_ok: None,
+        gains: Vec::new(),
+        stats: stats(inst, None, f64::NAN),
+        timings: Timings {
+            greedy: started.elapsed(),
+            excitation: inst.oracle.stats.borrow().time,
+            ..Timings::default()
+        },
+    }
+}
+
+fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {
+    let nodes: Vec<crate::problem::NodeId> =
+        set.iter().map(|&v| crate::problem::NodeId(v)).collect();
+    let level = table.level(&nodes);
+    let names: Vec<String> = nodes
+        .iter()
+        .map(|&v| problem.node_name(v).to_string())
+        .collect();
+    // The nearest unit outside the group, when positions are known.
+    let nearest = nodes
+        .iter()
+        .filter_map(|&v| problem.nodes[v.index()].position.map(|p| (v, p)))
+        .flat_map(|(_, p)| {
+            problem
+                .nodes
+                .iter()
+                .enumerate()
+                .filter(|(k, n)| !set.contains(&(*k as u32)) && n.position.is_some())
+                .map(move |(k, n)| {
+                    let q = n.position.unwrap_or_default();
+                    ((p[0] - q[0]).hypot(p[1] - q[1]), k)
+                })
+        })
+        .min_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    let link_hint = match nearest {
+        Some((d, k)) => format!(
+            "add a candidate link into it, e.g. from {} ({d:.2} km away)",
+            problem.nodes[k].id
+        ),
+        None => "add a candidate link into it from a unit outside it".to_string(),
+    };
+    let dir: Vec<String> = level.direction.iter().map(|x| format!("{x:+.3}")).collect();
+    Shortfall {
+        remedy: format!(
+            "no candidate link enters this group: {link_hint}, or give its units more excitation along [{}]",
+            dir.join(", ")
+        ),
+        nodes: names,
+        excitation: level.value,
+        weakest_direction: level.direction,
+        weakest_window_start: analysis::window_start(problem, table, level.window),
+    }
+}
