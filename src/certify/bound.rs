@@ -28,6 +28,8 @@
 //! 13(4), 1992, Theorem 4.2; Golub & Van Loan, "Matrix Computations", 4th
 //! ed., 2013, §10.1 (Lanczos with full reorthogonalisation).
 
+pub use super::lanczos::top_ritz;
+use super::lanczos::{combine, dot, normalise, orthogonalise, start_vector, top_eigen};
 use super::propagate::{Direction, ErrorSystem, Step, Work};
 
 /// Blocks with at most this many unknowns (units × p) get exact norms.
@@ -103,38 +105,6 @@ impl Gaussian {
     }
 }
 
-pub(super) fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
-
-pub(super) fn normalise(x: &mut [f64]) -> f64 {
-    let n = dot(x, x).sqrt();
-    if n > 0.0 {
-        x.iter_mut().for_each(|v| *v /= n);
-    }
-    n
-}
-
-/// `Σ_i coeffs[i]·basis[i]` (vectors of length d), normalised.
-pub(super) fn combine(basis: &[Vec<f64>], coeffs: &[f64], d: usize) -> Vec<f64> {
-    let mut x = vec![0.0; d];
-    for (q, &c) in basis.iter().zip(coeffs) {
-        x.iter_mut().zip(q).for_each(|(p, r)| *p += c * r);
-    }
-    normalise(&mut x);
-    x
-}
-
-/// Subtracts the components along the orthonormal `basis` (twice).
-pub(super) fn orthogonalise(x: &mut [f64], basis: &[Vec<f64>]) {
-    for _ in 0..2 {
-        for q in basis {
-            let c = dot(x, q);
-            x.iter_mut().zip(q).for_each(|(p, r)| *p -= c * r);
-        }
-    }
-}
-
 /// Relative allowance on a computed ‖Φ‖ for the truncation (below
 /// 10⁻¹⁴ per substep, proven) and the rounding of the propagation over
 /// `steps`: [`STEP_ERROR`] per substep, summed. The rounding part is an
@@ -199,37 +169,6 @@ impl Krylov {
             0.0
         }
     }
-}
-
-/// Largest eigenvalue of the symmetric tridiagonal matrix (diagonal `a`,
-/// off-diagonal `b`) and its eigenvector.
-pub fn top_ritz(a: &[f64], b: &[f64]) -> (f64, Vec<f64>) {
-    let k = a.len();
-    let t = nalgebra::DMatrix::from_fn(k, k, |r, c| {
-        if r == c {
-            a[r]
-        } else if r + 1 == c {
-            b[r]
-        } else if c + 1 == r {
-            b[c]
-        } else {
-            0.0
-        }
-    });
-    top_eigen(t)
-}
-
-/// Largest eigenvalue of a symmetric matrix and its eigenvector.
-fn top_eigen(m: nalgebra::DMatrix<f64>) -> (f64, Vec<f64>) {
-    let k = m.nrows();
-    let e = nalgebra::SymmetricEigen::new(m);
-    let best = (0..k)
-        .max_by(|&x, &y| e.eigenvalues[x].total_cmp(&e.eigenvalues[y]))
-        .unwrap_or(0);
-    (
-        e.eigenvalues[best],
-        e.eigenvectors.column(best).iter().copied().collect(),
-    )
 }
 
 /// Runs Lanczos from `start` (projected and normalised) for at most `max`
@@ -471,7 +410,7 @@ pub fn window_bound(
     } else if warm.len() == d && warm.iter().any(|&x| x != 0.0) {
         randomized_norm(system, steps, warm, seed, accept, work)
     } else {
-        let start = super::estimate::start_vector(d);
+        let start = start_vector(d);
         randomized_norm(system, steps, &start, seed, accept, work)
     }
 }

@@ -2,7 +2,7 @@
 //! certified): used by the rate stage to screen candidate links before a
 //! full certificate.
 
-use super::bound::{combine, dot, normalise, orthogonalise, top_ritz};
+use super::lanczos::{combine, dot, normalise, orthogonalise, start_vector, top_ritz};
 use super::propagate::{Direction, ErrorSystem, Step, Work};
 use crate::signal::Window;
 
@@ -11,14 +11,6 @@ const TOLERANCE: f64 = 1e-4;
 
 /// Largest Krylov dimension.
 const DIMENSION: usize = 30;
-
-/// A deterministic starting vector with no special structure.
-pub(crate) fn start_vector(d: usize) -> Vec<f64> {
-    let mut rng = crate::rng::Rng(0x5eed_cafe);
-    let mut x: Vec<f64> = (0..d).map(|_| rng.uniform() - 0.5).collect();
-    normalise(&mut x);
-    x
-}
 
 /// ln of the top Ritz value's square root for `ΦᵀΦ` over `steps`, from
 /// `x`: a lower estimate of ln ‖Φ‖₂ (it can stop at a smaller singular

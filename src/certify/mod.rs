@@ -21,6 +21,7 @@
 
 pub mod bound;
 mod estimate;
+mod lanczos;
 pub mod propagate;
 
 pub use estimate::window_log_norm;
@@ -302,7 +303,7 @@ fn window_norms(
         .flat_map_iter(|(chunk, seeds)| {
             let mut x = warm(&chunk[0])
                 .filter(|v| v.len() == d)
-                .unwrap_or_else(|| estimate::start_vector(d));
+                .unwrap_or_else(|| lanczos::start_vector(d));
             let mut work = Work::default();
             let mut steps = Vec::new();
             chunk
@@ -792,7 +793,7 @@ fn certify_block(
             system.schedule().steps(&w, &mut steps);
             let start = horizon_start
                 .filter(|v| v.len() == system.dim())
-                .unwrap_or_else(|| estimate::start_vector(system.dim()));
+                .unwrap_or_else(|| lanczos::start_vector(system.dim()));
             // Informative only, and labelled an estimate: a Lanczos value
             // from below (a bound would cost a full tail test on the
             // longest window of all).
@@ -870,7 +871,7 @@ fn certify_block(
         let mut steps = Vec::new();
         system.schedule().steps(&t.windows[t.worst], &mut steps);
         system.propagate(Direction::Forward, &steps, &mut left, &mut Work::default());
-        bound::normalise(&mut left);
+        lanczos::normalise(&mut left);
         block.left = left;
     }
     match t.rate() {
