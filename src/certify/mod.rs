@@ -24,6 +24,7 @@ mod estimate;
 mod gains;
 mod lanczos;
 pub mod propagate;
+mod schedule;
 mod trials;
 
 pub use estimate::window_log_norm;
