@@ -27,7 +27,8 @@
 //! value plus `n` times the least reduced cost is a lower bound (a plan has
 //! at most `n` columns), whether or not the rounds run to the end.
 
-use super::cuts::{Pool, grow_separate, separate, support_separate, walk_connected_sets};
+use super::connected_sets::walk_connected_sets;
+use super::cuts::{Pool, grow_separate, separate, support_separate};
 use super::instance::{Instance, Survive};
 use super::lp::{Basis, Col, Lp, Outcome, Sense, Solved};
 use crate::topology::pieces;

@@ -6,6 +6,7 @@
 //! inequalities separated lazily, see docs/theory.md §5); final irreducibility.
 
 mod bnc;
+mod connected_sets;
 mod cuts;
 mod groups;
 mod heuristics;
