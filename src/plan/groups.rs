@@ -125,78 +125,13 @@ pub(crate) fn group_bound(
     // incident[v]: links with an end at v (two-way links: those into v).
     let incident = &inst.heads;
 
-    // Every connected set of at most k units; the excited ones are columns.
-    // k is the largest size up to `max_k` whose sets, with the smaller
-    // ones, number at most `max_sets` (counted first; a size is listed whole
-    // or not at all, so that pricing stays exact).
-    // Counting stops at max_sets, so dense networks cost no long walk.
-    let mut k = 0;
-    let mut total = 0;
-    for size in 1..=max_k {
-        let mut count = 0;
-        walk_connected_sets(&nbrs, size, |_, _| {
-            count += 1;
-            (count <= max_sets).then_some(false)
-        });
-        if count > max_sets || late() {
-            break;
-        }
-        (k, total) = (size, count);
-    }
-    if k == 0 {
-        return None;
-    }
-    let mut sets: Vec<Vec<u32>> = Vec::with_capacity(total);
-    let mut columns: Vec<Column> = Vec::new();
-    let mut stopped = false;
-    walk_connected_sets(&nbrs, k, |set, parent_excited| {
-        if sets.len().is_multiple_of(1024) && late() {
-            stopped = true;
-            return None;
-        }
-        let id = sets.len() as u32;
-        sets.push(set.to_vec());
-        // Excitation is monotone: a set holding an excited one is excited.
-        let excited = parent_excited || inst.oracle.excited(set);
-        if excited {
-            let (tree, cost) = spanning_tree(inst, &ends, set);
-            columns.push(Column {
-                set: id,
-                tree,
-                cost,
-            });
-        }
-        Some(excited)
-    });
-    if debug {
-        sink.debug(|| {
-            format!(
-                "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
-                sets.len(),
-                columns.len(),
-                t0.elapsed(),
-                if stopped { " (stopped)" } else { "" }
-            )
-        });
-    }
-    if stopped {
-        return None;
-    }
+    let (k, sets, columns) = list_columns(inst, &nbrs, &ends, max_k, max_sets, &late, sink, t0)?;
     let mut stats = GroupStats {
         bound: f64::NEG_INFINITY,
         k,
         sets: sets.len(),
         columns: columns.len(),
         ..GroupStats::default()
-    };
-    // A set of at most k units holds no large component: all its units in
-    // large components reach outside, so the links touching it span them.
-    let ratio = |set: &[u32]| {
-        if set.len() <= k {
-            1.0
-        } else {
-            k as f64 / (k as f64 + 1.0)
-        }
     };
 
     // Start with the columns of at most two units.
@@ -215,78 +150,7 @@ pub(crate) fn group_bound(
             break;
         }
         stats.rounds += 1;
-        // The LP: z (m), u (n), then the active columns; coverage rows,
-        // then the extra rows in the order they came.
-        let mut p = Lp::minimise();
-        let z: Vec<Col> = inst
-            .links
-            .iter()
-            .map(|l| p.column(l.cost, 0.0, 1.0))
-            .collect();
-        let u: Vec<Col> = (0..n).map(|_| p.column(0.0, 0.0, 1.0)).collect();
-        let x: Vec<Col> = active
-            .iter()
-            .map(|&c| p.column(columns[c as usize].cost, 0.0, f64::INFINITY))
-            .collect();
-        let mut cover: Vec<Vec<(Col, f64)>> = (0..n).map(|i| vec![(u[i], 1.0)]).collect();
-        // by_link[e]: active columns whose tree holds link e.
-        let mut by_link: Vec<Vec<u32>> = vec![Vec::new(); m];
-        for (j, &c) in active.iter().enumerate() {
-            let col = &columns[c as usize];
-            for &v in &sets[col.set as usize] {
-                cover[v as usize].push((x[j], 1.0));
-            }
-            for &e in &col.tree {
-                by_link[e as usize].push(j as u32);
-            }
-        }
-        for row in &cover {
-            p.row(row, Sense::Eq, 1.0);
-        }
-        let mut hits: Vec<f64> = vec![0.0; active.len()];
-        for extra in &extras {
-            let mut expr: Vec<(Col, f64)> = Vec::new();
-            let rhs = match extra {
-                Extra::Cut(r) => {
-                    let row = &pool.rows[*r];
-                    let mut touched = Vec::new();
-                    for &e in &row.links {
-                        expr.push((z[e as usize], 1.0));
-                        for &j in &by_link[e as usize] {
-                            if hits[j as usize] == 0.0 {
-                                touched.push(j);
-                            }
-                            hits[j as usize] += 1.0;
-                        }
-                    }
-                    touched.sort_unstable();
-                    for j in touched {
-                        expr.push((x[j as usize], hits[j as usize]));
-                        hits[j as usize] = 0.0;
-                    }
-                    row.rhs as f64
-                }
-                Extra::Size(s, i) => {
-                    boundary(&sets[*s as usize], incident, &ends, |e| {
-                        expr.push((z[e], 1.0))
-                    });
-                    expr.push((u[*i as usize], -1.0));
-                    0.0
-                }
-                Extra::Count(set) => {
-                    touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
-                    expr.extend(set.iter().map(|&v| (u[v as usize], -1.0)));
-                    -((set.len() / (k + 1)) as f64)
-                }
-                Extra::Large(set) => {
-                    touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
-                    let r = ratio(set);
-                    expr.extend(set.iter().map(|&v| (u[v as usize], -r)));
-                    0.0
-                }
-            };
-            p.row(&expr, Sense::Ge, rhs);
-        }
+        let (mut p, z, u, x) = round_lp(inst, k, &active, &columns, &sets, &extras, pool);
         let vars = m + n + active.len();
         let rows = n + extras.len();
         // Each solve within the deadline and at most ROUND_TIME: a solve
@@ -328,28 +192,7 @@ pub(crate) fn group_bound(
         warm = sol.basis().map(|w| (w, vars, rows));
 
         // Pricing over every listed column.
-        let pi = &duals[..n];
-        let mut w: Vec<f64> = inst.links.iter().map(|l| l.cost).collect();
-        for (extra, &mu) in extras.iter().zip(&duals[n..]) {
-            if let Extra::Cut(r) = extra {
-                for &e in &pool.rows[*r].links {
-                    w[e as usize] -= mu.max(0.0);
-                }
-            }
-        }
-        let mut priced: Vec<(f64, u32)> = Vec::new();
-        let mut least = 0.0f64;
-        for (c, col) in columns.iter().enumerate() {
-            let rc = col.tree.iter().map(|&e| w[e as usize]).sum::<f64>()
-                - sets[col.set as usize]
-                    .iter()
-                    .map(|&v| pi[v as usize])
-                    .sum::<f64>();
-            least = least.min(rc);
-            if rc < -TOL && !is_active[c] {
-                priced.push((rc, c as u32));
-            }
-        }
+        let (least, mut priced) = price(inst, pool, &extras, &columns, &sets, &is_active, &duals);
         stats.bound = stats.bound.max(value + n as f64 * least);
         priced.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
         priced.truncate(NEW_COLUMNS);
@@ -392,58 +235,10 @@ pub(crate) fn group_bound(
         cuts.truncate(NEW_CUTS);
         new_rows.extend(cuts.iter().map(|&(_, i)| Extra::Cut(i)));
         // Size rows.
-        let mut size: Vec<(f64, Extra)> = Vec::new();
-        for (s, set) in sets.iter().enumerate() {
-            let (most, unit) = set
-                .iter()
-                .map(|&v| (uv[v as usize], v))
-                .fold((0.0, 0), |a, b| if b.0 > a.0 { b } else { a });
-            if most <= TOL {
-                continue;
-            }
-            let mut out = 0.0;
-            boundary(set, incident, &ends, |e| out += zv[e]);
-            let row = Extra::Size(s as u32, unit);
-            if most - out > TOL && !present.contains(&row) {
-                size.push((most - out, row));
-            }
-        }
+        let mut size = size_rows(&sets, &uv, &zv, incident, &ends, &present);
         take_most(&mut size, NEW_SIZE_ROWS, &mut new_rows);
         // Large-component rows: pieces of the z support, and listed sets.
-        let mut large: Vec<(f64, Extra)> = Vec::new();
-        let mut candidates: Vec<Vec<u32>> = Vec::new();
-        for t in [TOL, 0.2, 0.5] {
-            let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
-            for (e, &(a, b)) in ends.iter().enumerate() {
-                if zv[e] > t {
-                    adj[a as usize].push(b);
-                    adj[b as usize].push(a);
-                }
-            }
-            candidates.extend(pieces(&adj));
-        }
-        let mut seen: HashSet<Vec<u32>> = HashSet::new();
-        for set in candidates.iter().chain(sets.iter()) {
-            let units = set.iter().map(|&v| uv[v as usize]).sum::<f64>();
-            let need = ratio(set) * units;
-            // At most |S|/(k+1) large components fit inside S.
-            let counted = units - (set.len() / (k + 1)) as f64;
-            if need.max(counted) <= TOL {
-                continue;
-            }
-            let mut have = 0.0;
-            touching(set, incident, &ends, |e| have += zv[e]);
-            if need.max(counted) - have > TOL && seen.insert(set.clone()) {
-                let (violation, row) = if counted > need {
-                    (counted - have, Extra::Count(set.clone()))
-                } else {
-                    (need - have, Extra::Large(set.clone()))
-                };
-                if !present.contains(&row) {
-                    large.push((violation, row));
-                }
-            }
-        }
+        let mut large = large_rows(n, k, &sets, &uv, &zv, incident, &ends, &present);
         take_most(&mut large, NEW_LARGE_ROWS, &mut new_rows);
 
         if debug {
@@ -505,6 +300,297 @@ pub(crate) fn group_bound(
     stats.used_columns = active.len();
     stats.time = t0.elapsed();
     (stats.bound > f64::NEG_INFINITY).then_some((stats, last_point))
+}
+
+/// Prices every listed column at the duals of a round's LP: the least
+/// reduced cost, and the inactive columns with negative reduced cost.
+fn price(
+    inst: &Instance,
+    pool: &Pool,
+    extras: &[Extra],
+    columns: &[Column],
+    sets: &[Vec<u32>],
+    is_active: &[bool],
+    duals: &[f64],
+) -> (f64, Vec<(f64, u32)>) {
+    let n = inst.n;
+    let pi = &duals[..n];
+    let mut w: Vec<f64> = inst.links.iter().map(|l| l.cost).collect();
+    for (extra, &mu) in extras.iter().zip(&duals[n..]) {
+        if let Extra::Cut(r) = extra {
+            for &e in &pool.rows[*r].links {
+                w[e as usize] -= mu.max(0.0);
+            }
+        }
+    }
+    let mut priced: Vec<(f64, u32)> = Vec::new();
+    let mut least = 0.0f64;
+    for (c, col) in columns.iter().enumerate() {
+        let rc = col.tree.iter().map(|&e| w[e as usize]).sum::<f64>()
+            - sets[col.set as usize]
+                .iter()
+                .map(|&v| pi[v as usize])
+                .sum::<f64>();
+        least = least.min(rc);
+        if rc < -TOL && !is_active[c] {
+            priced.push((rc, c as u32));
+        }
+    }
+    (least, priced)
+}
+
+/// The LP of one round: z (one per link), u (one per unit), then the
+/// active columns; coverage rows, then the extra rows in the order they
+/// came.
+fn round_lp(
+    inst: &Instance,
+    k: usize,
+    active: &[u32],
+    columns: &[Column],
+    sets: &[Vec<u32>],
+    extras: &[Extra],
+    pool: &Pool,
+) -> (Lp, Vec<Col>, Vec<Col>, Vec<Col>) {
+    let (n, m) = (inst.n, inst.links.len());
+    let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
+    let incident = &inst.heads;
+    let mut p = Lp::minimise();
+    let z: Vec<Col> = inst
+        .links
+        .iter()
+        .map(|l| p.column(l.cost, 0.0, 1.0))
+        .collect();
+    let u: Vec<Col> = (0..n).map(|_| p.column(0.0, 0.0, 1.0)).collect();
+    let x: Vec<Col> = active
+        .iter()
+        .map(|&c| p.column(columns[c as usize].cost, 0.0, f64::INFINITY))
+        .collect();
+    let mut cover: Vec<Vec<(Col, f64)>> = (0..n).map(|i| vec![(u[i], 1.0)]).collect();
+    // by_link[e]: active columns whose tree holds link e.
+    let mut by_link: Vec<Vec<u32>> = vec![Vec::new(); m];
+    for (j, &c) in active.iter().enumerate() {
+        let col = &columns[c as usize];
+        for &v in &sets[col.set as usize] {
+            cover[v as usize].push((x[j], 1.0));
+        }
+        for &e in &col.tree {
+            by_link[e as usize].push(j as u32);
+        }
+    }
+    for row in &cover {
+        p.row(row, Sense::Eq, 1.0);
+    }
+    let mut hits: Vec<f64> = vec![0.0; active.len()];
+    for extra in extras {
+        let mut expr: Vec<(Col, f64)> = Vec::new();
+        let rhs = match extra {
+            Extra::Cut(r) => {
+                let row = &pool.rows[*r];
+                let mut touched = Vec::new();
+                for &e in &row.links {
+                    expr.push((z[e as usize], 1.0));
+                    for &j in &by_link[e as usize] {
+                        if hits[j as usize] == 0.0 {
+                            touched.push(j);
+                        }
+                        hits[j as usize] += 1.0;
+                    }
+                }
+                touched.sort_unstable();
+                for j in touched {
+                    expr.push((x[j as usize], hits[j as usize]));
+                    hits[j as usize] = 0.0;
+                }
+                row.rhs as f64
+            }
+            Extra::Size(s, i) => {
+                boundary(&sets[*s as usize], incident, &ends, |e| {
+                    expr.push((z[e], 1.0))
+                });
+                expr.push((u[*i as usize], -1.0));
+                0.0
+            }
+            Extra::Count(set) => {
+                touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                expr.extend(set.iter().map(|&v| (u[v as usize], -1.0)));
+                -((set.len() / (k + 1)) as f64)
+            }
+            Extra::Large(set) => {
+                touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                let r = ratio(set.len(), k);
+                expr.extend(set.iter().map(|&v| (u[v as usize], -r)));
+                0.0
+            }
+        };
+        p.row(&expr, Sense::Ge, rhs);
+    }
+    (p, z, u, x)
+}
+
+/// Every connected set of at most k units, and the excited ones as
+/// columns (each at its minimum spanning tree). k is the largest size up
+/// to `max_k` whose sets, with the smaller ones, number at most `max_sets`
+/// (counted first; a size is listed whole or not at all, so that pricing
+/// stays exact). `None` when no size fits or `late()` stops the listing.
+#[allow(clippy::too_many_arguments)]
+fn list_columns(
+    inst: &Instance,
+    nbrs: &[Vec<u32>],
+    ends: &[(u32, u32)],
+    max_k: usize,
+    max_sets: usize,
+    late: &dyn Fn() -> bool,
+    sink: &crate::progress::Sink,
+    t0: Instant,
+) -> Option<(usize, Vec<Vec<u32>>, Vec<Column>)> {
+    // Every connected set of at most k units; the excited ones are columns.
+    // k is the largest size up to `max_k` whose sets, with the smaller
+    // ones, number at most `max_sets` (counted first; a size is listed whole
+    // or not at all, so that pricing stays exact).
+    // Counting stops at max_sets, so dense networks cost no long walk.
+    let mut k = 0;
+    let mut total = 0;
+    for size in 1..=max_k {
+        let mut count = 0;
+        walk_connected_sets(nbrs, size, |_, _| {
+            count += 1;
+            (count <= max_sets).then_some(false)
+        });
+        if count > max_sets || late() {
+            break;
+        }
+        (k, total) = (size, count);
+    }
+    if k == 0 {
+        return None;
+    }
+    let mut sets: Vec<Vec<u32>> = Vec::with_capacity(total);
+    let mut columns: Vec<Column> = Vec::new();
+    let mut stopped = false;
+    walk_connected_sets(nbrs, k, |set, parent_excited| {
+        if sets.len().is_multiple_of(1024) && late() {
+            stopped = true;
+            return None;
+        }
+        let id = sets.len() as u32;
+        sets.push(set.to_vec());
+        // Excitation is monotone: a set holding an excited one is excited.
+        let excited = parent_excited || inst.oracle.excited(set);
+        if excited {
+            let (tree, cost) = spanning_tree(inst, ends, set);
+            columns.push(Column {
+                set: id,
+                tree,
+                cost,
+            });
+        }
+        Some(excited)
+    });
+    if sink.wants_debug() {
+        sink.debug(|| {
+            format!(
+                "[groups] k {k}: {} sets, {} columns listed in {:.1?}{}",
+                sets.len(),
+                columns.len(),
+                t0.elapsed(),
+                if stopped { " (stopped)" } else { "" }
+            )
+        });
+    }
+    if stopped {
+        return None;
+    }
+    Some((k, sets, columns))
+}
+
+/// A set of at most k units holds no large component: all its units in
+/// large components reach outside, so the links touching it span them
+/// (share 1); a larger set's units need a share k/(k+1).
+fn ratio(len: usize, k: usize) -> f64 {
+    if len <= k {
+        1.0
+    } else {
+        k as f64 / (k as f64 + 1.0)
+    }
+}
+
+/// Violated size rows at the point (z, u): for each listed set, its unit
+/// with the largest u against the z on the set's boundary.
+fn size_rows(
+    sets: &[Vec<u32>],
+    uv: &[f64],
+    zv: &[f64],
+    incident: &[Vec<usize>],
+    ends: &[(u32, u32)],
+    present: &HashSet<Extra>,
+) -> Vec<(f64, Extra)> {
+    let mut size: Vec<(f64, Extra)> = Vec::new();
+    for (s, set) in sets.iter().enumerate() {
+        let (most, unit) = set
+            .iter()
+            .map(|&v| (uv[v as usize], v))
+            .fold((0.0, 0), |a, b| if b.0 > a.0 { b } else { a });
+        if most <= TOL {
+            continue;
+        }
+        let mut out = 0.0;
+        boundary(set, incident, ends, |e| out += zv[e]);
+        let row = Extra::Size(s as u32, unit);
+        if most - out > TOL && !present.contains(&row) {
+            size.push((most - out, row));
+        }
+    }
+    size
+}
+
+/// Violated large-component rows at the point (z, u), over the pieces of
+/// the z support at three thresholds and the listed sets.
+#[allow(clippy::too_many_arguments)]
+fn large_rows(
+    n: usize,
+    k: usize,
+    sets: &[Vec<u32>],
+    uv: &[f64],
+    zv: &[f64],
+    incident: &[Vec<usize>],
+    ends: &[(u32, u32)],
+    present: &HashSet<Extra>,
+) -> Vec<(f64, Extra)> {
+    let mut large: Vec<(f64, Extra)> = Vec::new();
+    let mut candidates: Vec<Vec<u32>> = Vec::new();
+    for t in [TOL, 0.2, 0.5] {
+        let mut adj: Vec<Vec<u32>> = vec![Vec::new(); n];
+        for (e, &(a, b)) in ends.iter().enumerate() {
+            if zv[e] > t {
+                adj[a as usize].push(b);
+                adj[b as usize].push(a);
+            }
+        }
+        candidates.extend(pieces(&adj));
+    }
+    let mut seen: HashSet<Vec<u32>> = HashSet::new();
+    for set in candidates.iter().chain(sets.iter()) {
+        let units = set.iter().map(|&v| uv[v as usize]).sum::<f64>();
+        let need = ratio(set.len(), k) * units;
+        // At most |S|/(k+1) large components fit inside S.
+        let counted = units - (set.len() / (k + 1)) as f64;
+        if need.max(counted) <= TOL {
+            continue;
+        }
+        let mut have = 0.0;
+        touching(set, incident, ends, |e| have += zv[e]);
+        if need.max(counted) - have > TOL && seen.insert(set.clone()) {
+            let (violation, row) = if counted > need {
+                (counted - have, Extra::Count(set.clone()))
+            } else {
+                (need - have, Extra::Large(set.clone()))
+            };
+            if !present.contains(&row) {
+                large.push((violation, row));
+            }
+        }
+    }
+    large
 }
 
 /// Moves the `most` most violated rows (ties: first found) into `out`.
