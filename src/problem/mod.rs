@@ -8,7 +8,7 @@ pub use plan_file::{PlanFacts, read_link_set, read_plan_file};
 
 use crate::error::{InputError, line_of};
 use crate::signal::{Log, TimeDomain, Window, WindowKind, parse_log, windows};
-use raw::{RawLink, RawProblem};
+use raw::{RawEstimator, RawLink, RawNode, RawProblem};
 use rayon::prelude::*;
 use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
@@ -437,7 +437,6 @@ impl Validator<'_> {
         }
         let p = p as usize;
         let positive = |x: f64| x > 0.0;
-        let non_negative = |x: f64| x >= 0.0;
         let window = self.number(
             &net.window,
             "window",
@@ -472,152 +471,11 @@ impl Validator<'_> {
             .as_ref()
             .map(|s| self.number(s, "target_rate", positive, "a positive rate in 1/s"))
             .transpose()?;
-        let e = &raw.estimator;
-        let d = Gains::default();
-        let gains = Gains {
-            flow_gain: self.optional(
-                &e.flow_gain,
-                "flow_gain",
-                d.flow_gain,
-                non_negative,
-                "a number ≥ 0",
-            )?,
-            jump_gain: self.optional(
-                &e.jump_gain,
-                "jump_gain",
-                d.jump_gain,
-                |x| (0.0..=2.0).contains(&x),
-                "a number from 0 to 2 (above 2 a unit's own jump map expands the error \
-                 along a large regressor, whatever the links)",
-            )?,
-            flow_coupling: self.optional(
-                &e.flow_coupling,
-                "flow_coupling",
-                d.flow_coupling,
-                non_negative,
-                "a number ≥ 0",
-            )?,
-            jump_coupling: self.optional(
-                &e.jump_coupling,
-                "jump_coupling",
-                d.jump_coupling,
-                non_negative,
-                "a number ≥ 0",
-            )?,
-            link_weight: self.optional(
-                &e.link_weight,
-                "link_weight",
-                d.link_weight,
-                positive,
-                "a positive number",
-            )?,
-        };
+        let gains = self.gains(&raw.estimator)?;
 
-        // Units.
-        if raw.nodes.is_empty() {
-            return Err(InputError::whole(
-                self.path,
-                "expected at least one [[node]]",
-            ));
-        }
-        let mut index: HashMap<&str, NodeId> = HashMap::new();
-        let mut positions = Vec::with_capacity(raw.nodes.len());
-        for (k, node) in raw.nodes.iter().enumerate() {
-            let id = node.id.get_ref().as_str();
-            if id.trim().is_empty() {
-                return Err(self.err(&node.id, "expected a non-empty unit id"));
-            }
-            if index.insert(id, NodeId(k as u32)).is_some() {
-                return Err(self.err(
-                    &node.id,
-                    format!("duplicate unit id \"{id}\"; expected every [[node]] id to be unique"),
-                ));
-            }
-            let position = match &node.position {
-                None => None,
-                Some(pos) => match pos.get_ref().as_slice() {
-                    &[x, y] if x.is_finite() && y.is_finite() => Some([x, y]),
-                    _ => {
-                        return Err(
-                            self.err(pos, "position: expected two finite numbers [x_km, y_km]")
-                        );
-                    }
-                },
-            };
-            positions.push(position);
-        }
-        let base = self.path.parent().unwrap_or(Path::new(""));
-        let logs: Vec<Result<Log, InputError>> = raw
-            .nodes
-            .par_iter()
-            .map(|node| {
-                let log_path = base.join(node.log.get_ref());
-                let text = read(&log_path).map_err(|e| {
-                    self.err(
-                        &node.log,
-                        format!("cannot read log file {}: {e}", log_path.display()),
-                    )
-                })?;
-                parse_log(&log_path, &text, p)
-            })
-            .collect();
-        let mut nodes = Vec::with_capacity(logs.len());
-        for ((node, log), position) in raw.nodes.iter().zip(logs).zip(positions) {
-            nodes.push(Node {
-                id: node.id.get_ref().clone(),
-                log: log?,
-                position,
-            });
-        }
+        let (nodes, index) = self.nodes(&raw.nodes, p, read)?;
 
-        // Links.
-        let mut links: Vec<Link> = Vec::new();
-        let mut ids: BTreeMap<String, usize> = BTreeMap::new();
-        for raw_link in &raw.links {
-            let link = self.link(raw_link, &index, gains.link_weight)?;
-            if let Some(&line) = ids.get(&link.id) {
-                return Err(self.err(raw_link, format!(
-                    "duplicate link id \"{}\" (also on line {line}); give one of them a distinct `id`",
-                    link.id
-                )));
-            }
-            ids.insert(link.id.clone(), line_of(self.text, raw_link.span().start));
-            links.push(link);
-        }
-        if let Some(c) = &raw.candidates {
-            let cand = c.get_ref();
-            let range = self.number(&cand.range, "range", positive, "a positive distance in km")?;
-            let fixed = self.number(&cand.fixed_cost, "fixed_cost", non_negative, "a cost ≥ 0")?;
-            let per_km =
-                self.number(&cand.cost_per_km, "cost_per_km", non_negative, "a cost ≥ 0")?;
-            if nodes.iter().all(|n| n.position.is_none()) {
-                return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` on the [[node]] entries"));
-            }
-            for a in 0..nodes.len() {
-                for b in a + 1..nodes.len() {
-                    let (Some(pa), Some(pb)) = (nodes[a].position, nodes[b].position) else {
-                        continue;
-                    };
-                    let dist = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
-                    if dist > range {
-                        continue;
-                    }
-                    let id = format!("{}<->{}", nodes[a].id, nodes[b].id);
-                    let reverse = format!("{}<->{}", nodes[b].id, nodes[a].id);
-                    if ids.contains_key(&id) || ids.contains_key(&reverse) {
-                        continue;
-                    }
-                    links.push(Link {
-                        id,
-                        ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
-                        cost: fixed + per_km * dist,
-                        weight: gains.link_weight,
-                        installed: false,
-                        generated: true,
-                    });
-                }
-            }
-        }
+        let links = self.links(&raw, &index, &nodes, gains.link_weight)?;
 
         let domain = TimeDomain::merge(nodes.iter().map(|n| &n.log)).ok_or_else(|| {
             InputError::whole(self.path, "the unit logs do not overlap in time; expected a common horizon of positive length")
@@ -655,6 +513,177 @@ impl Validator<'_> {
             domain,
             windows,
         })
+    }
+
+    /// The `[estimator]` table.
+    fn gains(&self, e: &RawEstimator) -> Result<Gains, InputError> {
+        let positive = |x: f64| x > 0.0;
+        let non_negative = |x: f64| x >= 0.0;
+        let d = Gains::default();
+        Ok(Gains {
+            flow_gain: self.optional(
+                &e.flow_gain,
+                "flow_gain",
+                d.flow_gain,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            jump_gain: self.optional(
+                &e.jump_gain,
+                "jump_gain",
+                d.jump_gain,
+                |x| (0.0..=2.0).contains(&x),
+                "a number from 0 to 2 (above 2 a unit's own jump map expands the error \
+                 along a large regressor, whatever the links)",
+            )?,
+            flow_coupling: self.optional(
+                &e.flow_coupling,
+                "flow_coupling",
+                d.flow_coupling,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            jump_coupling: self.optional(
+                &e.jump_coupling,
+                "jump_coupling",
+                d.jump_coupling,
+                non_negative,
+                "a number ≥ 0",
+            )?,
+            link_weight: self.optional(
+                &e.link_weight,
+                "link_weight",
+                d.link_weight,
+                positive,
+                "a positive number",
+            )?,
+        })
+    }
+
+    /// The `[[node]]` tables, with their logs read and parsed in parallel;
+    /// also the index of unit ids.
+    fn nodes<'r>(
+        &self,
+        raw_nodes: &'r [RawNode],
+        p: usize,
+        read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
+    ) -> Result<(Vec<Node>, HashMap<&'r str, NodeId>), InputError> {
+        if raw_nodes.is_empty() {
+            return Err(InputError::whole(
+                self.path,
+                "expected at least one [[node]]",
+            ));
+        }
+        let mut index: HashMap<&str, NodeId> = HashMap::new();
+        let mut positions = Vec::with_capacity(raw_nodes.len());
+        for (k, node) in raw_nodes.iter().enumerate() {
+            let id = node.id.get_ref().as_str();
+            if id.trim().is_empty() {
+                return Err(self.err(&node.id, "expected a non-empty unit id"));
+            }
+            if index.insert(id, NodeId(k as u32)).is_some() {
+                return Err(self.err(
+                    &node.id,
+                    format!("duplicate unit id \"{id}\"; expected every [[node]] id to be unique"),
+                ));
+            }
+            let position = match &node.position {
+                None => None,
+                Some(pos) => match pos.get_ref().as_slice() {
+                    &[x, y] if x.is_finite() && y.is_finite() => Some([x, y]),
+                    _ => {
+                        return Err(
+                            self.err(pos, "position: expected two finite numbers [x_km, y_km]")
+                        );
+                    }
+                },
+            };
+            positions.push(position);
+        }
+        let base = self.path.parent().unwrap_or(Path::new(""));
+        let logs: Vec<Result<Log, InputError>> = raw_nodes
+            .par_iter()
+            .map(|node| {
+                let log_path = base.join(node.log.get_ref());
+                let text = read(&log_path).map_err(|e| {
+                    self.err(
+                        &node.log,
+                        format!("cannot read log file {}: {e}", log_path.display()),
+                    )
+                })?;
+                parse_log(&log_path, &text, p)
+            })
+            .collect();
+        let mut nodes = Vec::with_capacity(logs.len());
+        for ((node, log), position) in raw_nodes.iter().zip(logs).zip(positions) {
+            nodes.push(Node {
+                id: node.id.get_ref().clone(),
+                log: log?,
+                position,
+            });
+        }
+
+        Ok((nodes, index))
+    }
+
+    /// The `[[link]]` tables and the links generated from `[candidates]`.
+    fn links(
+        &self,
+        raw: &RawProblem,
+        index: &HashMap<&str, NodeId>,
+        nodes: &[Node],
+        link_weight: f64,
+    ) -> Result<Vec<Link>, InputError> {
+        let positive = |x: f64| x > 0.0;
+        let non_negative = |x: f64| x >= 0.0;
+        let mut links: Vec<Link> = Vec::new();
+        let mut ids: BTreeMap<String, usize> = BTreeMap::new();
+        for raw_link in &raw.links {
+            let link = self.link(raw_link, index, link_weight)?;
+            if let Some(&line) = ids.get(&link.id) {
+                return Err(self.err(raw_link, format!(
+                    "duplicate link id \"{}\" (also on line {line}); give one of them a distinct `id`",
+                    link.id
+                )));
+            }
+            ids.insert(link.id.clone(), line_of(self.text, raw_link.span().start));
+            links.push(link);
+        }
+        if let Some(c) = &raw.candidates {
+            let cand = c.get_ref();
+            let range = self.number(&cand.range, "range", positive, "a positive distance in km")?;
+            let fixed = self.number(&cand.fixed_cost, "fixed_cost", non_negative, "a cost ≥ 0")?;
+            let per_km =
+                self.number(&cand.cost_per_km, "cost_per_km", non_negative, "a cost ≥ 0")?;
+            if nodes.iter().all(|n| n.position.is_none()) {
+                return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` on the [[node]] entries"));
+            }
+            for a in 0..nodes.len() {
+                for b in a + 1..nodes.len() {
+                    let (Some(pa), Some(pb)) = (nodes[a].position, nodes[b].position) else {
+                        continue;
+                    };
+                    let dist = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
+                    if dist > range {
+                        continue;
+                    }
+                    let id = format!("{}<->{}", nodes[a].id, nodes[b].id);
+                    let reverse = format!("{}<->{}", nodes[b].id, nodes[a].id);
+                    if ids.contains_key(&id) || ids.contains_key(&reverse) {
+                        continue;
+                    }
+                    links.push(Link {
+                        id,
+                        ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+                        cost: fixed + per_km * dist,
+                        weight: link_weight,
+                        installed: false,
+                        generated: true,
+                    });
+                }
+            }
+        }
+        Ok(links)
     }
 
     fn link(
