@@ -1,9 +1,13 @@
 //! The planning engine: the cheapest link set such that every source
 //! component of the chosen digraph is excited, with a proven lower bound.
 //!
-//! Stages: feasibility of the all-candidates graph; greedy incumbent by
-//! reverse-delete; branch and cut on the covering model (cuts and partition
-//! inequalities separated lazily, see docs/theory.md §5); final irreducibility.
+//! [`plan`] runs three stages: the structural stage (`structural.rs`:
+//! feasibility of the all-candidates graph, greedy incumbent, branch and cut
+//! on the covering model with rows separated lazily, final irreducibility;
+//! docs/theory.md §4–5), the rate stage when the problem sets `target_rate`
+//! (`rate.rs`, §7), and, when a failure must be survived, a plain plan for
+//! the price of that requirement. The constants' measurements are in
+//! docs/tuning.md.
 
 mod bnc;
 mod connected_sets;

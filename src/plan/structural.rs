@@ -71,12 +71,8 @@ impl Found<'_> {
 }
 
 /// Share of the time limit the root's cutting may use on networks that
-/// get neighbourhood search (which runs on a second thread meanwhile).
-/// 0.45 while that search ran after the root on the same core; with the
-/// second thread, 0.85 lifted the 60 s root bound at 500 units from
-/// 225009/237021 to 225295/237311 (seeds 1/2; gap 2.57/2.87 % →
-/// 2.44/2.75 %), and 150 units seed 3 (the slowest root there) kept its
-/// gap (1.78 %).
+/// get neighbourhood search (which runs on a second thread meanwhile;
+/// measurements: docs/tuning.md, "Root share of the time limit").
 const ROOT_SHARE: f64 = 0.85;
 
 /// Runs the structural stage: the cheapest link set whose source

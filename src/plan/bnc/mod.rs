@@ -55,9 +55,7 @@ const THRESHOLDS: [f64; 4] = [0.999, 0.5, 0.2, 1e-6];
 const ROOT_SUPPORT: usize = 9;
 const NODE_SUPPORT: usize = 4;
 /// Support-set size at a root while the other separators still find rows
-/// (500 units seed 1, 60 s: bound 222205 without this supplement, 224661
-/// with 4 groups, 225009 with 5, 224967 with 6; 9 every round made the
-/// separation too slow: 221320).
+/// (measurements: docs/tuning.md, "Root").
 const ROOT_SUPPLEMENT: usize = 5;
 /// Separation rounds per node below the root (fractional points).
 const NODE_ROUNDS: u32 = 8;
@@ -66,10 +64,8 @@ const INT_TOL: f64 = 1e-6;
 /// within this share of the way from the best open bound to the cutoff;
 /// otherwise the child is queued with its LP and the best node is taken
 /// (a limited plunge, as in best-first search with plunging; the value 0.25
-/// is the quotient SCIP's best-first node selector uses, from memory).
-/// Measured at 1000 nodes on the 150-unit benchmark (seeds 1/2/3): bound
-/// 65932/71681/71076 with an unlimited dive, 66023/71753/71222 with 0.25;
-/// on seed 1, 0 (no plunging) gave 65944, 0.1 66016, 0.5 66006.
+/// is the quotient SCIP's best-first node selector uses, from memory;
+/// measurements: docs/tuning.md, "Tree").
 const PLUNGE_QUOT: f64 = 0.25;
 
 /// The bound from small components as columns (`groups`) runs on two-way
