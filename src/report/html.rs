@@ -103,7 +103,6 @@ pub fn assemble(
 /// Renders the report.
 pub fn report(r: &ReportInput) -> String {
     let p = r.problem;
-    let c = r.check;
     let mut h = String::new();
     let _ = write!(
         h,
@@ -129,22 +128,46 @@ pub fn report(r: &ReportInput) -> String {
         CAUTIONS.map(escape).join(" ")
     );
 
-    // Summary.
-    let _ = writeln!(h, "<h2>Summary</h2>\n<table>");
+    summary(&mut h, r);
+    // Map.
+    let _ = writeln!(h, "<h2>Map</h2>\n<div class=\"fig\">{}</div>", r.map_svg);
+
+    links(&mut h, r);
+    components(&mut h, r);
+    certificate(&mut h, r);
+    simulation(&mut h, r);
+    front(&mut h, r);
+    let _ = writeln!(h, "<h2>Cautions</h2>\n<ul>");
+    for c in CAUTIONS {
+        let _ = writeln!(h, "<li>{}</li>", escape(c));
+    }
+    let _ = writeln!(
+        h,
+        "</ul>\n<p class=\"muted\">Made by exmesh {}.</p>\n</body>\n</html>",
+        env!("CARGO_PKG_VERSION")
+    );
+    h
+}
+
+/// The summary table.
+fn summary(h: &mut String, r: &ReportInput) {
+    let p = r.problem;
+    let c = r.check;
+    let _ = writeln!(*h, "<h2>Summary</h2>\n<table>");
     let row = |h: &mut String, k: &str, v: String| {
-        let _ = writeln!(h, "<tr><th>{}</th><td>{}</td></tr>", escape(k), escape(&v));
+        let _ = writeln!(*h, "<tr><th>{}</th><td>{}</td></tr>", escape(k), escape(&v));
     };
-    row(&mut h, "units", p.n().to_string());
-    row(&mut h, "candidate links", p.links.len().to_string());
-    row(&mut h, "chosen links", r.set.ids().len().to_string());
-    row(&mut h, "cost of the chosen links", format!("{:.2}", c.cost));
+    row(h, "units", p.n().to_string());
+    row(h, "candidate links", p.links.len().to_string());
+    row(h, "chosen links", r.set.ids().len().to_string());
+    row(h, "cost of the chosen links", format!("{:.2}", c.cost));
     if let Some(s) = &r.facts.status {
-        row(&mut h, "plan status", s.clone());
+        row(h, "plan status", s.clone());
     }
     if r.facts.lower_bound.is_some() {
-        row(&mut h, "proven lower bound", f(r.facts.lower_bound, 2));
+        row(h, "proven lower bound", f(r.facts.lower_bound, 2));
         row(
-            &mut h,
+            h,
             "gap",
             r.facts
                 .gap
@@ -152,7 +175,7 @@ pub fn report(r: &ReportInput) -> String {
         );
     }
     row(
-        &mut h,
+        h,
         "condition",
         if c.condition_holds {
             "every source component is excited".into()
@@ -161,7 +184,7 @@ pub fn report(r: &ReportInput) -> String {
         },
     );
     row(
-        &mut h,
+        h,
         "verdict",
         match c.verdict {
             crate::analysis::Verdict::Converges => {
@@ -180,7 +203,7 @@ pub fn report(r: &ReportInput) -> String {
         },
     );
     row(
-        &mut h,
+        h,
         "required excitation μ_req",
         format!(
             "{:.4e} ({}; {} windows)",
@@ -195,7 +218,7 @@ pub fn report(r: &ReportInput) -> String {
     );
     if let Some(cert) = &c.certificate {
         row(
-            &mut h,
+            h,
             "certified rate",
             cert.rate
                 .map_or("not certified on this horizon".into(), |x| {
@@ -203,7 +226,7 @@ pub fn report(r: &ReportInput) -> String {
                 }),
         );
         row(
-            &mut h,
+            h,
             "time to 1 %",
             f(cert.time_to_1pct, 1)
                 + if cert.time_to_1pct_extrapolated {
@@ -213,7 +236,7 @@ pub fn report(r: &ReportInput) -> String {
                 },
         );
         row(
-            &mut h,
+            h,
             "window norms",
             match cert.norm_bound {
                 crate::certify::NormBoundKind::Exact => "exact (plus a rounding margin)".into(),
@@ -225,14 +248,14 @@ pub fn report(r: &ReportInput) -> String {
         );
     }
     if let Some(t) = p.settings.target_rate {
-        row(&mut h, "target rate", format!("{t:.4e} 1/s"));
+        row(h, "target rate", format!("{t:.4e} 1/s"));
     }
-    let _ = writeln!(h, "</table>");
+    let _ = writeln!(*h, "</table>");
+}
 
-    // Map.
-    let _ = writeln!(h, "<h2>Map</h2>\n<div class=\"fig\">{}</div>", r.map_svg);
-
-    // Links.
+/// The chosen links.
+fn links(h: &mut String, r: &ReportInput) {
+    let p = r.problem;
     let _ = writeln!(
         h,
         "<h2>Chosen links</h2>\n<table>\n<tr><th>link</th><th>from</th><th>to</th><th>kind</th><th>cost</th><th>state</th></tr>"
@@ -253,9 +276,12 @@ pub fn report(r: &ReportInput) -> String {
             if link.installed { "installed" } else { "new" }
         );
     }
-    let _ = writeln!(h, "</table>");
+    let _ = writeln!(*h, "</table>");
+}
 
-    // Components.
+/// The source components.
+fn components(h: &mut String, r: &ReportInput) {
+    let c = r.check;
     let _ = writeln!(
         h,
         "<h2>Source components</h2>\n<table>\n<tr><th>#</th><th>units</th><th>joint excitation</th><th>excited</th><th>drives</th></tr>"
@@ -271,11 +297,14 @@ pub fn report(r: &ReportInput) -> String {
             s.reaches.len()
         );
     }
-    let _ = writeln!(h, "</table>");
+    let _ = writeln!(*h, "</table>");
+}
 
-    // Certificate.
+/// The certificate.
+fn certificate(h: &mut String, r: &ReportInput) {
+    let c = r.check;
     if let Some(cert) = &c.certificate {
-        let _ = writeln!(h, "<h2>Certified convergence</h2>");
+        let _ = writeln!(*h, "<h2>Certified convergence</h2>");
         match cert.rate {
             Some(rate) => {
                 let _ = writeln!(
@@ -339,11 +368,13 @@ pub fn report(r: &ReportInput) -> String {
                 if g.ok { "pass" } else { "FAIL" }
             );
         }
-        let _ = writeln!(h, "</table>");
+        let _ = writeln!(*h, "</table>");
     }
+}
 
-    // Simulation.
-    let _ = writeln!(h, "<h2>Estimation error over time</h2>");
+/// The simulated estimation errors.
+fn simulation(h: &mut String, r: &ReportInput) {
+    let _ = writeln!(*h, "<h2>Estimation error over time</h2>");
     match &r.simulation {
         Ok((t, svg)) => {
             let reference = match t.reference_kind {
@@ -359,11 +390,13 @@ pub fn report(r: &ReportInput) -> String {
             );
         }
         Err(why) => {
-            let _ = writeln!(h, "<p class=\"muted\">No simulation: {}</p>", escape(why));
+            let _ = writeln!(*h, "<p class=\"muted\">No simulation: {}</p>", escape(why));
         }
     }
+}
 
-    // Front.
+/// The cost–rate front.
+fn front(h: &mut String, r: &ReportInput) {
     if let Some((front, svg)) = &r.front {
         let _ = writeln!(
             h,
@@ -378,17 +411,6 @@ pub fn report(r: &ReportInput) -> String {
                 pt.links.len()
             );
         }
-        let _ = writeln!(h, "</table>\n<div class=\"fig\">{svg}</div>");
+        let _ = writeln!(*h, "</table>\n<div class=\"fig\">{svg}</div>");
     }
-
-    let _ = writeln!(h, "<h2>Cautions</h2>\n<ul>");
-    for c in CAUTIONS {
-        let _ = writeln!(h, "<li>{}</li>", escape(c));
-    }
-    let _ = writeln!(
-        h,
-        "</ul>\n<p class=\"muted\">Made by exmesh {}.</p>\n</body>\n</html>",
-        env!("CARGO_PKG_VERSION")
-    );
-    h
 }
