@@ -538,37 +538,7 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         return cautions(out);
     }
     if p.status == PlanStatus::Infeasible {
-        writeln!(out)?;
-        // Survival shortfalls: every candidate together meets the plain
-        // condition, a single failure breaks it.
-        let plain_ok = p.source_components.iter().all(|c| c.excited);
-        let after = match p
-            .robustness
-            .as_ref()
-            .map(|r| r.survive)
-            .filter(|_| plain_ok)
-        {
-            Some(crate::plan::Survive::Link) => " after a single link failure",
-            Some(crate::plan::Survive::Unit) => " after the loss of a single unit",
-            _ => "",
-        };
-        writeln!(
-            out,
-            "Even with every candidate link, {} group(s) of units form a source component that is not excited{after}:",
-            p.shortfalls.len()
-        )?;
-        for s in &p.shortfalls {
-            writeln!(out, "  units: {}", s.nodes.join(", "))?;
-            writeln!(
-                out,
-                "    level {:.4e}, weakest direction {} (window from t = {})",
-                s.excitation,
-                direction(&s.weakest_direction),
-                s.weakest_window_start
-            )?;
-            writeln!(out, "    fix: {}", s.remedy)?;
-        }
-        return cautions(out);
+        return shortfalls(p, out);
     }
     let (cost, lower, gap) = (
         p.cost.unwrap_or(0.0),
@@ -627,31 +597,78 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         writeln!(out, "  units: {}", sc.nodes.join(", "))?;
     }
     if let Some(r) = &p.rate {
-        writeln!(out)?;
+        rate_stage(r, out)?;
+    }
+    search_figures(p, out)?;
+    cautions(out)
+}
+
+/// A plan found infeasible: the groups no candidate set can excite.
+fn shortfalls(p: &Plan, out: &mut impl Write) -> io::Result<()> {
+    writeln!(out)?;
+    // Survival shortfalls: every candidate together meets the plain
+    // condition, a single failure breaks it.
+    let plain_ok = p.source_components.iter().all(|c| c.excited);
+    let after = match p
+        .robustness
+        .as_ref()
+        .map(|r| r.survive)
+        .filter(|_| plain_ok)
+    {
+        Some(crate::plan::Survive::Link) => " after a single link failure",
+        Some(crate::plan::Survive::Unit) => " after the loss of a single unit",
+        _ => "",
+    };
+    writeln!(
+        out,
+        "Even with every candidate link, {} group(s) of units form a source component that is not excited{after}:",
+        p.shortfalls.len()
+    )?;
+    for s in &p.shortfalls {
+        writeln!(out, "  units: {}", s.nodes.join(", "))?;
         writeln!(
             out,
-            "target rate {:.4e} 1/s: {} — structural plan cost {:.2}, {} link(s) added for speed{}",
-            r.target,
-            if r.met { "met" } else { "NOT met" },
-            r.structural_cost,
-            r.added_links.len(),
-            if r.added_links.is_empty() {
-                String::new()
-            } else {
-                format!(" ({})", r.added_links.join(", "))
-            }
+            "    level {:.4e}, weakest direction {} (window from t = {})",
+            s.excitation,
+            direction(&s.weakest_direction),
+            s.weakest_window_start
         )?;
-        if let Some(mu) = r.raised_min_excitation {
-            writeln!(
-                out,
-                "  (from the structural optimum at a raised required excitation μ_req = {mu:.4e}, then pruned)"
-            )?;
-        }
-        if r.timed_out {
-            writeln!(out, "  (the time limit stopped the rate stage)")?;
-        }
-        certificate(&r.certificate, out)?;
+        writeln!(out, "    fix: {}", s.remedy)?;
     }
+    cautions(out)
+}
+
+/// The rate stage of a plan.
+fn rate_stage(r: &crate::plan::RatePlan, out: &mut impl Write) -> io::Result<()> {
+    writeln!(out)?;
+    writeln!(
+        out,
+        "target rate {:.4e} 1/s: {} — structural plan cost {:.2}, {} link(s) added for speed{}",
+        r.target,
+        if r.met { "met" } else { "NOT met" },
+        r.structural_cost,
+        r.added_links.len(),
+        if r.added_links.is_empty() {
+            String::new()
+        } else {
+            format!(" ({})", r.added_links.join(", "))
+        }
+    )?;
+    if let Some(mu) = r.raised_min_excitation {
+        writeln!(
+            out,
+            "  (from the structural optimum at a raised required excitation μ_req = {mu:.4e}, then pruned)"
+        )?;
+    }
+    if r.timed_out {
+        writeln!(out, "  (the time limit stopped the rate stage)")?;
+    }
+    certificate(&r.certificate, out)?;
+    Ok(())
+}
+
+/// The search figures and stage times of a plan.
+fn search_figures(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     let s = &p.stats;
     let t = &p.timings;
     writeln!(out)?;
@@ -689,5 +706,5 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         t.heuristics.as_secs_f64(),
         t.rate.as_secs_f64()
     )?;
-    cautions(out)
+    Ok(())
 }
