@@ -382,57 +382,15 @@ fn search_with(
     progress: &Sink,
     mut helper: Option<Helper>,
 ) -> SearchResult {
-    let deadline = limits.deadline;
     let mut s = Search::new(inst, start, limits, progress);
-    // The incumbent changes only when something strictly cheaper is found.
-    let start_cost = s.best_cost;
-    s.seed_pool();
-    let Some(root) = s.root_lp() else {
-        // The seed rows are valid, so this only happens on numerical trouble.
-        return finish(s, f64::NEG_INFINITY, true);
+    let Rooted {
+        master,
+        lower,
+        helper_at,
+    } = match root(&mut s, &mut helper, limits) {
+        Ok(rooted) => rooted,
+        Err((lower_bound, timed_out)) => return finish(s, lower_bound, timed_out),
     };
-
-    let mut lower = f64::NEG_INFINITY;
-    // The root's cutting may stop early to leave time for what follows.
-    s.deadline = limits.root_deadline.or(deadline);
-    let root_result = s.cut_loop(root, u32::MAX, true);
-    s.deadline = deadline;
-    let Some((root, y)) = root_result else {
-        // Root pruned: the incumbent is optimal.
-        s.stats.root_bound = s.last_objective;
-        let lb = s.best_cost;
-        return finish(s, lb, false);
-    };
-    s.stats.root_bound = root.objective();
-    lower = lower.max(bound_of(inst, root.objective()));
-    s.heuristic(&y);
-    let mut helper_at = 0;
-    if let Some(h) = helper.as_mut() {
-        // The second run starts from the root's incumbent (roundings of LP
-        // points), which leads the search elsewhere than the first run's
-        // start, unless the root found nothing.
-        let rooted = (s.best_cost < start_cost).then(|| s.best.clone());
-        h.take(&mut s, false);
-        if !s.timed_out() {
-            h.start(rooted.as_deref().unwrap_or(&s.best));
-            helper_at = s.stats.nodes + HELPER_NODES;
-        }
-    }
-    if s.timed_out() {
-        return finish(s, lower, true);
-    }
-    let master = s.stats.lp.run(1, || compact(inst, &s.pool, root));
-
-    // A second bound, from small components as columns, on large two-way
-    // networks, computed by the helper thread after its second run. It lifts
-    // the bound reported, not the tree's node bounds (which keep ordering
-    // the search).
-    if let Some(h) = helper.as_mut()
-        && inst.n >= GROUP_MIN_UNITS
-        && groups::applies(inst)
-    {
-        h.start_bound(s.pool.rows.clone(), master.rows.clone());
-    }
 
     let mut heap = BinaryHeap::new();
     heap.push(Node {
@@ -458,25 +416,9 @@ fn search_with(
         }
         let global = node.bound.max(lower);
         s.report(Some(global));
-        let solves = match node.lp {
-            NodeLp::Warm(_) => 1,
-            NodeLp::Rebuild => node.fixings.len() as u64 + 1,
+        let Some(mut current) = open_lp(&mut s, &master, node.lp, &node.fixings, global) else {
+            continue;
         };
-        let (pool, lost) = (&s.pool, &s.lost);
-        let lp = s.stats.lp.run(solves, || match node.lp {
-            NodeLp::Warm(r) => build_lp(
-                inst,
-                pool,
-                &r.rows,
-                &node.fixings,
-                Some(&r.warm),
-                lost,
-                global,
-            ),
-            // Rebuild from the master (which holds every used pool row).
-            NodeLp::Rebuild => master.duplicate().fix_all(&node.fixings),
-        });
-        let Some(mut current) = lp else { continue };
         let mut fixings = node.fixings;
         let mut depth = node.depth;
         let mut origin = node.origin;
@@ -505,20 +447,7 @@ fn search_with(
             let room = cutoff - obj + 1e-7 * cutoff.abs().max(1.0);
             let mut lp = lp;
             let start = fixings.len();
-            for (k, l) in inst.links.iter().enumerate() {
-                if l.installed || fixings.iter().any(|&(f, _)| f as usize == k) {
-                    continue;
-                }
-                let d = lp.reduced_cost(k);
-                let value = if y[k] < INT_TOL && d > room {
-                    false
-                } else if y[k] > 1.0 - INT_TOL && -d > room {
-                    true
-                } else {
-                    continue;
-                };
-                fixings.push((k as u32, value));
-            }
+            fix_by_cost(inst, &lp, &y, room, &mut fixings);
             let fixed = fixings.len() - start;
             if fixed > 0 {
                 let next = s.stats.lp.run(1, || lp.fix_all(&fixings[start..]));
@@ -608,6 +537,19 @@ fn search_with(
             break;
         }
     }
+    conclude(s, helper, &heap, lower, timed_out)
+}
+
+/// The search's answer after the tree: the helper's last results (the
+/// component bound among them) and the lower bound from the open nodes.
+fn conclude(
+    mut s: Search,
+    mut helper: Option<Helper>,
+    heap: &BinaryHeap<Node>,
+    lower: f64,
+    timed_out: bool,
+) -> SearchResult {
+    let inst = s.inst;
     let mut floor = f64::NEG_INFINITY;
     if let Some(h) = helper.as_mut() {
         // A finished tree proves the incumbent optimal: the runs cannot
@@ -628,6 +570,124 @@ fn search_with(
         s.best_cost
     };
     finish(s, lb, timed_out)
+}
+
+/// A node's LP: rebuilt from its parent's rows and basis, or from the
+/// master LP and the node's fixings.
+fn open_lp(
+    s: &mut Search,
+    master: &CoverLp,
+    lp: NodeLp,
+    fixings: &[(u32, bool)],
+    global: f64,
+) -> Option<CoverLp> {
+    let solves = match lp {
+        NodeLp::Warm(_) => 1,
+        NodeLp::Rebuild => fixings.len() as u64 + 1,
+    };
+    let (inst, pool, lost) = (s.inst, &s.pool, &s.lost);
+    s.stats.lp.run(solves, || match lp {
+        NodeLp::Warm(r) => build_lp(inst, pool, &r.rows, fixings, Some(&r.warm), lost, global),
+        // Rebuild from the master (which holds every used pool row).
+        NodeLp::Rebuild => master.duplicate().fix_all(fixings),
+    })
+}
+
+/// Reduced-cost fixing: appends to `fixings` every free link whose move
+/// off its bound would lift the LP value by more than `room`.
+fn fix_by_cost(
+    inst: &Instance,
+    lp: &CoverLp,
+    y: &[f64],
+    room: f64,
+    fixings: &mut Vec<(u32, bool)>,
+) {
+    for (k, l) in inst.links.iter().enumerate() {
+        if l.installed || fixings.iter().any(|&(f, _)| f as usize == k) {
+            continue;
+        }
+        let d = lp.reduced_cost(k);
+        let value = if y[k] < INT_TOL && d > room {
+            false
+        } else if y[k] > 1.0 - INT_TOL && -d > room {
+            true
+        } else {
+            continue;
+        };
+        fixings.push((k as u32, value));
+    }
+}
+
+/// What the root leaves for the tree: the compacted master LP, the root
+/// bound, and the node count at which the helper's second run is taken.
+struct Rooted {
+    master: CoverLp,
+    lower: f64,
+    helper_at: u64,
+}
+
+/// The root: seed rows, cutting to convergence (or the root deadline),
+/// the helper's first result and second start, the compacted master LP and
+/// the component bound's start. `Err((lower bound, timed out))` when the
+/// search ends at the root.
+fn root(
+    s: &mut Search,
+    helper: &mut Option<Helper>,
+    limits: Limits,
+) -> Result<Rooted, (f64, bool)> {
+    // The incumbent changes only when something strictly cheaper is found.
+    let start_cost = s.best_cost;
+    s.seed_pool();
+    let Some(root) = s.root_lp() else {
+        // The seed rows are valid, so this only happens on numerical trouble.
+        return Err((f64::NEG_INFINITY, true));
+    };
+
+    let mut lower = f64::NEG_INFINITY;
+    // The root's cutting may stop early to leave time for what follows.
+    s.deadline = limits.root_deadline.or(limits.deadline);
+    let root_result = s.cut_loop(root, u32::MAX, true);
+    s.deadline = limits.deadline;
+    let Some((root, y)) = root_result else {
+        // Root pruned: the incumbent is optimal.
+        s.stats.root_bound = s.last_objective;
+        return Err((s.best_cost, false));
+    };
+    s.stats.root_bound = root.objective();
+    lower = lower.max(bound_of(s.inst, root.objective()));
+    s.heuristic(&y);
+    let mut helper_at = 0;
+    if let Some(h) = helper.as_mut() {
+        // The second run starts from the root's incumbent (roundings of LP
+        // points), which leads the search elsewhere than the first run's
+        // start, unless the root found nothing.
+        let rooted = (s.best_cost < start_cost).then(|| s.best.clone());
+        h.take(s, false);
+        if !s.timed_out() {
+            h.start(rooted.as_deref().unwrap_or(&s.best));
+            helper_at = s.stats.nodes + HELPER_NODES;
+        }
+    }
+    if s.timed_out() {
+        return Err((lower, true));
+    }
+    let master = s.stats.lp.run(1, || compact(s.inst, &s.pool, root));
+
+    // A second bound, from small components as columns, on large two-way
+    // networks, computed by the helper thread after its second run. It lifts
+    // the bound reported, not the tree's node bounds (which keep ordering
+    // the search).
+    if let Some(h) = helper.as_mut()
+        && s.inst.n >= GROUP_MIN_UNITS
+        && groups::applies(s.inst)
+    {
+        h.start_bound(s.pool.rows.clone(), master.rows.clone());
+    }
+    Ok(Rooted {
+        master,
+        lower,
+        helper_at,
+    })
 }
 
 fn finish(s: Search, lower_bound: f64, timed_out: bool) -> SearchResult {
