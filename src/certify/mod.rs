@@ -173,6 +173,39 @@ pub struct Certificate {
     pub timing: CertTiming,
 }
 
+impl Certificate {
+    /// A certificate with no rate yet (nothing proven), for `problem`
+    /// with these gain checks.
+    fn unproven(problem: &Problem, gains: Vec<GainCheck>) -> Self {
+        Certificate {
+            rate: None,
+            window: problem.settings.window,
+            contraction: 1.0,
+            transient_factor: None,
+            envelope_from: problem.domain.h0,
+            transient_factor_any_start: None,
+            time_to_1pct: None,
+            time_to_1pct_extrapolated: false,
+            gains_ok: gains.iter().all(|g| g.ok),
+            gains,
+            asymptotic_rate: None,
+            windows: 0,
+            evaluated_windows: 0,
+            worst_window_start: None,
+            units: Vec::new(),
+            reason: None,
+            unconverged_windows: 0,
+            lanczos_steps: 0,
+            norm_bound: NormBoundKind::Exact,
+            failure_probability: 0.0,
+            blocks: Vec::new(),
+            worst_windows: Vec::new(),
+            worst_vector: Vec::new(),
+            timing: CertTiming::default(),
+        }
+    }
+}
+
 /// Where the certificate's time went.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct CertTiming {
@@ -182,6 +215,93 @@ pub struct CertTiming {
     pub horizon: std::time::Duration,
     /// Everything, structural check included.
     pub total: std::time::Duration,
+}
+
+/// Certifies every weakly connected component of the link set's digraph
+/// as a block of its own, in parallel.
+fn certify_blocks(
+    problem: &Problem,
+    schedule: &Schedule,
+    set: &LinkSet,
+    progress: &Sink,
+) -> Vec<Block> {
+    let arcs: Vec<(u32, u32, f64)> = problem
+        .arcs(set)
+        .into_iter()
+        .map(|a| (a.from.0, a.to.0, a.weight))
+        .collect();
+    let components = weak_components(problem.n(), &arcs);
+    components
+        .into_par_iter()
+        .enumerate()
+        .map(|(b, units)| {
+            let mut local = vec![u32::MAX; problem.n()];
+            for (k, &u) in units.iter().enumerate() {
+                local[u as usize] = k as u32;
+            }
+            let sub_arcs: Vec<(u32, u32, f64)> = arcs
+                .iter()
+                .filter(|a| local[a.1 as usize] != u32::MAX)
+                .map(|&(f, t, w)| (local[f as usize], local[t as usize], w))
+                .collect();
+            let sub = schedule.restrict(&units);
+            let system = ErrorSystem::new(&sub, problem.settings.gains, sub_arcs);
+            let seed = 0x5eed_cafe_u64 ^ (b as u64 + 1).wrapping_mul(0xA24B_AED4_963E_E407);
+            certify_block(problem, &system, units, seed, progress)
+        })
+        .collect()
+}
+
+/// Each block's figures, for the report.
+fn block_summaries(problem: &Problem, blocks: &[Block]) -> Vec<BlockCertificate> {
+    blocks
+        .iter()
+        .map(|b| BlockCertificate {
+            units: b
+                .units
+                .iter()
+                .map(|&u| problem.nodes[u as usize].id.clone())
+                .collect(),
+            rate: b.rate,
+            window: b.length,
+            contraction: b.log_rho.exp(),
+            transient_factor: b.rate.map(|_| (b.log_m - b.log_rho).exp()),
+            norm_bound: if b.exact {
+                NormBoundKind::Exact
+            } else {
+                NormBoundKind::Randomized
+            },
+        })
+        .collect()
+}
+
+/// The slowest block's worst start vector on the whole network (zero
+/// outside the block) and each unit's share of the slowest mode, largest
+/// first.
+fn slowest_mode(problem: &Problem, s: &Block) -> (Vec<f64>, Vec<UnitShare>) {
+    let p = problem.settings.parameters;
+    let mut full = vec![0.0; problem.n() * p];
+    let mut shares = vec![0.0; problem.n()];
+    for (k, &u) in s.units.iter().enumerate() {
+        let u = u as usize;
+        if s.right.len() == s.units.len() * p {
+            full[u * p..(u + 1) * p].copy_from_slice(&s.right[k * p..(k + 1) * p]);
+        }
+        if s.left.len() == s.units.len() * p {
+            shares[u] = s.left[k * p..(k + 1) * p].iter().map(|x| x * x).sum();
+        }
+    }
+    let mut units: Vec<UnitShare> = problem
+        .nodes
+        .iter()
+        .zip(&shares)
+        .map(|(v, &share)| UnitShare {
+            node: v.id.clone(),
+            share,
+        })
+        .collect();
+    units.sort_by(|a, b| b.share.total_cmp(&a.share).then(a.node.cmp(&b.node)));
+    (full, units)
 }
 
 /// The certificate of one block (units in local order).
@@ -434,34 +554,7 @@ pub fn certify_with(
     set: &LinkSet,
     progress: &Sink,
 ) -> Certificate {
-    let gains = gain_checks(problem, set);
-    let gains_ok = gains.iter().all(|g| g.ok);
-    let mut cert = Certificate {
-        rate: None,
-        window: problem.settings.window,
-        contraction: 1.0,
-        transient_factor: None,
-        envelope_from: problem.domain.h0,
-        transient_factor_any_start: None,
-        time_to_1pct: None,
-        time_to_1pct_extrapolated: false,
-        gains_ok,
-        gains,
-        asymptotic_rate: None,
-        windows: 0,
-        evaluated_windows: 0,
-        worst_window_start: None,
-        units: Vec::new(),
-        reason: None,
-        unconverged_windows: 0,
-        lanczos_steps: 0,
-        norm_bound: NormBoundKind::Exact,
-        failure_probability: 0.0,
-        blocks: Vec::new(),
-        worst_windows: Vec::new(),
-        worst_vector: Vec::new(),
-        timing: CertTiming::default(),
-    };
+    let mut cert = Certificate::unproven(problem, gain_checks(problem, set));
     let started = std::time::Instant::now();
     if !table.sources_excited(problem, set) {
         cert.reason = Some(
@@ -472,32 +565,7 @@ pub fn certify_with(
         return cert;
     }
     let horizon = problem.domain.h1 - problem.domain.h0;
-    let p = problem.settings.parameters;
-    let arcs: Vec<(u32, u32, f64)> = problem
-        .arcs(set)
-        .into_iter()
-        .map(|a| (a.from.0, a.to.0, a.weight))
-        .collect();
-    let components = weak_components(problem.n(), &arcs);
-    let blocks: Vec<Block> = components
-        .into_par_iter()
-        .enumerate()
-        .map(|(b, units)| {
-            let mut local = vec![u32::MAX; problem.n()];
-            for (k, &u) in units.iter().enumerate() {
-                local[u as usize] = k as u32;
-            }
-            let sub_arcs: Vec<(u32, u32, f64)> = arcs
-                .iter()
-                .filter(|a| local[a.1 as usize] != u32::MAX)
-                .map(|&(f, t, w)| (local[f as usize], local[t as usize], w))
-                .collect();
-            let sub = schedule.restrict(&units);
-            let system = ErrorSystem::new(&sub, problem.settings.gains, sub_arcs);
-            let seed = 0x5eed_cafe_u64 ^ (b as u64 + 1).wrapping_mul(0xA24B_AED4_963E_E407);
-            certify_block(problem, &system, units, seed, progress)
-        })
-        .collect();
+    let blocks = certify_blocks(problem, schedule, set, progress);
     // The slowest block: one without a rate first, else the smallest rate
     // (ties: the first).
     let slowest = (0..blocks.len())
@@ -522,48 +590,8 @@ pub fn certify_with(
     }
     cert.timing.windows = blocks.iter().map(|b| b.windows_time).sum();
     cert.timing.horizon = blocks.iter().map(|b| b.horizon_time).sum();
-    let mut full = vec![0.0; problem.n() * p];
-    let mut shares = vec![0.0; problem.n()];
-    for (k, &u) in s.units.iter().enumerate() {
-        let u = u as usize;
-        if s.right.len() == s.units.len() * p {
-            full[u * p..(u + 1) * p].copy_from_slice(&s.right[k * p..(k + 1) * p]);
-        }
-        if s.left.len() == s.units.len() * p {
-            shares[u] = s.left[k * p..(k + 1) * p].iter().map(|x| x * x).sum();
-        }
-    }
-    cert.worst_vector = full;
-    let mut units: Vec<UnitShare> = problem
-        .nodes
-        .iter()
-        .zip(&shares)
-        .map(|(v, &share)| UnitShare {
-            node: v.id.clone(),
-            share,
-        })
-        .collect();
-    units.sort_by(|a, b| b.share.total_cmp(&a.share).then(a.node.cmp(&b.node)));
-    cert.units = units;
-    cert.blocks = blocks
-        .iter()
-        .map(|b| BlockCertificate {
-            units: b
-                .units
-                .iter()
-                .map(|&u| problem.nodes[u as usize].id.clone())
-                .collect(),
-            rate: b.rate,
-            window: b.length,
-            contraction: b.log_rho.exp(),
-            transient_factor: b.rate.map(|_| (b.log_m - b.log_rho).exp()),
-            norm_bound: if b.exact {
-                NormBoundKind::Exact
-            } else {
-                NormBoundKind::Randomized
-            },
-        })
-        .collect();
+    (cert.worst_vector, cert.units) = slowest_mode(problem, s);
+    cert.blocks = block_summaries(problem, &blocks);
     let log_h = blocks
         .iter()
         .map(|b| b.log_horizon)
