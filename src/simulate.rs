@@ -191,6 +191,8 @@ fn check_len(which: Given, v: &[f64], p: usize) -> Result<(), SimError> {
 /// # Complexity
 /// One forward pass over the merged grid: O(S·m·(np + A·p)) for S steps,
 /// m Taylor terms and A arcs.
+// Long function: The estimators' run over the merged grid: flows and jumps share the
+// state vectors and the output buffers step after step.
 pub fn simulate(
     problem: &Problem,
     set: &LinkSet,

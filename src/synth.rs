@@ -218,6 +218,8 @@ pub fn bench_problem(n: usize, seed: u64, mu_fraction: f64) -> Problem {
 ///
 /// # Panics
 /// Never for n ≥ 1 and 0 < dt ≤ 1.
+// Long function: A seeded generator (positions, logs, candidates) whose random draws must
+// stay in this order for the instances to stay the same.
 pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Problem {
     let p = 4;
     let mut rng = Rng(seed);

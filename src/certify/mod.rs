@@ -332,6 +332,9 @@ struct Block {
 }
 
 /// Certifies one weakly connected block.
+// Long function: One block's certificate, stage after stage (trials, estimates, bounds of
+// the chosen trial, chain, horizon); kept whole because every stage reads and updates the
+// same trial list and block record.
 fn certify_block(
     problem: &Problem,
     system: &ErrorSystem,

@@ -326,6 +326,8 @@ pub(crate) fn grow_separate(inst: &Instance, y: &[f64], max_size: usize, out: &m
 /// be smaller); then every connected set of up to `max_size` groups gives
 /// its partition row (the groups as parts) and, when its units are not
 /// excited, its cut row, when `y` violates them.
+// Long function: One separation pass: merge units joined at 1, list the support-connected
+// sets, build and rank their rows; the steps share the merged groups and the row buffer.
 pub(crate) fn support_separate(inst: &Instance, y: &[f64], max_size: usize, out: &mut Vec<Row>) {
     let n = inst.n;
     let weight = |k: usize| if inst.links[k].installed { 1.0 } else { y[k] };

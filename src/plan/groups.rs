@@ -97,6 +97,9 @@ enum Extra {
 /// the deadline passes before a first LP is solved, or on solver trouble
 /// before that.
 #[allow(clippy::too_many_arguments)]
+// Long function: The column-generation rounds; active columns, extra rows, the warm basis
+// and the last point live across rounds. Listing columns, a round's LP, pricing and the
+// row separations are functions of their own.
 pub(crate) fn group_bound(
     inst: &Instance,
     pool: &mut Pool,

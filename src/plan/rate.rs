@@ -120,6 +120,9 @@ pub(crate) fn rate_of(c: &Certificate) -> f64 {
 /// Each addition screens the candidate links touching the units that carry
 /// the slowest mode on the worst window (in parallel), then certifies the
 /// best one; pruning certifies once per link of the plan.
+// Long function: Additions, pruning and the raised-excitation plans share the current
+// set, its certificate and the deadline; each step is a short block with its reason
+// beside it.
 pub fn meet_target(
     problem: &Problem,
     table: &ExcitationTable,

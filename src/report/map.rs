@@ -158,6 +158,8 @@ const LEGEND: f64 = 250.0;
 const UNIT_R: f64 = 6.0;
 
 /// Renders the map.
+// Long function: One drawing, layer by layer (halos, labels, links, units, scale), all in
+// the same coordinate frame and label boxes.
 pub fn svg(scene: &Scene) -> String {
     let (mut x0, mut x1, mut y0, mut y1) = (
         f64::INFINITY,

@@ -58,6 +58,8 @@ fn set_of(problem: &Problem, ids: &[String]) -> Vec<LinkId> {
 /// # Complexity
 /// One structural plan, then per step one screening of candidate links (in
 /// parallel) and one certificate.
+// Long function: The budget sweep: each step plans, certifies and prunes against the
+// previous point of the front, sharing the deadline and progress.
 pub fn front(
     problem: &Problem,
     table: &ExcitationTable,

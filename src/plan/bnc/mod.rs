@@ -375,6 +375,12 @@ pub(crate) fn search(
     })
 }
 
+// Long function: The tree loop and its dive; the heap, pseudocosts, dive fixings and
+
+// helper schedule live across iterations. The root, a node's LP, reduced-cost fixing and
+
+// the final bound are functions of their own.
+
 fn search_with(
     inst: &Instance,
     start: Vec<bool>,
