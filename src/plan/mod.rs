@@ -10,9 +10,9 @@
 //! docs/tuning.md.
 
 mod bnc;
+mod component_bound;
 mod connected_sets;
 mod cuts;
-mod groups;
 mod heuristics;
 mod instance;
 mod lns;

@@ -63,7 +63,7 @@ impl Found<'_> {
                 separation: s.separation_time.saturating_sub(s.separation_checks),
                 solver: s.lp.time,
                 heuristics: s.heuristic_time,
-                component_bound: s.group.map_or(Duration::ZERO, |g| g.time),
+                component_bound: s.component.map_or(Duration::ZERO, |g| g.time),
                 rate: rate_time,
             },
         )
@@ -206,11 +206,11 @@ fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> Pla
         fixed_by_reduced_cost: s.map_or(0, |s| s.fixed_by_cost),
         excitation_queries: o.queries,
         excitation_scans: o.scans,
-        component_bound: s.and_then(|s| s.group).map(|g| g.bound),
-        component_size: s.and_then(|s| s.group).map(|g| g.k as u32),
-        component_sets: s.and_then(|s| s.group).map(|g| g.sets as u64),
-        component_columns: s.and_then(|s| s.group).map(|g| g.columns as u64),
-        component_columns_used: s.and_then(|s| s.group).map(|g| g.used_columns as u64),
+        component_bound: s.and_then(|s| s.component).map(|g| g.bound),
+        component_size: s.and_then(|s| s.component).map(|g| g.k as u32),
+        component_sets: s.and_then(|s| s.component).map(|g| g.sets as u64),
+        component_columns: s.and_then(|s| s.component).map(|g| g.columns as u64),
+        component_columns_used: s.and_then(|s| s.component).map(|g| g.used_columns as u64),
     }
 }
 

@@ -1,8 +1,8 @@
 //! The second thread of a search: neighbourhood search on incumbents and,
 //! on large two-way networks, the bound from small components as columns.
 
+use super::super::component_bound;
 use super::super::cuts::{Pool, Row};
-use super::super::groups;
 use super::super::heuristics::repair;
 use super::super::instance::{Instance, OracleStats};
 use super::{GROUP_SETS, GROUP_SIZE, Improve, Limits, Search, THRESHOLDS};
@@ -45,7 +45,11 @@ enum Job {
 /// from its neighbourhood search), time and excitation-check counts.
 enum Done {
     Improved(Vec<bool>, Duration, OracleStats),
-    Bound(Option<groups::GroupStats>, Option<Vec<bool>>, OracleStats),
+    Bound(
+        Option<component_bound::BoundStats>,
+        Option<Vec<bool>>,
+        OracleStats,
+    ),
 }
 
 /// Branch-and-bound nodes after which the second neighbourhood search's
@@ -79,7 +83,7 @@ impl Helper {
         &mut self,
         s: &mut Search,
         cancel: bool,
-    ) -> Option<groups::GroupStats> {
+    ) -> Option<component_bound::BoundStats> {
         if !std::mem::take(&mut self.bound_pending) {
             return None;
         }
@@ -181,7 +185,7 @@ fn serve(
             rows.into_iter().for_each(|r| {
                 pool.add(r);
             });
-            let group = groups::group_bound(
+            let group = component_bound::component_bound(
                 sub,
                 &mut pool,
                 &start,

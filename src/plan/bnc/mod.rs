@@ -5,10 +5,10 @@ mod helper;
 mod node;
 mod pseudocosts;
 
+use super::component_bound;
 use super::cuts::{
     Pool, Row, enumerate_rows, grow_separate, grown_rows, separate, support_separate,
 };
-use super::groups;
 use super::heuristics::{exchange, repair};
 use super::instance::Instance;
 use super::lp;
@@ -38,7 +38,7 @@ pub(crate) struct SearchStats {
     /// Links fixed by reduced cost, summed over nodes.
     pub fixed_by_cost: u64,
     /// The bound from small components as columns, when computed.
-    pub group: Option<groups::GroupStats>,
+    pub component: Option<component_bound::BoundStats>,
 }
 
 /// Result of the search.
@@ -68,7 +68,7 @@ const INT_TOL: f64 = 1e-6;
 /// measurements: docs/tuning.md, "Tree").
 const PLUNGE_QUOT: f64 = 0.25;
 
-/// The bound from small components as columns (`groups`) runs on two-way
+/// The bound from small components as columns (`component_bound`) runs on two-way
 /// networks of at least this many units, with components of up to
 /// `GROUP_SIZE` units as columns, fewer when the connected sets of that
 /// size would pass `GROUP_SETS`.
@@ -565,7 +565,7 @@ fn conclude(
         if let Some(g) = h.take_bound(&mut s, !timed_out) {
             // A relative margin for the LP's tolerances.
             floor = bound_of(inst, g.bound - 1e-9 * g.bound.abs());
-            s.stats.group = Some(g);
+            s.stats.component = Some(g);
             s.progress.debug(|| format!("[groups] {g:?}"));
         }
     }
@@ -685,7 +685,7 @@ fn root(
     // the search).
     if let Some(h) = helper.as_mut()
         && s.inst.n >= GROUP_MIN_UNITS
-        && groups::applies(s.inst)
+        && component_bound::applies(s.inst)
     {
         h.start_bound(s.pool.rows.clone(), master.rows.clone());
     }

@@ -49,7 +49,7 @@ const WARM_TIME: Duration = Duration::from_secs(2);
 
 /// What the bound computation did.
 #[derive(Debug, Clone, Copy, Default)]
-pub(crate) struct GroupStats {
+pub(crate) struct BoundStats {
     /// Best lower bound over the rounds (not rounded).
     pub bound: f64,
     /// Largest component size taken as columns.
@@ -100,7 +100,7 @@ enum Extra {
 // Long function: The column-generation rounds; active columns, extra rows, the warm basis
 // and the last point live across rounds. Listing columns, a round's LP, pricing and the
 // row separations are functions of their own.
-pub(crate) fn group_bound(
+pub(crate) fn component_bound(
     inst: &Instance,
     pool: &mut Pool,
     start: &[u32],
@@ -110,7 +110,7 @@ pub(crate) fn group_bound(
     deadline: Option<Instant>,
     stop: &AtomicBool,
     sink: &crate::progress::Sink,
-) -> Option<(GroupStats, Vec<f64>)> {
+) -> Option<(BoundStats, Vec<f64>)> {
     let t0 = Instant::now();
     let late =
         || stop.load(AtomicOrdering::Relaxed) || deadline.is_some_and(|d| Instant::now() >= d);
@@ -129,12 +129,12 @@ pub(crate) fn group_bound(
     let incident = &inst.heads;
 
     let (k, sets, columns) = list_columns(inst, &nbrs, &ends, max_k, max_sets, &late, sink, t0)?;
-    let mut stats = GroupStats {
+    let mut stats = BoundStats {
         bound: f64::NEG_INFINITY,
         k,
         sets: sets.len(),
         columns: columns.len(),
-        ..GroupStats::default()
+        ..BoundStats::default()
     };
 
     // Start with the columns of at most two units.
@@ -693,10 +693,10 @@ mod tests {
         }
     }
 
-    fn bound(inst: &Instance, k: usize) -> GroupStats {
+    fn bound(inst: &Instance, k: usize) -> BoundStats {
         let mut pool = Pool::default();
         let stop = AtomicBool::new(false);
-        group_bound(
+        component_bound(
             inst,
             &mut pool,
             &[],
@@ -755,7 +755,7 @@ mod tests {
         // Its last LP point is then the spanning tree itself: a valid plan
         // at that cost.
         let stop = AtomicBool::new(false);
-        let (_, y) = group_bound(
+        let (_, y) = component_bound(
             &inst,
             &mut Pool::default(),
             &[],
