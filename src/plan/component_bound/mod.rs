@@ -157,7 +157,7 @@ pub(crate) fn component_bound(
             break;
         }
         stats.rounds += 1;
-        let (mut p, z, u, x) = round_lp(inst, k, &active, &columns, &sets, &extras, pool);
+        let (mut p, z, u, x) = round_lp(inst, k, &active, &columns, &sets, &extras, pool, &ends);
         let vars = m + n + active.len();
         let rows = n + extras.len();
         // Each solve within the deadline and at most ROUND_TIME: a solve

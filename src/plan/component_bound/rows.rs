@@ -10,7 +10,8 @@ use std::collections::HashSet;
 
 /// The LP of one round: z (one per link), u (one per unit), then the
 /// active columns; coverage rows, then the extra rows in the order they
-/// came.
+/// came. `ends`: each link's first arc.
+#[allow(clippy::too_many_arguments)]
 pub(super) fn round_lp(
     inst: &Instance,
     k: usize,
@@ -19,9 +20,9 @@ pub(super) fn round_lp(
     sets: &[Vec<u32>],
     extras: &[Extra],
     pool: &Pool,
+    ends: &[(u32, u32)],
 ) -> (Lp, Vec<Col>, Vec<Col>, Vec<Col>) {
     let (n, m) = (inst.n, inst.links.len());
-    let ends: Vec<(u32, u32)> = inst.links.iter().map(|l| l.arcs[0]).collect();
     let incident = &inst.heads;
     let mut p = Lp::minimise();
     let z: Vec<Col> = inst
@@ -73,19 +74,19 @@ pub(super) fn round_lp(
                 row.rhs as f64
             }
             Extra::Size(s, i) => {
-                boundary(&sets[*s as usize], incident, &ends, |e| {
+                boundary(&sets[*s as usize], incident, ends, |e| {
                     expr.push((z[e], 1.0))
                 });
                 expr.push((u[*i as usize], -1.0));
                 0.0
             }
             Extra::Count(set) => {
-                touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                touching(set, incident, ends, |e| expr.push((z[e], 1.0)));
                 expr.extend(set.iter().map(|&v| (u[v as usize], -1.0)));
                 -((set.len() / (k + 1)) as f64)
             }
             Extra::Large(set) => {
-                touching(set, incident, &ends, |e| expr.push((z[e], 1.0)));
+                touching(set, incident, ends, |e| expr.push((z[e], 1.0)));
                 let r = ratio(set.len(), k);
                 expr.extend(set.iter().map(|&v| (u[v as usize], -r)));
                 0.0
