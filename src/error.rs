@@ -45,7 +45,8 @@ impl fmt::Display for InputError {
     }
 }
 
-/// 1-based line number of byte offset `offset` in `text`.
+/// 1-based line number of byte offset `offset` in `text` (one scan; for
+/// many look-ups in one text build a [`LineIndex`]).
 pub fn line_of(text: &str, offset: usize) -> usize {
     let end = offset.min(text.len());
     text.as_bytes()[..end]
@@ -53,6 +54,75 @@ pub fn line_of(text: &str, offset: usize) -> usize {
         .filter(|&&b| b == b'\n')
         .count()
         + 1
+}
+
+/// The line starts of a text, for line look-ups in O(log lines) each
+/// (reading a file with many entries stays linear).
+#[derive(Debug, Clone)]
+pub struct LineIndex {
+    /// Byte offset of the first byte after each newline.
+    after_newline: Vec<usize>,
+}
+
+impl LineIndex {
+    /// Indexes `text` in one scan.
+    pub fn new(text: &str) -> Self {
+        LineIndex {
+            after_newline: text
+                .bytes()
+                .enumerate()
+                .filter(|&(_, b)| b == b'\n')
+                .map(|(k, _)| k + 1)
+                .collect(),
+        }
+    }
+
+    /// 1-based line number of byte offset `offset` (as [`line_of`]).
+    pub fn line(&self, offset: usize) -> usize {
+        self.after_newline.partition_point(|&s| s <= offset) + 1
+    }
+}
+
+/// The text of a file's bytes: a leading UTF-8 byte-order mark is dropped
+/// (as TOML and CSV readers commonly accept one); invalid UTF-8 is an
+/// [`InputError`] at the line of the first bad byte.
+///
+/// # Errors
+/// When the bytes are not UTF-8.
+pub fn decode(path: &Path, mut bytes: Vec<u8>) -> Result<String, InputError> {
+    if bytes.starts_with(&[0xEF, 0xBB, 0xBF]) {
+        bytes.drain(..3);
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        let good = e.utf8_error().valid_up_to();
+        let bytes = e.as_bytes();
+        let line = bytes[..good].iter().filter(|&&b| b == b'\n').count() + 1;
+        let column = good
+            - bytes[..good]
+                .iter()
+                .rposition(|&b| b == b'\n')
+                .map_or(0, |k| k + 1)
+            + 1;
+        InputError::at(
+            path,
+            line,
+            format!(
+                "byte 0x{:02X} at column {column} is not UTF-8; expected UTF-8 text",
+                bytes[good]
+            ),
+        )
+    })
+}
+
+/// Reads a file and [`decode`]s it; `what` names the file's role in the
+/// message when it cannot be read.
+///
+/// # Errors
+/// When the file cannot be read or is not UTF-8.
+pub fn read_text(path: &Path, what: &str) -> Result<String, InputError> {
+    let bytes = std::fs::read(path)
+        .map_err(|e| InputError::whole(path, format!("cannot read the {what}: {e}")))?;
+    decode(path, bytes)
 }
 
 #[cfg(test)]
@@ -66,6 +136,24 @@ mod tests {
         assert_eq!(line_of(text, 2), 2);
         assert_eq!(line_of(text, 5), 3);
         assert_eq!(line_of(text, 99), 3);
+    }
+
+    #[test]
+    fn line_index_agrees_with_a_scan() {
+        let text = "\nab\n\ncd\ne";
+        let index = LineIndex::new(text);
+        for offset in 0..text.len() + 3 {
+            assert_eq!(index.line(offset), line_of(text, offset), "{offset}");
+        }
+    }
+
+    #[test]
+    fn decode_drops_a_bom_and_names_the_line_of_a_bad_byte() {
+        let p = Path::new("a.csv");
+        assert_eq!(decode(p, b"\xEF\xBB\xBFt,j\n".to_vec()).unwrap(), "t,j\n");
+        let e = decode(p, b"t,j\n0,0\n1,\xFF\n".to_vec()).unwrap_err();
+        assert_eq!(e.line, Some(3));
+        assert!(e.message.contains("0xFF at column 3"), "{}", e.message);
     }
 
     #[test]

@@ -26,10 +26,11 @@
 //! between = ["east", "west"]
 //! cost = 10.0
 //! "#;
-//! let read = |p: &Path| -> std::io::Result<String> {
+//! let read = |p: &Path| -> std::io::Result<Vec<u8>> {
 //!     let col = if p.ends_with("east.csv") { "1,0" } else { "0,1" };
 //!     Ok((0..=40).map(|k| format!("{},0,{col}\n", k as f64 * 0.1))
-//!         .fold("t,j,psi1,psi2\n".to_string(), |s, r| s + &r))
+//!         .fold("t,j,psi1,psi2\n".to_string(), |s, r| s + &r)
+//!         .into_bytes())
 //! };
 //! let p = problem::load_with(Path::new("demo.toml"), toml, &read).unwrap();
 //! let table = ExcitationTable::build(&p);
@@ -46,6 +47,7 @@ pub mod analysis;
 pub mod certify;
 pub mod error;
 pub mod excitation;
+pub mod limits;
 pub mod plan;
 pub mod problem;
 pub mod progress;

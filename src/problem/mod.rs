@@ -6,11 +6,12 @@ mod raw;
 
 pub use plan_file::{PlanFacts, read_link_set, read_plan_file};
 
-use crate::error::{InputError, line_of};
-use crate::signal::{Log, TimeDomain, Window, WindowKind, parse_log, windows};
+use crate::error::{InputError, LineIndex, decode, read_text};
+use crate::limits;
+use crate::signal::{Log, TimeDomain, Window, WindowKind, parse_log_within, windows};
 use raw::{RawEstimator, RawLink, RawNode, RawProblem};
 use rayon::prelude::*;
-use std::collections::{BTreeMap, HashMap};
+use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use toml::Spanned;
 
@@ -359,40 +360,92 @@ impl Problem {
 /// keys, out-of-range values, unknown or duplicate units, bad links, missing
 /// or malformed logs, and logs that do not overlap for a whole window.
 pub fn load(path: &Path) -> Result<Problem, InputError> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| InputError::whole(path, format!("cannot read the problem file: {e}")))?;
-    load_with(path, &text, &|p: &Path| std::fs::read_to_string(p))
+    let text = read_text(path, "problem file")?;
+    load_with(path, &text, &|p: &Path| std::fs::read(p))
 }
 
-/// Like [`load`], with the problem text given and logs read through `read`
-/// (paths are resolved against the problem file's folder first).
+/// Like [`load`], with the problem text given and logs' bytes read through
+/// `read` (paths are resolved against the problem file's folder first).
 ///
 /// # Errors
 /// As [`load`].
-pub fn load_with(
-    path: &Path,
-    text: &str,
-    read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
-) -> Result<Problem, InputError> {
-    let raw: RawProblem = toml::from_str(text).map_err(|e| {
-        let line = e.span().map(|s| line_of(text, s.start)).unwrap_or(1);
-        InputError::at(
+pub fn load_with(path: &Path, text: &str, read: &Reader) -> Result<Problem, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let lines = LineIndex::new(text);
+    let raw: RawProblem = toml::from_str(text).map_err(|e| toml_error(path, text, &lines, &e))?;
+    Validator { path, lines }.problem(raw, read)
+}
+
+/// How [`load_with`] reads a log's bytes.
+pub type Reader = dyn Fn(&Path) -> std::io::Result<Vec<u8>> + Sync;
+
+/// A TOML syntax or schema error at its line; a single-bracket `[node]` or
+/// `[link]` table (the usual slip for `[[node]]`) is named as such.
+fn toml_error(path: &Path, text: &str, lines: &LineIndex, e: &toml::de::Error) -> InputError {
+    let single = text.split('\n').enumerate().find_map(|(k, l)| {
+        let l = l.trim();
+        ["node", "link"]
+            .into_iter()
+            .find(|name| l.starts_with(&format!("[{name}]")))
+            .map(|name| (k + 1, name))
+    });
+    if let Some((line, name)) = single {
+        return InputError::at(
             path,
             line,
-            format!("malformed problem file: {}", e.message().trim()),
-        )
-    })?;
-    Validator { path, text }.problem(raw, read)
+            format!(
+                "`[{name}]` opens a single table; expected `[[{name}]]` (double brackets) \
+                 before each {}",
+                if name == "node" { "unit" } else { "link" }
+            ),
+        );
+    }
+    let line = e.span().map_or(1, |s| lines.line(s.start));
+    InputError::at(
+        path,
+        line,
+        format!("malformed problem file: {}", e.message().trim()),
+    )
+}
+
+/// A number as a message shows it: plain when of moderate size, else in
+/// exponent form (no three-hundred-digit values).
+fn shown(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() || (1e-4..1e6).contains(&x.abs()) {
+        format!("{x}")
+    } else {
+        format!("{x:e}")
+    }
 }
 
 struct Validator<'a> {
     path: &'a Path,
-    text: &'a str,
+    lines: LineIndex,
 }
 
 impl Validator<'_> {
     fn err<T>(&self, at: &Spanned<T>, message: impl Into<String>) -> InputError {
-        InputError::at(self.path, line_of(self.text, at.span().start), message)
+        InputError::at(self.path, self.lines.line(at.span().start), message)
+    }
+
+    /// A unit or link id: non-empty, no control characters (ids end up in
+    /// SVG, HTML, DOT and terminals).
+    fn id(&self, id: &Spanned<String>, what: &str) -> Result<(), InputError> {
+        let text = id.get_ref();
+        if text.trim().is_empty() {
+            return Err(self.err(id, format!("expected a non-empty {what} id")));
+        }
+        if let Some(c) = text.chars().find(|c| c.is_control()) {
+            return Err(self.err(
+                id,
+                format!(
+                    "{what} id {text:?} contains the control character U+{:04X}; expected \
+                     printable characters",
+                    u32::from(c)
+                ),
+            ));
+        }
+        Ok(())
     }
 
     fn number(
@@ -406,7 +459,7 @@ impl Validator<'_> {
         if x.is_finite() && ok(x) {
             Ok(x)
         } else {
-            Err(self.err(v, format!("{name} = {x}: expected {expected}")))
+            Err(self.err(v, format!("{name} = {}: expected {expected}", shown(x))))
         }
     }
 
@@ -422,11 +475,7 @@ impl Validator<'_> {
             .map_or(Ok(default), |v| self.number(v, name, ok, expected))
     }
 
-    fn problem(
-        &self,
-        raw: RawProblem,
-        read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
-    ) -> Result<Problem, InputError> {
+    fn problem(&self, raw: RawProblem, read: &Reader) -> Result<Problem, InputError> {
         let net = &raw.network;
         let p = *net.parameters.get_ref();
         if !(1..=64).contains(&p) {
@@ -437,12 +486,9 @@ impl Validator<'_> {
         }
         let p = p as usize;
         let positive = |x: f64| x > 0.0;
-        let window = self.number(
-            &net.window,
-            "window",
-            positive,
-            "a positive number of seconds",
-        )?;
+        let seconds = |x: f64| x > 0.0 && x <= limits::MAX_TIME;
+        let seconds_text = format!("a positive number of seconds ≤ {:e}", limits::MAX_TIME);
+        let window = self.number(&net.window, "window", seconds, &seconds_text)?;
         let window_kind = match &net.window_kind {
             None => WindowKind::Time,
             Some(k) => match k.get_ref().as_str() {
@@ -459,7 +505,7 @@ impl Validator<'_> {
         let stride = net
             .stride
             .as_ref()
-            .map(|s| self.number(s, "stride", positive, "a positive number of seconds"))
+            .map(|s| self.number(s, "stride", seconds, &seconds_text))
             .transpose()?;
         let min_excitation = net
             .min_excitation
@@ -469,17 +515,39 @@ impl Validator<'_> {
         let target_rate = net
             .target_rate
             .as_ref()
-            .map(|s| self.number(s, "target_rate", positive, "a positive rate in 1/s"))
+            .map(|s| {
+                self.number(
+                    s,
+                    "target_rate",
+                    |x| x > 0.0 && x <= limits::MAX_RATE,
+                    &format!("a positive rate in 1/s, at most {:e}", limits::MAX_RATE),
+                )
+            })
             .transpose()?;
         let gains = self.gains(&raw.estimator)?;
 
-        let (nodes, index) = self.nodes(&raw.nodes, p, read)?;
+        let (nodes, index) = self.nodes(&raw.nodes, p, gains.flow_gain, read)?;
 
-        let links = self.links(&raw, &index, &nodes, gains.link_weight)?;
+        let links = self.links(&raw, &index, &nodes, &gains)?;
 
         let domain = TimeDomain::merge(nodes.iter().map(|n| &n.log)).ok_or_else(|| {
             InputError::whole(self.path, "the unit logs do not overlap in time; expected a common horizon of positive length")
         })?;
+        if let (Some(stride), Some(at)) = (stride, &net.stride) {
+            let count = (domain.h1 - domain.h0) / stride;
+            if count > limits::MAX_WINDOWS as f64 {
+                return Err(self.err(
+                    at,
+                    format!(
+                        "stride = {} gives about {count:.3e} windows over the horizon of \
+                         {} s; expected at most {} windows (a larger stride)",
+                        shown(stride),
+                        domain.h1 - domain.h0,
+                        limits::MAX_WINDOWS
+                    ),
+                ));
+            }
+        }
         let windows = windows(&domain, window_kind, window, stride);
         if windows.is_empty() {
             return Err(self.err(&net.window, format!(
@@ -517,16 +585,18 @@ impl Validator<'_> {
 
     /// The `[estimator]` table.
     fn gains(&self, e: &RawEstimator) -> Result<Gains, InputError> {
-        let positive = |x: f64| x > 0.0;
-        let non_negative = |x: f64| x >= 0.0;
+        let max = limits::MAX_GAIN;
+        let positive = |x: f64| x > 0.0 && x <= max;
+        let non_negative = |x: f64| (0.0..=max).contains(&x);
+        let up_to = format!("a number from 0 to {max:e}");
         let d = Gains::default();
-        Ok(Gains {
+        let gains = Gains {
             flow_gain: self.optional(
                 &e.flow_gain,
                 "flow_gain",
                 d.flow_gain,
                 non_negative,
-                "a number ≥ 0",
+                &up_to,
             )?,
             jump_gain: self.optional(
                 &e.jump_gain,
@@ -541,23 +611,44 @@ impl Validator<'_> {
                 "flow_coupling",
                 d.flow_coupling,
                 non_negative,
-                "a number ≥ 0",
+                &up_to,
             )?,
             jump_coupling: self.optional(
                 &e.jump_coupling,
                 "jump_coupling",
                 d.jump_coupling,
                 non_negative,
-                "a number ≥ 0",
+                &up_to,
             )?,
             link_weight: self.optional(
                 &e.link_weight,
                 "link_weight",
                 d.link_weight,
                 positive,
-                "a positive number",
+                &format!("a positive number ≤ {max:e}"),
             )?,
-        })
+        };
+        if let Some(at) = e.flow_coupling.as_ref().or(e.link_weight.as_ref()) {
+            self.coupling(at, gains.flow_coupling, gains.link_weight)?;
+        }
+        Ok(gains)
+    }
+
+    /// `flow_coupling · weight` of one link within [`limits::MAX_STIFFNESS`].
+    fn coupling<T>(&self, at: &Spanned<T>, kappa: f64, weight: f64) -> Result<(), InputError> {
+        if kappa * weight > limits::MAX_STIFFNESS {
+            return Err(self.err(
+                at,
+                format!(
+                    "flow_coupling · weight = {kappa} · {weight} = {:e} 1/s; expected at most \
+                     {:e} 1/s (docs/formats.md, \"Accepted ranges\": the certificate steps \
+                     through each flow in substeps of 1/‖A‖)",
+                    kappa * weight,
+                    limits::MAX_STIFFNESS
+                ),
+            ));
+        }
+        Ok(())
     }
 
     /// The `[[node]]` tables, with their logs read and parsed in parallel;
@@ -566,7 +657,8 @@ impl Validator<'_> {
         &self,
         raw_nodes: &'r [RawNode],
         p: usize,
-        read: &(dyn Fn(&Path) -> std::io::Result<String> + Sync),
+        flow_gain: f64,
+        read: &Reader,
     ) -> Result<(Vec<Node>, HashMap<&'r str, NodeId>), InputError> {
         if raw_nodes.is_empty() {
             return Err(InputError::whole(
@@ -578,9 +670,7 @@ impl Validator<'_> {
         let mut positions = Vec::with_capacity(raw_nodes.len());
         for (k, node) in raw_nodes.iter().enumerate() {
             let id = node.id.get_ref().as_str();
-            if id.trim().is_empty() {
-                return Err(self.err(&node.id, "expected a non-empty unit id"));
-            }
+            self.id(&node.id, "unit")?;
             if index.insert(id, NodeId(k as u32)).is_some() {
                 return Err(self.err(
                     &node.id,
@@ -590,11 +680,20 @@ impl Validator<'_> {
             let position = match &node.position {
                 None => None,
                 Some(pos) => match pos.get_ref().as_slice() {
-                    &[x, y] if x.is_finite() && y.is_finite() => Some([x, y]),
+                    &[x, y]
+                        if x.abs() <= limits::MAX_DISTANCE && y.abs() <= limits::MAX_DISTANCE =>
+                    {
+                        Some([x, y])
+                    }
                     _ => {
-                        return Err(
-                            self.err(pos, "position: expected two finite numbers [x_km, y_km]")
-                        );
+                        return Err(self.err(
+                            pos,
+                            format!(
+                                "position: expected two numbers [x_km, y_km], each of size at \
+                                 most {:e} km",
+                                limits::MAX_DISTANCE
+                            ),
+                        ));
                     }
                 },
             };
@@ -605,13 +704,19 @@ impl Validator<'_> {
             .par_iter()
             .map(|node| {
                 let log_path = base.join(node.log.get_ref());
-                let text = read(&log_path).map_err(|e| {
+                let bytes = read(&log_path).map_err(|e| {
                     self.err(
                         &node.log,
                         format!("cannot read log file {}: {e}", log_path.display()),
                     )
                 })?;
-                parse_log(&log_path, &text, p)
+                let text = decode(&log_path, bytes)?;
+                let max_square = if flow_gain > 0.0 {
+                    limits::MAX_STIFFNESS / flow_gain
+                } else {
+                    f64::INFINITY
+                };
+                parse_log_within(&log_path, &text, p, max_square)
             })
             .collect();
         let mut nodes = Vec::with_capacity(logs.len());
@@ -632,29 +737,48 @@ impl Validator<'_> {
         raw: &RawProblem,
         index: &HashMap<&str, NodeId>,
         nodes: &[Node],
-        link_weight: f64,
+        gains: &Gains,
     ) -> Result<Vec<Link>, InputError> {
-        let positive = |x: f64| x > 0.0;
-        let non_negative = |x: f64| x >= 0.0;
+        let distance = |x: f64| x > 0.0 && x <= limits::MAX_DISTANCE;
+        let cost = |x: f64| (0.0..=limits::MAX_COST).contains(&x);
+        let cost_text = format!("a cost from 0 to {:e}", limits::MAX_COST);
         let mut links: Vec<Link> = Vec::new();
-        let mut ids: BTreeMap<String, usize> = BTreeMap::new();
+        let mut ids: HashMap<String, usize> = HashMap::new();
         for raw_link in &raw.links {
-            let link = self.link(raw_link, index, link_weight)?;
+            let link = self.link(raw_link, index, gains)?;
             if let Some(&line) = ids.get(&link.id) {
                 return Err(self.err(raw_link, format!(
                     "duplicate link id \"{}\" (also on line {line}); give one of them a distinct `id`",
                     link.id
                 )));
             }
-            ids.insert(link.id.clone(), line_of(self.text, raw_link.span().start));
+            ids.insert(link.id.clone(), self.lines.line(raw_link.span().start));
             links.push(link);
         }
         if let Some(c) = &raw.candidates {
             let cand = c.get_ref();
-            let range = self.number(&cand.range, "range", positive, "a positive distance in km")?;
-            let fixed = self.number(&cand.fixed_cost, "fixed_cost", non_negative, "a cost ≥ 0")?;
-            let per_km =
-                self.number(&cand.cost_per_km, "cost_per_km", non_negative, "a cost ≥ 0")?;
+            let range = self.number(
+                &cand.range,
+                "range",
+                distance,
+                &format!(
+                    "a positive distance in km, at most {:e}",
+                    limits::MAX_DISTANCE
+                ),
+            )?;
+            let fixed = self.number(&cand.fixed_cost, "fixed_cost", cost, &cost_text)?;
+            let per_km = self.number(&cand.cost_per_km, "cost_per_km", cost, &cost_text)?;
+            if fixed + per_km * range > limits::MAX_COST {
+                return Err(self.err(
+                    &cand.cost_per_km,
+                    format!(
+                        "fixed_cost + cost_per_km · range = {:e}; expected a link cost of at \
+                         most {:e}",
+                        fixed + per_km * range,
+                        limits::MAX_COST
+                    ),
+                ));
+            }
             if nodes.iter().all(|n| n.position.is_none()) {
                 return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` on the [[node]] entries"));
             }
@@ -676,7 +800,7 @@ impl Validator<'_> {
                         id,
                         ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
                         cost: fixed + per_km * dist,
-                        weight: link_weight,
+                        weight: gains.link_weight,
                         installed: false,
                         generated: true,
                     });
@@ -690,7 +814,7 @@ impl Validator<'_> {
         &self,
         raw: &Spanned<RawLink>,
         index: &HashMap<&str, NodeId>,
-        default_weight: f64,
+        gains: &Gains,
     ) -> Result<Link, InputError> {
         let l = raw.get_ref();
         let node = |name: &Spanned<String>| -> Result<NodeId, InputError> {
@@ -736,19 +860,27 @@ impl Validator<'_> {
         let Some(cost) = &l.cost else {
             return Err(self.err(raw, "missing `cost`; expected a cost ≥ 0"));
         };
-        let cost = self.number(cost, "cost", |x| x >= 0.0, "a finite cost ≥ 0")?;
+        let cost = self.number(
+            cost,
+            "cost",
+            |x| (0.0..=limits::MAX_COST).contains(&x),
+            &format!("a finite cost from 0 to {:e}", limits::MAX_COST),
+        )?;
         let weight = self.optional(
             &l.weight,
             "weight",
-            default_weight,
-            |x| x > 0.0,
-            "a positive number",
+            gains.link_weight,
+            |x| x > 0.0 && x <= limits::MAX_GAIN,
+            &format!("a positive number ≤ {:e}", limits::MAX_GAIN),
         )?;
+        if let Some(at) = &l.weight {
+            self.coupling(at, gains.flow_coupling, weight)?;
+        }
         let id = match &l.id {
-            Some(id) if id.get_ref().trim().is_empty() => {
-                return Err(self.err(id, "expected a non-empty link id"));
+            Some(id) => {
+                self.id(id, "link")?;
+                id.get_ref().clone()
             }
-            Some(id) => id.get_ref().clone(),
             None => default_id,
         };
         Ok(Link {

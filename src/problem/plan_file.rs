@@ -1,10 +1,11 @@
 //! Reader for plan files: JSON with a `links` list of `{from, to, two_way}`
 //! objects (other keys, such as those `plan` writes, are allowed).
 
-use super::{Ends, LinkId, LinkSet, Problem};
-use crate::error::{InputError, line_of};
+use super::{Ends, LinkId, LinkSet, NodeId, Problem};
+use crate::error::{InputError, LineIndex, read_text};
 use serde::Deserialize;
 use serde_json::value::RawValue;
+use std::collections::HashMap;
 use std::path::Path;
 
 #[derive(Deserialize)]
@@ -38,6 +39,8 @@ pub struct PlanFacts {
 
 #[derive(Deserialize)]
 struct RawPlanLink {
+    #[serde(default)]
+    id: Option<String>,
     from: String,
     to: String,
     two_way: bool,
@@ -46,16 +49,17 @@ struct RawPlanLink {
 /// Reads a plan file and resolves its links against the problem's
 /// candidates. A two-way entry matches a two-way candidate between the same
 /// units (either order); a one-way entry matches a one-way candidate in the
-/// same direction. When several candidates match, the cheapest is taken (the
-/// first on a tie).
+/// same direction. When several candidates match, the one with the entry's
+/// `id` is taken, else the cheapest (the first on a tie). Reading is linear
+/// in the file's size and the number of candidates.
 ///
 /// # Errors
 /// An [`InputError`] naming the line for malformed JSON, a missing `links`
-/// list, an entry without `from`/`to`/`two_way`, an unknown unit, or a link
-/// that is not among the candidates.
+/// list, an entry without `from`/`to`/`two_way`, an unknown unit, a link
+/// that is not among the candidates, or a link listed twice (both lines
+/// named).
 pub fn read_link_set(problem: &Problem, path: &Path) -> Result<LinkSet, InputError> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| InputError::whole(path, format!("cannot read the plan file: {e}")))?;
+    let text = read_text(path, "plan file")?;
     parse_plan_file(problem, path, &text).map(|(set, _)| set)
 }
 
@@ -64,8 +68,7 @@ pub fn read_link_set(problem: &Problem, path: &Path) -> Result<LinkSet, InputErr
 /// # Errors
 /// As [`read_link_set`].
 pub fn read_plan_file(problem: &Problem, path: &Path) -> Result<(LinkSet, PlanFacts), InputError> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| InputError::whole(path, format!("cannot read the plan file: {e}")))?;
+    let text = read_text(path, "plan file")?;
     parse_plan_file(problem, path, &text)
 }
 
@@ -87,10 +90,19 @@ fn parse_plan_file(
         lower_bound: raw.lower_bound.as_f64(),
         gap: raw.gap.as_f64(),
     };
+    let lines = LineIndex::new(text);
+    let units: HashMap<&str, NodeId> = problem
+        .nodes
+        .iter()
+        .enumerate()
+        .map(|(k, n)| (n.id.as_str(), NodeId(k as u32)))
+        .collect();
+    let candidates = Candidates::new(problem);
+    let mut seen: HashMap<LinkId, usize> = HashMap::with_capacity(raw.links.len());
     let mut ids = Vec::with_capacity(raw.links.len());
     for entry in raw.links {
         let offset = entry.get().as_ptr() as usize - text.as_ptr() as usize;
-        let line = line_of(text, offset);
+        let line = lines.line(offset);
         let link: RawPlanLink = serde_json::from_str(entry.get()).map_err(|e| {
             InputError::at(
                 path,
@@ -99,41 +111,87 @@ fn parse_plan_file(
             )
         })?;
         let unit = |name: &str| {
-            problem.node_id(name).ok_or_else(|| {
+            units.get(name).copied().ok_or_else(|| {
                 InputError::at(
                     path,
                     line,
                     format!(
-                        "unknown unit \"{name}\"; expected the id of a [[node]] in {}",
+                        "unknown unit {name:?}; expected the id of a [[node]] in {}",
                         problem.path.display()
                     ),
                 )
             })
         };
         let (from, to) = (unit(&link.from)?, unit(&link.to)?);
-        let matches = |ends: &Ends| match (*ends, link.two_way) {
-            (Ends::TwoWay(a, b), true) => (a, b) == (from, to) || (b, a) == (from, to),
-            (Ends::OneWay { from: f, to: t }, false) => (f, t) == (from, to),
-            _ => false,
-        };
-        let best = problem
-            .links
-            .iter()
-            .enumerate()
-            .filter(|(_, l)| matches(&l.ends))
-            .min_by(|a, b| a.1.cost.total_cmp(&b.1.cost).then(a.0.cmp(&b.0)))
-            .map(|(k, _)| LinkId(k as u32));
         let kind = if link.two_way { "two-way" } else { "one-way" };
-        let id = best.ok_or_else(|| {
-            InputError::at(path, line, format!(
-                "{kind} link {} {} {} is not among the candidate links; expected a link listed (or generated) in {}",
-                link.from,
-                if link.two_way { "<->" } else { "->" },
-                link.to,
-                problem.path.display()
-            ))
-        })?;
+        let arrow = if link.two_way { "<->" } else { "->" };
+        let id = candidates
+            .find(problem, from, to, link.two_way, link.id.as_deref())
+            .ok_or_else(|| {
+                InputError::at(path, line, format!(
+                    "{kind} link {} {arrow} {} is not among the candidate links; expected a link listed (or generated) in {}",
+                    link.from,
+                    link.to,
+                    problem.path.display()
+                ))
+            })?;
+        if let Some(first) = seen.insert(id, line) {
+            return Err(InputError::at(
+                path,
+                line,
+                format!(
+                    "{kind} link {} {arrow} {} is listed twice (also on line {first}); expected \
+                     each link once",
+                    link.from, link.to
+                ),
+            ));
+        }
         ids.push(id);
     }
     Ok((LinkSet::new(ids), facts))
+}
+
+/// The candidate links by their ends: two-way ones under the smaller unit
+/// first, one-way ones as (from, to); each list in candidate order.
+struct Candidates {
+    by_ends: HashMap<(bool, NodeId, NodeId), Vec<LinkId>>,
+}
+
+impl Candidates {
+    fn new(problem: &Problem) -> Self {
+        let mut by_ends: HashMap<(bool, NodeId, NodeId), Vec<LinkId>> = HashMap::new();
+        for (k, l) in problem.links.iter().enumerate() {
+            let key = match l.ends {
+                Ends::TwoWay(a, b) => (true, a.min(b), a.max(b)),
+                Ends::OneWay { from, to } => (false, from, to),
+            };
+            by_ends.entry(key).or_default().push(LinkId(k as u32));
+        }
+        Candidates { by_ends }
+    }
+
+    /// The candidate with these ends: the one named `id` when there is
+    /// one, else the cheapest (the first on a tie).
+    fn find(
+        &self,
+        problem: &Problem,
+        from: NodeId,
+        to: NodeId,
+        two_way: bool,
+        id: Option<&str>,
+    ) -> Option<LinkId> {
+        let key = if two_way {
+            (true, from.min(to), from.max(to))
+        } else {
+            (false, from, to)
+        };
+        let list = self.by_ends.get(&key)?;
+        id.and_then(|id| list.iter().copied().find(|&l| problem.link(l).id == id))
+            .or_else(|| {
+                list.iter().copied().min_by(|&a, &b| {
+                    let cost = |l: LinkId| problem.link(l).cost;
+                    cost(a).total_cmp(&cost(b)).then(a.cmp(&b))
+                })
+            })
+    }
 }

@@ -2,48 +2,84 @@
 
 use super::Log;
 use crate::error::InputError;
+use crate::limits;
 use std::path::Path;
 
 /// Parses a log from its text. `p` is the parameter dimension the problem
 /// declares; `path` is used in messages only.
 ///
 /// # Errors
+/// As [`parse_log_within`] with no bound on `|ψ|²`.
+pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
+    parse_log_within(path, text, p, f64::INFINITY)
+}
+
+/// One data line of a log: its 1-based line number and its fields.
+struct Row<'a> {
+    line: usize,
+    fields: Vec<&'a str>,
+}
+
+/// The data lines of a CSV text: blank lines and lines starting with `#`
+/// skipped, fields split at commas and trimmed (a field in double quotes
+/// loses them). Every row keeps its own line number.
+fn rows(text: &str) -> impl Iterator<Item = Row<'_>> {
+    text.split('\n').enumerate().filter_map(|(k, raw)| {
+        let line = raw.strip_suffix('\r').unwrap_or(raw).trim();
+        if line.is_empty() || line.starts_with('#') {
+            return None;
+        }
+        let fields = line
+            .split(',')
+            .map(|f| {
+                let f = f.trim();
+                f.strip_prefix('"')
+                    .and_then(|g| g.strip_suffix('"'))
+                    .map_or(f, str::trim)
+            })
+            .collect();
+        Some(Row {
+            line: k + 1,
+            fields,
+        })
+    })
+}
+
+/// Like [`parse_log`], rejecting a row whose `|ψ|²` exceeds `max_square`
+/// (the load passes `MAX_STIFFNESS / flow_gain`, see [`crate::limits`]).
+///
+/// # Errors
 /// An [`InputError`] naming the line for: a header other than
 /// `t,j,psi1..psiP[,y]`, a wrong column count, a value that is not a finite
-/// number, a jump counter that is not a whole number or does not step by 0 or
-/// 1, time going backwards within a flow, a jump whose two rows disagree on
-/// `t`, or fewer than two rows.
+/// number or lies outside the accepted ranges ([`crate::limits`]), a jump
+/// counter that is not a whole number or does not step by 0 or 1, time
+/// going backwards within a flow, a jump whose two rows disagree on `t`,
+/// or fewer than two rows.
 ///
 /// # Complexity
 /// O(rows · p).
 // Long function: A line-by-line reader whose every branch names the file, the line and
 // what was expected; splitting it would scatter those messages.
-pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .comment(Some(b'#'))
-        .trim(csv::Trim::All)
-        .flexible(true)
-        .from_reader(text.as_bytes());
-
-    let mut records = reader.records();
-    let header = match records.next() {
-        None => {
-            return Err(InputError::whole(
-                path,
-                "the log is empty; expected a header line `t,j,psi1,...`",
-            ));
-        }
-        Some(Err(e)) => return Err(csv_error(path, &e)),
-        Some(Ok(r)) => r,
+pub fn parse_log_within(
+    path: &Path,
+    text: &str,
+    p: usize,
+    max_square: f64,
+) -> Result<Log, InputError> {
+    let mut records = rows(text.strip_prefix('\u{feff}').unwrap_or(text));
+    let Some(header) = records.next() else {
+        return Err(InputError::whole(
+            path,
+            "the log is empty; expected a header line `t,j,psi1,...`",
+        ));
     };
-    let header_line = line_of_record(&header);
+    let header_line = header.line;
     let expected: Vec<String> = ["t", "j"]
         .iter()
         .map(|s| s.to_string())
         .chain((1..=p).map(|k| format!("psi{k}")))
         .collect();
-    let names: Vec<&str> = header.iter().collect();
+    let names = &header.fields;
     let has_y = names.len() == expected.len() + 1 && names.last() == Some(&"y");
     let header_ok = names.len() >= expected.len()
         && names[..expected.len()]
@@ -81,9 +117,7 @@ pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
         y: has_y.then(Vec::new),
     };
     let mut prev_line = header_line;
-    for rec in records {
-        let rec = rec.map_err(|e| csv_error(path, &e))?;
-        let line = line_of_record(&rec);
+    for Row { line, fields: rec } in records {
         if rec.len() != columns {
             return Err(InputError::at(
                 path,
@@ -94,14 +128,30 @@ pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
                 ),
             ));
         }
-        let t = number(path, line, "t", &rec[0])?;
-        let j = jump_counter(path, line, &rec[1])?;
+        let t = number(path, line, "t", rec[0], limits::MAX_TIME, " s")?;
+        let j = jump_counter(path, line, rec[1])?;
+        let mut square = 0.0;
         for k in 0..p {
-            let v = number(path, line, &format!("psi{}", k + 1), &rec[2 + k])?;
+            let column = format!("psi{}", k + 1);
+            let v = number(path, line, &column, rec[2 + k], limits::MAX_SAMPLE, "")?;
+            square += v * v;
             log.psi.push(v);
         }
+        if square > max_square {
+            return Err(InputError::at(
+                path,
+                line,
+                format!(
+                    "|psi|² = {square:.4e} makes flow_gain·|psi|² exceed {:e} 1/s (a time \
+                     constant below 0.1 ms, which the certificate cannot step through in \
+                     bounded work); expected a smaller regressor (normalise it) or a \
+                     smaller flow_gain (docs/formats.md, \"Accepted ranges\")",
+                    limits::MAX_STIFFNESS
+                ),
+            ));
+        }
         if let Some(y) = log.y.as_mut() {
-            y.push(number(path, line, "y", &rec[2 + p])?);
+            y.push(number(path, line, "y", rec[2 + p], limits::MAX_OUTPUT, "")?);
         }
         if let (Some(&pt), Some(&pj)) = (log.t.last(), log.j.last()) {
             if j == pj {
@@ -114,7 +164,7 @@ pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
                         ),
                     ));
                 }
-            } else if j == pj + 1 {
+            } else if pj.checked_add(1) == Some(j) {
                 if t != pt {
                     return Err(InputError::at(
                         path,
@@ -142,26 +192,23 @@ pub fn parse_log(path: &Path, text: &str, p: usize) -> Result<Log, InputError> {
     Ok(log)
 }
 
-fn line_of_record(rec: &csv::StringRecord) -> usize {
-    rec.position().map(|p| p.line() as usize).unwrap_or(1)
-}
-
-fn csv_error(path: &Path, e: &csv::Error) -> InputError {
-    let line = e.position().map(|p| p.line() as usize);
-    let message = match e.kind() {
-        csv::ErrorKind::Utf8 { .. } => "expected UTF-8 text".to_string(),
-        _ => format!("malformed CSV: {e}"),
-    };
-    InputError {
-        file: path.to_path_buf(),
-        line,
-        message,
-    }
-}
-
-fn number(path: &Path, line: usize, column: &str, field: &str) -> Result<f64, InputError> {
+fn number(
+    path: &Path,
+    line: usize,
+    column: &str,
+    field: &str,
+    max: f64,
+    unit: &str,
+) -> Result<f64, InputError> {
     match field.parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(v),
+        Ok(v) if v.is_finite() && v.abs() <= max => Ok(v),
+        Ok(v) if v.is_finite() => Err(InputError::at(
+            path,
+            line,
+            format!(
+                "column {column}: {field} is outside the accepted range; expected |{column}| ≤ {max:e}{unit} (docs/formats.md, \"Accepted ranges\")"
+            ),
+        )),
         Ok(_) => Err(InputError::at(
             path,
             line,

@@ -11,7 +11,7 @@ mod csvlog;
 mod domain;
 mod windows;
 
-pub use csvlog::parse_log;
+pub use csvlog::{parse_log, parse_log_within};
 pub use domain::TimeDomain;
 pub use windows::{MAX_DEFAULT_WINDOWS, Window, WindowKind, window_at, windows};
 

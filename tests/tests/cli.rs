@@ -99,7 +99,7 @@ fn negative_cost() {
         edit_problem("cost = 3.0", "cost = -3.0"),
         "problem.toml",
         Some(line),
-        "expected a finite cost ≥ 0",
+        "expected a finite cost from 0 to",
     );
 }
 
@@ -525,9 +525,9 @@ fn simulate_writes_csv_and_svg() {
     assert_eq!(v["reference"], serde_json::json!([0.0, 0.0]));
     // Bad vectors: exit 2 naming the flag, no files written.
     for (flag, value, words) in [
-        ("--truth", "1,x", "finite numbers"),
+        ("--truth", "1,x", "numbers of size at most"),
         ("--truth", "1,2,3", "3 values"),
-        ("--initial", "nan,1", "finite numbers"),
+        ("--initial", "nan,1", "numbers of size at most"),
     ] {
         let run = exmesh(
             dir,

@@ -50,6 +50,51 @@ pub fn exmesh(dir: &Path, args: &[&str]) -> Run {
     }
 }
 
+/// Output of a run with a time cap.
+pub struct CappedRun {
+    pub code: i32,
+    pub stdout: String,
+    pub stderr: String,
+    /// The run was still going at the cap and was killed.
+    pub killed: bool,
+}
+
+/// Runs `exmesh` with `args` in `dir`, killing it after `cap` (a hang
+/// guard, not a timing check). Output goes through files so a chatty run
+/// cannot block on a full pipe.
+pub fn exmesh_capped(dir: &Path, args: &[&str], cap: std::time::Duration) -> CappedRun {
+    let out_dir = tempfile::tempdir().expect("temporary folder");
+    let (out_path, err_path) = (out_dir.path().join("out"), out_dir.path().join("err"));
+    let mut child = Command::new(env!("CARGO_BIN_EXE_exmesh"))
+        .args(args)
+        .current_dir(dir)
+        .stdout(std::fs::File::create(&out_path).unwrap())
+        .stderr(std::fs::File::create(&err_path).unwrap())
+        .spawn()
+        .expect("run exmesh");
+    let started = std::time::Instant::now();
+    let mut killed = false;
+    let status = loop {
+        if let Some(status) = child.try_wait().expect("wait for exmesh") {
+            break status;
+        }
+        if started.elapsed() > cap {
+            let _ = child.kill();
+            killed = true;
+            break child.wait().expect("wait for exmesh");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    };
+    let read =
+        |p: &Path| String::from_utf8_lossy(&std::fs::read(p).unwrap_or_default()).into_owned();
+    CappedRun {
+        code: status.code().unwrap_or(-1),
+        stdout: read(&out_path),
+        stderr: read(&err_path),
+        killed,
+    }
+}
+
 /// A log of `rows` (t, j, psi...) with a `y` column of zeros.
 pub fn log_text(p: usize, rows: &[(f64, u32, Vec<f64>)]) -> String {
     let psi: Vec<String> = (1..=p).map(|k| format!("psi{k}")).collect();

@@ -34,7 +34,7 @@ pub(crate) enum Command {
         /// Write the plan (JSON) to this file.
         #[arg(long, value_name = "PLAN.json")]
         out: Option<PathBuf>,
-        /// Stop after this many seconds and return the best plan with its gap.
+        /// Stop after this many seconds, counted from the start, and return the best plan with its gap (more than a century counts as a century).
         #[arg(long, value_name = "SECONDS", value_parser = seconds)]
         time_limit: Option<Duration>,
         /// Plan so that the condition still holds after any one link fails, or any one unit is lost.
@@ -82,7 +82,7 @@ pub(crate) enum Command {
         /// Draw the front (SVG).
         #[arg(long, value_name = "FRONT.svg")]
         svg: Option<PathBuf>,
-        /// Stop after this many seconds (half for the structural search, half for the sweep).
+        /// Stop after this many seconds, counted from the start (half for the structural search, half for the sweep; more than a century counts as a century).
         #[arg(long, value_name = "SECONDS", value_parser = seconds)]
         time_limit: Option<Duration>,
         /// Print JSON instead of text.
@@ -133,7 +133,7 @@ pub(crate) enum Command {
         /// Write the new plan (JSON) to this file.
         #[arg(long, value_name = "PLAN.json")]
         out: Option<PathBuf>,
-        /// Stop the search after this many seconds.
+        /// Stop the search after this many seconds, counted from the start (more than a century counts as a century).
         #[arg(long, value_name = "SECONDS", value_parser = seconds)]
         time_limit: Option<Duration>,
         /// Print JSON instead of text.
@@ -189,10 +189,13 @@ pub(crate) struct LinkChoice {
     pub(crate) plan: Option<PathBuf>,
 }
 
-/// `--time-limit`: a positive, finite number of seconds.
+/// A time limit: any finite positive number of seconds; limits past a
+/// century are clamped to one (documented in docs/formats.md).
 fn seconds(text: &str) -> Result<Duration, String> {
     match text.trim().parse::<f64>() {
-        Ok(t) if t.is_finite() && t > 0.0 => Ok(Duration::from_secs_f64(t)),
+        Ok(t) if t.is_finite() && t > 0.0 => Ok(Duration::from_secs_f64(
+            t.min(exmesh::limits::MAX_TIME_LIMIT),
+        )),
         _ => Err("expected a positive number of seconds".into()),
     }
 }
@@ -217,8 +220,13 @@ fn vector(text: &str) -> Result<Vector, String> {
             v.trim()
                 .parse::<f64>()
                 .ok()
-                .filter(|x| x.is_finite())
-                .ok_or_else(|| format!("expected comma-separated finite numbers, found {v:?}"))
+                .filter(|x| x.is_finite() && x.abs() <= exmesh::limits::MAX_VECTOR)
+                .ok_or_else(|| {
+                    format!(
+                        "expected comma-separated numbers of size at most {:e}, found {v:?}",
+                        exmesh::limits::MAX_VECTOR
+                    )
+                })
         })
         .collect();
     values.map(Vector)
@@ -237,6 +245,20 @@ mod tests {
         assert_eq!(cost("0"), Ok(0.0));
         assert!(cost("-1").is_err() && cost("NaN").is_err());
         assert_eq!(vector("1, -2"), Ok(Vector(vec![1.0, -2.0])));
-        assert!(vector("1,x").unwrap_err().contains("finite numbers"));
+        assert!(vector("1e200,0").is_err());
+        // A century at most, and no panic on huge values.
+        assert_eq!(
+            seconds("1e20").unwrap().as_secs_f64(),
+            exmesh::limits::MAX_TIME_LIMIT
+        );
+        assert_eq!(
+            seconds("1e400"),
+            Err("expected a positive number of seconds".into())
+        );
+        assert!(
+            vector("1,x")
+                .unwrap_err()
+                .contains("numbers of size at most")
+        );
     }
 }

@@ -3,7 +3,7 @@
 
 use crate::args::{LinkChoice, Pictures, SurviveArg, Vector};
 use crate::output::{
-    FlagError, emit, progress, verdict, write_atomically, write_pictures, write_plan_file,
+    FlagError, Outputs, emit, problem_inputs, progress, refuse_overwriting, verdict,
 };
 use anyhow::Context;
 use exmesh::{
@@ -12,7 +12,26 @@ use exmesh::{
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
-use std::time::Duration;
+use std::sync::OnceLock;
+use std::time::{Duration, Instant};
+
+/// When the command started: time limits count from here.
+static STARTED: OnceLock<Instant> = OnceLock::new();
+
+/// Marks the start of the command (call first thing in `main`).
+pub(crate) fn start_clock() {
+    STARTED.get_or_init(Instant::now);
+}
+
+/// What is left of a time limit counted from the command's start (at
+/// least a millisecond, so the engine still returns its first plan).
+fn remaining(limit: Option<Duration>) -> Option<Duration> {
+    let started = *STARTED.get_or_init(Instant::now);
+    limit.map(|l| {
+        l.saturating_sub(started.elapsed())
+            .max(Duration::from_millis(1))
+    })
+}
 
 /// `excitation`: per-unit excitation summary.
 pub(crate) fn excitation(
@@ -41,9 +60,17 @@ pub(crate) fn plan(
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    refuse_overwriting(
+        &problem_inputs(&problem),
+        &[
+            ("--out", plan_path.as_deref()),
+            ("--svg", pictures.map.as_deref()),
+            ("--dot", pictures.dot.as_deref()),
+        ],
+    )?;
     let table = ExcitationTable::build(&problem);
     let options = plan::Options {
-        time_limit,
+        time_limit: remaining(time_limit),
         progress: progress(),
         survive: match survive {
             None => plan::Survive::Nothing,
@@ -60,9 +87,10 @@ pub(crate) fn plan(
     } else {
         problem.all_links()
     };
-    let (map, dot) = (pictures.map.as_deref(), pictures.dot.as_deref());
-    write_pictures(map, dot, &problem, &table, &set)?;
-    write_plan_file(plan_path, &plan)?;
+    let mut files = Outputs::default();
+    files.pictures(pictures, &problem, &table, &set);
+    files.plan_file(plan_path.as_deref(), &plan)?;
+    files.commit()?;
     emit(out, json, &plan, |o| report::text::plan(&plan, o)).context("writing the plan")?;
     Ok(verdict(feasible))
 }
@@ -78,9 +106,10 @@ pub(crate) fn budget(
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    refuse_overwriting(&problem_inputs(&problem), &[("--svg", svg.as_deref())])?;
     let table = ExcitationTable::build(&problem);
     let options = plan::Options {
-        time_limit,
+        time_limit: remaining(time_limit),
         progress: progress(),
         ..Default::default()
     };
@@ -88,8 +117,9 @@ pub(crate) fn budget(
     if let Some(path) = svg {
         let text = report::chart::front_svg(&front, problem.settings.target_rate)
             .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
-        write_atomically(&path, text.as_bytes())
-            .with_context(|| format!("writing the figure to {}", path.display()))?;
+        let mut files = Outputs::default();
+        files.add(&path, text.into_bytes(), "the figure");
+        files.commit()?;
     }
     emit(out, json, &front, |o| report::text::front(&front, o)).context("writing the front")?;
     let ok = front.structural_cost.is_some()
@@ -124,13 +154,30 @@ pub(crate) fn report(
     truth: Option<Vector>,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    let mut inputs = problem_inputs(&problem);
+    inputs.push(plan);
+    refuse_overwriting(&inputs, &[("--out", Some(page))])?;
     let (set, facts) = problem::read_plan_file(&problem, plan)?;
     let table = ExcitationTable::build(&problem);
     let truth = truth.map(|v| v.0);
+    if let Some(v) = &truth {
+        let p = problem.settings.parameters;
+        if v.len() != p {
+            return Err(FlagError {
+                flag: "--truth",
+                message: format!(
+                    "expected {p} values (the problem's parameters), found {}",
+                    v.len()
+                ),
+            }
+            .into());
+        }
+    }
     let html = report::html::assemble(&problem, &table, &set, facts, truth, front, &progress())
         .map_err(anyhow::Error::msg)?;
-    write_atomically(page, html.as_bytes())
-        .with_context(|| format!("writing the report to {}", page.display()))?;
+    let mut files = Outputs::default();
+    files.add(page, html.into_bytes(), "the report");
+    files.commit()?;
     writeln!(out, "wrote {}", page.display()).context("writing to standard output")?;
     Ok(ExitCode::SUCCESS)
 }
@@ -146,6 +193,9 @@ pub(crate) fn retire(
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    let mut inputs = problem_inputs(&problem);
+    inputs.extend(plan);
+    refuse_overwriting(&inputs, &[("--out", plan_path.as_deref())])?;
     let mut units = Vec::new();
     for name in nodes {
         let id = problem.node_id(name).ok_or_else(|| FlagError {
@@ -161,14 +211,16 @@ pub(crate) fn retire(
         None => LinkSet::default(),
     };
     let options = plan::Options {
-        time_limit,
+        time_limit: remaining(time_limit),
         progress: progress(),
         ..Default::default()
     };
     let result = whatif::retire::retire(&problem, &units, &in_place, &options)
         .map_err(|e| exmesh::InputError::whole(&problem.path, e.to_string()))?;
     let feasible = result.plan.status != plan::PlanStatus::Infeasible;
-    write_plan_file(plan_path, &result.plan)?;
+    let mut files = Outputs::default();
+    files.plan_file(plan_path.as_deref(), &result.plan)?;
+    files.commit()?;
     emit(out, json, &result, |o| report::text::retirement(&result, o))
         .context("writing the re-plan")?;
     Ok(verdict(feasible))
@@ -193,6 +245,15 @@ pub(crate) fn simulate(
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    let mut inputs = problem_inputs(&problem);
+    inputs.push(plan);
+    refuse_overwriting(
+        &inputs,
+        &[
+            ("--out", files.csv.as_deref()),
+            ("--svg", files.svg.as_deref()),
+        ],
+    )?;
     let set = problem::read_link_set(&problem, plan)?;
     let table = ExcitationTable::build(&problem);
     let cert = certify::certify_showing(&problem, &table, &set, &progress());
@@ -215,18 +276,18 @@ pub(crate) fn simulate(
             message: e.to_string(),
         })
     })?;
-    if let Some(path) = files.csv {
+    let mut outputs = Outputs::default();
+    if let Some(path) = &files.csv {
         let mut bytes = Vec::new();
         simulate::write_csv(&problem, &traj, &mut bytes)?;
-        write_atomically(&path, &bytes)
-            .with_context(|| format!("writing the trajectory to {}", path.display()))?;
+        outputs.add(path, bytes, "the trajectory");
     }
-    if let Some(path) = files.svg {
+    if let Some(path) = &files.svg {
         let text = report::chart::errors_svg(&problem, &traj)
             .map_err(|e| anyhow::anyhow!("drawing the error figure: {e}"))?;
-        write_atomically(&path, text.as_bytes())
-            .with_context(|| format!("writing the figure to {}", path.display()))?;
+        outputs.add(path, text.into_bytes(), "the figure");
     }
+    outputs.commit()?;
     emit(out, json, &traj, |o| report::text::simulation(&traj, o))
         .context("writing the simulation summary")?;
     Ok(ExitCode::SUCCESS)
@@ -242,6 +303,15 @@ pub(crate) fn check(
     skip_rate: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
+    let mut inputs = problem_inputs(&problem);
+    inputs.extend(links.plan.as_deref());
+    refuse_overwriting(
+        &inputs,
+        &[
+            ("--svg", pictures.map.as_deref()),
+            ("--dot", pictures.dot.as_deref()),
+        ],
+    )?;
     let set: LinkSet = match (links.all, links.installed, &links.plan) {
         (true, _, _) => problem.all_links(),
         (_, true, _) => problem.installed_links(),
@@ -249,8 +319,9 @@ pub(crate) fn check(
         _ => unreachable!("clap requires one link choice"),
     };
     let table = ExcitationTable::build(&problem);
-    let (map, dot) = (pictures.map.as_deref(), pictures.dot.as_deref());
-    write_pictures(map, dot, &problem, &table, &set)?;
+    let mut files = Outputs::default();
+    files.pictures(pictures, &problem, &table, &set);
+    files.commit()?;
     let mut check = analysis::check(&problem, &table, &set);
     if !skip_rate {
         let cert = certify::certify_showing(&problem, &table, &set, &progress());

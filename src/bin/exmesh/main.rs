@@ -22,6 +22,7 @@ use std::io::Write;
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
+    commands::start_clock();
     match run(Cli::parse().command) {
         Ok(code) => code,
         Err(e) => {
