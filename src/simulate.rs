@@ -100,6 +100,10 @@ pub enum SimError {
         "all logs together do not determine the parameter (pooled Gramian singular): give --truth"
     )]
     Underdetermined,
+    /// The error system needs more work than accepted (the reason says
+    /// how much and where).
+    #[error("{0}")]
+    TooStiff(String),
 }
 
 /// Pooled least-squares fit `(Σ G_i)⁻¹ Σ b_i` over the horizon, with the
@@ -213,6 +217,9 @@ pub fn simulate(
         None => (pooled_fit(problem, &schedule)?, Reference::PooledFit),
     };
     let system = ErrorSystem::of_links(&schedule, problem, set);
+    if let Some(reason) = system.too_stiff() {
+        return Err(SimError::TooStiff(reason));
+    }
     let initial = options.initial.clone().unwrap_or_else(|| vec![0.0; p]);
     // With a truth the run is the error system; otherwise the estimates.
     let mut x: Vec<f64> = match kind {

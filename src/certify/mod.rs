@@ -567,6 +567,12 @@ pub fn certify_with(
         );
         return cert;
     }
+    let whole = ErrorSystem::of_links(schedule, problem, set);
+    if let Some(reason) = whole.too_stiff() {
+        cert.reason = Some(reason);
+        return cert;
+    }
+    drop(whole);
     let horizon = problem.domain.h1 - problem.domain.h0;
     let blocks = certify_blocks(problem, schedule, set, progress);
     // The slowest block: one without a rate first, else the smallest rate

@@ -26,6 +26,14 @@ use crate::problem::{Gains, Problem};
 /// the vector it is applied to.
 pub const TAYLOR_TOLERANCE: f64 = 1e-14;
 
+/// Most Taylor substeps, beyond one per grid interval, that one pass over
+/// the horizon may take (see [`ErrorSystem::too_stiff`]). A certificate
+/// makes hundreds of passes over windows: at 2.4e6 substeps per pass the
+/// 8-unit demo's check took 100 s on one core, so the cap is 1e6. The
+/// demos need about 1 % of it (2,874 to 9,574 substeps per pass over
+/// 2,413 to 2,875 grid intervals).
+pub const SUBSTEP_BUDGET: f64 = 1e6;
+
 /// First Taylor term whose norm is computed for the a posteriori stop.
 const NORMS_FROM: usize = 4;
 
@@ -184,6 +192,41 @@ impl<'a> ErrorSystem<'a> {
     /// Length of the stacked error vector, n·p.
     pub fn dim(&self) -> usize {
         self.schedule.n * self.schedule.p
+    }
+
+    /// Taylor substeps of one pass over the whole horizon
+    /// (`Σ_k max(1, ⌈h_k ‖A_k‖⌉)` over the grid intervals).
+    pub fn substeps_per_pass(&self) -> f64 {
+        let grid = &self.schedule.grid;
+        self.generator_norms
+            .iter()
+            .zip(grid.windows(2))
+            .map(|(a, g)| ((g[1] - g[0]) * a).ceil().max(1.0))
+            .sum()
+    }
+
+    /// Why this system is too stiff to certify or simulate in bounded
+    /// work, or `None`: one pass over the horizon may take at most
+    /// [`SUBSTEP_BUDGET`] Taylor substeps beyond one per grid interval.
+    pub fn too_stiff(&self) -> Option<String> {
+        let intervals = self.generator_norms.len() as f64;
+        let needed = self.substeps_per_pass();
+        if needed <= SUBSTEP_BUDGET + intervals {
+            return None;
+        }
+        let (k, norm) = self
+            .generator_norms
+            .iter()
+            .enumerate()
+            .fold((0, 0.0f64), |m, (k, &a)| if a > m.1 { (k, a) } else { m });
+        Some(format!(
+            "the error system is too stiff to step through in bounded work: one pass over \
+             the horizon needs {needed:.3e} Taylor substeps (at most {:.3e} accepted); its \
+             generator norm reaches {norm:.3e} 1/s at t = {}; expected smaller regressors, \
+             gains or link weights (docs/formats.md, \"Accepted ranges\")",
+            SUBSTEP_BUDGET + intervals,
+            self.schedule.grid[k]
+        ))
     }
 
     /// Largest weighted in-degree.

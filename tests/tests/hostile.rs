@@ -375,11 +375,16 @@ fn values_that_overflow_are_rejected_by_every_command() {
 /// nothing; stale temporary files of a killed run removed.
 #[test]
 fn outputs_are_well_formed_and_all_or_nothing() {
-    let folder = edited("id = \"c\"", "id = \"c\\u0001\"");
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    folder.write(
+        "problem.toml",
+        &SMALL_PROBLEM.replace("\"c\"", "\"c\\u0001\""),
+    );
     expect_rejected(
         &folder,
         &["excitation", "problem.toml"],
-        "problem.toml:",
+        "problem.toml:17:",
         "U+0001",
     );
 
@@ -471,4 +476,46 @@ fn outputs_never_overwrite_inputs() {
     assert_eq!(std::fs::read(folder.path("problem.toml")).unwrap(), problem);
     assert_eq!(std::fs::read(folder.path("logs/a.csv")).unwrap(), log);
     assert_eq!(std::fs::read(folder.path("plan.json")).unwrap(), plan);
+}
+
+/// Failure 1, within the ranges: a regressor near the stiffness cap held
+/// for the whole horizon. The certificate says why it has no rate, and
+/// `simulate` stops with the same reason, instead of stepping through
+/// millions of substeps per pass.
+#[test]
+fn too_stiff_error_systems_stop_with_a_reason() {
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    let long = |psi: [f64; 2]| {
+        let mut s = String::from("t,j,psi1,psi2,y\n");
+        for k in 0..=400 {
+            s.push_str(&format!("{},0,{},{},0\n", k as f64 * 0.5, psi[0], psi[1]));
+        }
+        s
+    };
+    folder.write("logs/a.csv", &long([99.0, 0.0]));
+    folder.write("logs/b.csv", &long([0.0, 1.0]));
+    folder.write("logs/c.csv", &long([0.0, 0.0]));
+    let run = exmesh_capped(
+        folder.dir.path(),
+        &["check", "problem.toml", "--plan", "plan.json", "--json"],
+        Duration::from_secs(120),
+    );
+    assert!(!run.killed, "check hung");
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).expect(&run.stderr);
+    assert!(v["certificate"]["rate"].is_null(), "{}", v["certificate"]);
+    assert!(
+        v["certificate"]["reason"]
+            .as_str()
+            .unwrap_or("")
+            .contains("too stiff"),
+        "{}",
+        v["certificate"]
+    );
+    expect_rejected(
+        &folder,
+        &["simulate", "problem.toml", "--plan", "plan.json"],
+        "problem.toml:",
+        "too stiff",
+    );
 }

@@ -6,6 +6,7 @@ mod certificate;
 mod cli;
 mod external;
 mod fixtures;
+mod fuzz;
 mod hostile;
 mod pictures;
 mod planning;
