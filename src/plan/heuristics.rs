@@ -25,9 +25,19 @@ fn dearest_first(inst: &Instance, chosen: &[bool]) -> Vec<usize> {
 ///
 /// # Complexity
 /// O(m (n + m)) plus the excitation checks, which are cached.
-pub(crate) fn reverse_delete(inst: &Instance, start: &[bool]) -> Vec<bool> {
+///
+/// Stops dropping at `deadline` (checked before each link): the result
+/// still satisfies the condition, but may then not be irreducible.
+pub(crate) fn reverse_delete_until(
+    inst: &Instance,
+    start: &[bool],
+    deadline: Option<Instant>,
+) -> Vec<bool> {
     let mut chosen = start.to_vec();
     for k in dearest_first(inst, &chosen) {
+        if deadline.is_some_and(|d| Instant::now() >= d) {
+            break;
+        }
         chosen[k] = false;
         if !inst.holds_structure(&chosen) {
             chosen[k] = true;
@@ -68,8 +78,10 @@ fn within_caps(inst: &Instance, chosen: &mut [bool], y: &[f64]) {
 /// Rounds an LP point to a feasible link set: keep links with y ≥ 1/2, then
 /// while some source component is not excited, add the link entering it
 /// with the least cost·(1 − y) (ties: cheaper, then lower index); finally
-/// reverse-delete. Returns `None` when even all candidates fail.
-pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
+/// reverse-delete. Returns `None` when even all candidates fail, or when
+/// `deadline` passes before a repaired set is found (the final
+/// reverse-delete then stops early).
+pub(crate) fn repair(inst: &Instance, y: &[f64], deadline: Option<Instant>) -> Option<Vec<bool>> {
     let mut chosen: Vec<bool> = inst
         .links
         .iter()
@@ -78,6 +90,9 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
         .collect();
     within_caps(inst, &mut chosen, y);
     loop {
+        if deadline.is_some_and(|d| Instant::now() >= d) {
+            return None;
+        }
         let bad = inst.violations(&chosen);
         if bad.is_empty() {
             break;
@@ -118,7 +133,7 @@ pub(crate) fn repair(inst: &Instance, y: &[f64]) -> Option<Vec<bool>> {
             return None;
         }
     }
-    let chosen = reverse_delete(inst, &chosen);
+    let chosen = reverse_delete_until(inst, &chosen, deadline);
     inst.holds(&chosen).then_some(chosen)
 }
 
@@ -135,7 +150,7 @@ pub(crate) fn exchange(inst: &Instance, start: &[bool], deadline: Option<Instant
     let mut improved = true;
     while improved && deadline.is_none_or(|d| Instant::now() < d) {
         improved = false;
-        chosen = reverse_delete(inst, &chosen);
+        chosen = reverse_delete_until(inst, &chosen, deadline);
         for e in dearest_first(inst, &chosen) {
             if !chosen[e] || deadline.is_some_and(|d| Instant::now() >= d) {
                 continue;
@@ -200,7 +215,10 @@ pub(crate) fn exchange(inst: &Instance, start: &[bool], deadline: Option<Instant
 /// heuristic for a minimum-weight forest problem", Oper. Res. Letters 14,
 /// 1993) generalised to directed links. Returns `None` when even all
 /// candidates fail.
-pub(crate) fn forward_greedy(inst: &Instance) -> Option<Vec<bool>> {
+///
+/// Gives up (`None`) at `deadline`, checked before each link; its final
+/// reverse-delete stops there too.
+pub(crate) fn forward_greedy(inst: &Instance, deadline: Option<Instant>) -> Option<Vec<bool>> {
     let mut chosen: Vec<bool> = inst.links.iter().map(|l| l.installed).collect();
     let mut order: Vec<usize> = (0..inst.links.len()).filter(|&k| !chosen[k]).collect();
     order.sort_by(|&a, &b| {
@@ -222,13 +240,16 @@ pub(crate) fn forward_greedy(inst: &Instance) -> Option<Vec<bool>> {
         return Some(chosen);
     }
     for k in order {
+        if deadline.is_some_and(|d| Instant::now() >= d) {
+            return None;
+        }
         let useful = inst.links[k].arcs.iter().any(|&(f, t)| {
             bad_of[t as usize] != usize::MAX && bad_of[f as usize] != bad_of[t as usize]
         });
         if useful && inst.fits_with(&chosen, k) {
             chosen[k] = true;
             if refresh(&chosen, &mut bad_of) {
-                return Some(reverse_delete(inst, &chosen));
+                return Some(reverse_delete_until(inst, &chosen, deadline));
             }
         }
     }

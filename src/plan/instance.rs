@@ -609,17 +609,32 @@ impl<'a> Instance<'a> {
     /// survival requirement, those of every single failure (sorted sets,
     /// no repeats).
     pub fn violations(&self, chosen: &[bool]) -> Vec<Vec<u32>> {
+        self.violations_until(chosen, None)
+            .expect("no deadline, no early stop")
+    }
+
+    /// [`Self::violations`], or `None` when `deadline` passes while the
+    /// single failures are checked (one source-component pass each).
+    pub fn violations_until(
+        &self,
+        chosen: &[bool],
+        deadline: Option<std::time::Instant>,
+    ) -> Option<Vec<Vec<u32>>> {
         let mut out: Vec<Vec<u32>> = self
             .source_components(chosen)
             .into_iter()
             .filter(|c| !self.oracle.excited(c))
             .collect();
         if self.survive != Survive::Nothing && out.is_empty() {
-            out.extend(self.failures(chosen, false).into_iter().map(|f| f.0));
+            out.extend(
+                self.failures_until(chosen, false, deadline)?
+                    .into_iter()
+                    .map(|f| f.0),
+            );
             out.sort();
             out.dedup();
         }
-        out
+        Some(out)
     }
 
     /// The condition, the caps and, under a survival requirement, every
@@ -640,18 +655,33 @@ impl<'a> Instance<'a> {
     /// Failure scenarios under which a non-excited source component appears
     /// (at most one when `first_only`).
     pub fn failures(&self, chosen: &[bool], first_only: bool) -> Vec<(Vec<u32>, Failure)> {
+        self.failures_until(chosen, first_only, None)
+            .expect("no deadline, no early stop")
+    }
+
+    /// [`Self::failures`], or `None` when `deadline` passes first.
+    pub fn failures_until(
+        &self,
+        chosen: &[bool],
+        first_only: bool,
+        deadline: Option<std::time::Instant>,
+    ) -> Option<Vec<(Vec<u32>, Failure)>> {
+        let late = || deadline.is_some_and(|d| std::time::Instant::now() >= d);
         let mut out = Vec::new();
         let mut mask = chosen.to_vec();
         match self.survive {
             Survive::Nothing => {}
             Survive::Link => {
                 for k in (0..self.links.len()).filter(|&k| chosen[k]) {
+                    if late() {
+                        return None;
+                    }
                     mask[k] = false;
                     for c in self.source_components(&mask) {
                         if !self.oracle.excited(&c) {
                             out.push((c, Failure::Link(k)));
                             if first_only {
-                                return out;
+                                return Some(out);
                             }
                         }
                     }
@@ -660,6 +690,9 @@ impl<'a> Instance<'a> {
             }
             Survive::Unit => {
                 for v in 0..self.n as u32 {
+                    if late() {
+                        return None;
+                    }
                     for (k, l) in self.links.iter().enumerate() {
                         mask[k] = chosen[k] && !l.arcs.iter().any(|&(a, b)| a == v || b == v);
                     }
@@ -667,14 +700,14 @@ impl<'a> Instance<'a> {
                         if c != [v] && !self.oracle.excited(&c) {
                             out.push((c, Failure::Unit(v)));
                             if first_only {
-                                return out;
+                                return Some(out);
                             }
                         }
                     }
                 }
             }
         }
-        out
+        Some(out)
     }
 
     /// The row a failure scenario violates: two distinct links entering U

@@ -44,14 +44,29 @@ pub use types::{
 /// one-way special case); Chopra, "On the spanning tree polyhedron",
 /// Oper. Res. Letters 8, 1989 (partition inequalities).
 pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Plan {
-    let mut result = plan_once(problem, table, options);
-    if options.survive != Survive::Nothing {
+    let started = Instant::now();
+    let robust = options.survive != Survive::Nothing;
+    // With a survival requirement the robust plan gets ROBUST_SHARE of the
+    // time limit and the plain plan it is compared with the rest.
+    let first = Options {
+        time_limit: options
+            .time_limit
+            .map(|d| if robust { d.mul_f64(ROBUST_SHARE) } else { d }),
+        ..options.clone()
+    };
+    let mut result = plan_once(problem, table, &first);
+    if robust {
+        let left = options.time_limit.map(|d| {
+            d.saturating_sub(started.elapsed())
+                .max(std::time::Duration::from_millis(1))
+        });
         let plain = plan_once(
             problem,
             table,
             &Options {
                 survive: Survive::Nothing,
                 progress: crate::progress::Sink::silent(),
+                time_limit: left,
                 ..options.clone()
             },
         );
@@ -72,6 +87,10 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     }
     result
 }
+
+/// Share of the time limit for the robust plan when `--survive` asks for
+/// one (the plain plan it is compared with gets the rest).
+const ROBUST_SHARE: f64 = 0.7;
 
 /// One planning run: the structural stage, then the rate stage when the
 /// problem sets `target_rate`.

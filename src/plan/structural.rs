@@ -75,6 +75,10 @@ impl Found<'_> {
 /// measurements: docs/tuning.md, "Root share of the time limit").
 const ROOT_SHARE: f64 = 0.85;
 
+/// Share of the time limit that the start heuristics (forward greedy,
+/// reverse-delete, exchange) may use.
+const GREEDY_SHARE: f64 = 0.4;
+
 /// Runs the structural stage: the cheapest link set whose source
 /// components are all excited, within the in-degree caps and the survival
 /// requirement of `options` (the rate target is not looked at).
@@ -88,7 +92,18 @@ pub(crate) fn run<'a>(
     let mut inst = Instance::new(problem, table);
     inst.survive = options.survive;
     let all = vec![true; inst.links.len()];
-    let bad = inst.violations(&all);
+    // Under a survival requirement this check alone is one
+    // source-component pass per candidate link.
+    let check_started = Instant::now();
+    let Some(bad) = inst.violations_until(&all, deadline) else {
+        let mut plan = infeasible(problem, table, &inst, started, Vec::new(), Vec::new());
+        plan.status = PlanStatus::TimeLimit;
+        return Structural::Done(Box::new(plan));
+    };
+    // One step of reverse-delete from every candidate costs about as much
+    // as that check: skip it when it cannot finish a step in the heuristics'
+    // share of the time.
+    let step = check_started.elapsed();
     if !bad.is_empty() {
         let plain: Vec<Vec<u32>> = inst
             .source_components(&all)
@@ -116,8 +131,20 @@ pub(crate) fn run<'a>(
             problem, table, &inst, started, true,
         )));
     }
-    let reverse = heuristics::reverse_delete(&inst, &all);
-    let greedy = match heuristics::forward_greedy(&inst) {
+    // The start heuristics get at most GREEDY_SHARE of the time limit, so
+    // that the search can still prove a bound. The forward greedy runs
+    // first: on large networks reverse-delete from every candidate is the
+    // slow one, and when it stops early its start is only less reduced.
+    let greedy_deadline = options
+        .time_limit
+        .map(|d| started + d.mul_f64(GREEDY_SHARE));
+    let forward = heuristics::forward_greedy(&inst, greedy_deadline);
+    let reverse = if greedy_deadline.is_some_and(|d| Instant::now() + 2 * step >= d) {
+        all.clone()
+    } else {
+        heuristics::reverse_delete_until(&inst, &all, greedy_deadline)
+    };
+    let greedy = match forward {
         Some(forward) if !inst.fits(&reverse) || inst.cost(&forward) < inst.cost(&reverse) => {
             forward
         }
@@ -126,7 +153,7 @@ pub(crate) fn run<'a>(
     // A start beyond the in-degree caps is no incumbent: the search then
     // starts without one (and says so when it finds none).
     let greedy = if inst.holds(&greedy) {
-        heuristics::exchange(&inst, &greedy, deadline)
+        heuristics::exchange(&inst, &greedy, greedy_deadline)
     } else {
         greedy
     };
@@ -157,7 +184,15 @@ pub(crate) fn run<'a>(
         return Structural::Done(Box::new(plan));
     }
     // Final irreducibility: drop any link whose removal keeps the condition.
-    let best = heuristics::reverse_delete(&inst, &result.best);
+    // The final clean-up may run a little past the deadline (the command
+    // promises the limit plus max(1 s, 2 %)).
+    let cleanup = deadline.map(|d| {
+        d + options
+            .time_limit
+            .map_or(Duration::ZERO, |l| l.mul_f64(0.01))
+            .max(Duration::from_millis(300))
+    });
+    let best = heuristics::reverse_delete_until(&inst, &result.best, cleanup);
     let cost = inst.cost(&best);
     let lower = result.lower_bound.min(cost);
     let gap = if cost > 0.0 {

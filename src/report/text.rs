@@ -540,11 +540,14 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     if p.status == PlanStatus::Infeasible {
         return shortfalls(p, out);
     }
-    let (cost, lower, gap) = (
-        p.cost.unwrap_or(0.0),
-        p.lower_bound.unwrap_or(0.0),
-        p.gap.unwrap_or(0.0),
-    );
+    let Some(cost) = p.cost else {
+        writeln!(
+            out,
+            "No plan was found within the time limit, and nothing is proven about this problem; run again with a longer --time-limit."
+        )?;
+        return cautions(out);
+    };
+    let (lower, gap) = (p.lower_bound.unwrap_or(0.0), p.gap.unwrap_or(0.0));
     writeln!(
         out,
         "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %",

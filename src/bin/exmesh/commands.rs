@@ -3,7 +3,7 @@
 
 use crate::args::{LinkChoice, Pictures, SurviveArg, Vector};
 use crate::output::{
-    FlagError, Outputs, emit, problem_inputs, progress, refuse_overwriting, verdict,
+    FlagError, Outputs, emit, plan_code, problem_inputs, progress, refuse_overwriting, verdict,
 };
 use anyhow::Context;
 use exmesh::{
@@ -92,7 +92,7 @@ pub(crate) fn plan(
     files.plan_file(plan_path.as_deref(), &plan)?;
     files.commit()?;
     emit(out, json, &plan, |o| report::text::plan(&plan, o)).context("writing the plan")?;
-    Ok(verdict(feasible))
+    Ok(plan_code(&plan))
 }
 
 /// `budget`: the cost–rate front.
@@ -217,13 +217,12 @@ pub(crate) fn retire(
     };
     let result = whatif::retire::retire(&problem, &units, &in_place, &options)
         .map_err(|e| exmesh::InputError::whole(&problem.path, e.to_string()))?;
-    let feasible = result.plan.status != plan::PlanStatus::Infeasible;
     let mut files = Outputs::default();
     files.plan_file(plan_path.as_deref(), &result.plan)?;
     files.commit()?;
     emit(out, json, &result, |o| report::text::retirement(&result, o))
         .context("writing the re-plan")?;
-    Ok(verdict(feasible))
+    Ok(plan_code(&result.plan))
 }
 
 /// The files `simulate` writes besides its summary.

@@ -81,6 +81,22 @@ pub(crate) fn emit<W: Write, T: serde::Serialize>(
     }
 }
 
+/// The exit code of a planning command: 0 with a plan, 1 when no link set
+/// can satisfy the problem, 3 (with a message) when the time limit came
+/// before any plan was found.
+pub(crate) fn plan_code(plan: &plan::Plan) -> ExitCode {
+    match (plan.status, plan.cost) {
+        (plan::PlanStatus::Infeasible, _) => ExitCode::from(1),
+        (_, Some(_)) => ExitCode::SUCCESS,
+        (_, None) => {
+            eprintln!(
+                "exmesh: error: no plan was found within the time limit; expected a longer --time-limit"
+            );
+            ExitCode::from(3)
+        }
+    }
+}
+
 /// Exit 0 when the answer is yes, 1 when it is no.
 pub(crate) fn verdict(ok: bool) -> ExitCode {
     if ok {

@@ -200,7 +200,7 @@ fn serve(
             // neighbourhood search (another basin than the root's roundings).
             let plan = group
                 .as_ref()
-                .and_then(|(_, y)| repair(sub, y))
+                .and_then(|(_, y)| repair(sub, y, limits.deadline))
                 .map(|start| improve(sub, &start, limits.deadline, flag));
             let checks = std::mem::take(&mut *sub.oracle.stats.borrow_mut());
             Done::Bound(group.map(|(g, _)| g), plan, checks)

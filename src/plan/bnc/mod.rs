@@ -194,7 +194,7 @@ impl<'a, 'b> Search<'a, 'b> {
 
     fn heuristic(&mut self, y: &[f64]) {
         let t = Instant::now();
-        if let Some(chosen) = repair(self.inst, y) {
+        if let Some(chosen) = repair(self.inst, y, self.deadline) {
             self.offer(chosen);
         }
         self.stats.heuristic_time += t.elapsed();
