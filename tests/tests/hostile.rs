@@ -519,3 +519,95 @@ fn too_stiff_error_systems_stop_with_a_reason() {
         "too stiff",
     );
 }
+
+/// Time limits far too short for the work: every planning command still
+/// answers with a valid outcome. Exit 0 comes with a plan file that
+/// `check` accepts; exit 1 (infeasible: the small problem cannot survive
+/// a link failure) and exit 3 (no plan before the limit, status
+/// `time_limit`, no links) with no plan file. Validity only, no timing.
+#[test]
+fn tiny_time_limits_give_valid_answers() {
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    let cases: [&[&str]; 4] = [
+        &[
+            "plan",
+            "problem.toml",
+            "--time-limit",
+            "1e-9",
+            "--out",
+            "p.json",
+            "--json",
+        ],
+        &[
+            "plan",
+            "problem.toml",
+            "--survive",
+            "link",
+            "--time-limit",
+            "1e-9",
+            "--out",
+            "p.json",
+            "--json",
+        ],
+        &[
+            "retire",
+            "problem.toml",
+            "--node",
+            "c",
+            "--time-limit",
+            "1e-9",
+            "--out",
+            "p.json",
+            "--json",
+        ],
+        &[
+            "budget",
+            "problem.toml",
+            "--time-limit",
+            "1e-9",
+            "--steps",
+            "3",
+            "--json",
+        ],
+    ];
+    for args in cases {
+        let _ = std::fs::remove_file(folder.path("p.json"));
+        let run = exmesh_capped(folder.dir.path(), args, Duration::from_secs(120));
+        assert!(!run.killed, "{args:?} hung");
+        assert!(matches!(run.code, 0 | 1 | 3), "{args:?}: {}", run.stderr);
+        let v: serde_json::Value = serde_json::from_str(&run.stdout).expect(&run.stderr);
+        if args[0] == "budget" {
+            continue;
+        }
+        let plan = if args[0] == "retire" { &v["plan"] } else { &v };
+        match run.code {
+            0 => {
+                assert!(plan["cost"].is_number(), "{plan}");
+                let check = exmesh(
+                    folder.dir.path(),
+                    &["check", "problem.toml", "--plan", "p.json", "--skip-rate"],
+                );
+                // retire's plan is for the reduced problem; the structure
+                // check applies to plan's files only.
+                if args[0] == "plan" {
+                    assert_eq!(check.code, 0, "{}", check.stderr);
+                }
+            }
+            1 => {
+                assert_eq!(plan["status"], "infeasible", "{plan}");
+                assert!(!folder.path("p.json").exists());
+            }
+            3 => {
+                assert_eq!(plan["status"], "time_limit", "{plan}");
+                assert!(plan["cost"].is_null(), "{plan}");
+                assert!(!folder.path("p.json").exists());
+                assert!(
+                    run.stderr
+                        .contains("no plan was found within the time limit")
+                );
+            }
+            _ => panic!("{args:?}: unexpected exit {}", run.code),
+        }
+    }
+}

@@ -120,14 +120,15 @@ impl Outputs {
         self.files.push((path.to_path_buf(), bytes, what));
     }
 
-    /// Adds `plan` as a plan file when a path is given and the plan is not
-    /// infeasible.
+    /// Adds `plan` as a plan file when a path is given and there is a plan
+    /// (not infeasible, and found before any time limit).
     pub(crate) fn plan_file(
         &mut self,
         path: Option<&Path>,
         plan: &plan::Plan,
     ) -> anyhow::Result<()> {
-        if let (Some(path), true) = (path, plan.status != plan::PlanStatus::Infeasible) {
+        let found = plan.status != plan::PlanStatus::Infeasible && plan.cost.is_some();
+        if let (Some(path), true) = (path, found) {
             let mut bytes = Vec::new();
             report::json::write(plan, &mut bytes)?;
             self.add(path, bytes, "the plan");
