@@ -23,6 +23,12 @@ pub const MAX_TIME: f64 = 1e9;
 /// Most excitation windows a `stride` may produce over the horizon.
 pub const MAX_WINDOWS: usize = 1_000_000;
 
+/// Most numbers the excitation table may hold: units × windows ×
+/// p(p+1)/2 packed Gramian entries (4 GB of `f64`). The 10,000-unit
+/// networks the planner targets need about 2e8 at p = 4 with 2,000
+/// windows.
+pub const MAX_TABLE: f64 = 5e8;
+
 /// Largest rate, in 1/s, at which one term of the estimator may pull an
 /// estimate: `flow_gain·|ψ|²` for a sample (the unit's own gradient), and
 /// `flow_coupling·weight` for a link (time constants below 0.1 ms).

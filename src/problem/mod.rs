@@ -549,6 +549,28 @@ impl Validator<'_> {
             }
         }
         let windows = windows(&domain, window_kind, window, stride);
+        let table = nodes.len() as f64 * windows.len() as f64 * (p * (p + 1) / 2) as f64;
+        if table > limits::MAX_TABLE {
+            let at = net
+                .stride
+                .as_ref()
+                .map_or(self.lines.line(net.window.span().start), |s| {
+                    self.lines.line(s.span().start)
+                });
+            return Err(InputError::at(
+                self.path,
+                at,
+                format!(
+                    "{} units × {} windows × {} Gramian entries = {table:.3e} numbers for the \
+                     excitation table; expected at most {:e} (about 4 GB): a larger stride \
+                     (fewer windows), fewer units or fewer parameters",
+                    nodes.len(),
+                    windows.len(),
+                    p * (p + 1) / 2,
+                    limits::MAX_TABLE
+                ),
+            ));
+        }
         if windows.is_empty() {
             return Err(self.err(&net.window, format!(
                 "window = {window}: no window fits in the common horizon [{}, {}] of the logs ({} s); expected a shorter window or longer logs",

@@ -611,3 +611,31 @@ fn tiny_time_limits_give_valid_answers() {
         }
     }
 }
+
+/// Runaway memory from the excitation table: 300 units with 64
+/// parameters and about 1,600 windows would need 300 × 1,600 × 2,080
+/// numbers (8 GB).
+#[test]
+fn oversized_excitation_tables_are_rejected_at_load() {
+    let folder = Folder::new();
+    let header: Vec<String> = (1..=64).map(|k| format!("psi{k}")).collect();
+    let mut log = format!("t,j,{}\n", header.join(","));
+    let row: Vec<&str> = (0..64).map(|k| if k == 0 { "1" } else { "0" }).collect();
+    for k in 0..=2000 {
+        log.push_str(&format!("{},0,{}\n", k as f64 * 0.01, row.join(",")));
+    }
+    folder.write("l.csv", &log);
+    let mut text = String::from(
+        "[network]\nparameters = 64\nwindow = 4.0\nstride = 0.01\nmin_excitation = 0.5\n",
+    );
+    for i in 0..300 {
+        text.push_str(&format!("[[node]]\nid = \"u{i}\"\nlog = \"l.csv\"\n"));
+    }
+    folder.write("problem.toml", &text);
+    expect_rejected(
+        &folder,
+        &["excitation", "problem.toml"],
+        "problem.toml:4:",
+        "numbers for the excitation table",
+    );
+}
