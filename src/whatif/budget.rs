@@ -24,6 +24,35 @@ pub struct FrontPoint {
     pub links: Vec<String>,
 }
 
+/// Two certified rates closer than this, relative to the larger, count as
+/// equal on the front: a dearer point must be faster by more than this to
+/// be listed (a link that leaves the slowest block alone changes its rate
+/// only by round-off, about 1e-11 relative).
+pub const RATE_TIE: f64 = 1e-6;
+
+/// The non-dominated points, by increasing cost: the first is the
+/// cheapest (on a cost tie the fastest, then the smaller link list); each
+/// later point is faster than every cheaper one by more than [`RATE_TIE`]
+/// relative. A point without a rate counts as rate 0.
+pub fn non_dominated(mut points: Vec<FrontPoint>) -> Vec<FrontPoint> {
+    points.sort_by(|a, b| {
+        a.cost
+            .total_cmp(&b.cost)
+            .then(b.rate.unwrap_or(0.0).total_cmp(&a.rate.unwrap_or(0.0)))
+            .then(a.links.cmp(&b.links))
+    });
+    let mut front: Vec<FrontPoint> = Vec::new();
+    let mut best = f64::NEG_INFINITY;
+    for p in points {
+        let r = p.rate.unwrap_or(0.0);
+        if front.is_empty() || r > best + RATE_TIE * best.abs().max(r.abs()) {
+            best = best.max(r);
+            front.push(p);
+        }
+    }
+    front
+}
+
 /// The answer of a budget question.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Front {
@@ -165,21 +194,7 @@ pub fn front(
         out.certified_sets += swept.len();
         visited.extend(swept);
     }
-    // Non-dominated: each point faster than every cheaper one.
-    visited.sort_by(|a, b| {
-        a.cost
-            .total_cmp(&b.cost)
-            .then(b.rate.unwrap_or(0.0).total_cmp(&a.rate.unwrap_or(0.0)))
-            .then(a.links.cmp(&b.links))
-    });
-    let mut best = f64::NEG_INFINITY;
-    for p in visited {
-        let r = p.rate.unwrap_or(0.0);
-        if out.front.is_empty() || r > best {
-            best = best.max(r);
-            out.front.push(p);
-        }
-    }
+    out.front = non_dominated(visited);
     if let Some(b) = max_cost {
         out.best_within_budget = out
             .front
@@ -194,4 +209,46 @@ pub fn front(
             .cloned();
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(cost: f64, rate: Option<f64>, link: &str) -> FrontPoint {
+        FrontPoint {
+            cost,
+            rate,
+            links: vec![link.to_string()],
+        }
+    }
+
+    #[test]
+    fn rates_equal_to_round_off_are_one_point() {
+        // The case seen on a demo: rates equal to 1e-11 relative at costs
+        // 6920 and 7760; only the cheaper stays.
+        let r = 0.026_123_456_789;
+        let front = non_dominated(vec![
+            point(7760.0, Some(r * (1.0 + 1e-11)), "b"),
+            point(6920.0, Some(r), "a"),
+            point(9000.0, Some(r * 1.01), "c"),
+            point(8000.0, None, "d"),
+        ]);
+        let costs: Vec<f64> = front.iter().map(|p| p.cost).collect();
+        assert_eq!(costs, vec![6920.0, 9000.0]);
+        for w in front.windows(2) {
+            let (a, b) = (w[0].rate.unwrap(), w[1].rate.unwrap());
+            assert!(b > a * (1.0 + RATE_TIE));
+        }
+    }
+
+    #[test]
+    fn a_cost_tie_keeps_the_faster_point() {
+        let front = non_dominated(vec![
+            point(100.0, Some(0.01), "slow"),
+            point(100.0, Some(0.02), "fast"),
+        ]);
+        assert_eq!(front.len(), 1);
+        assert_eq!(front[0].links, ["fast"]);
+    }
 }
