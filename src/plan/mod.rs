@@ -115,6 +115,10 @@ fn plan_once(problem: &Problem, table: &ExcitationTable, options: &Options) -> P
             &options.progress,
         )
     });
+    let rate = rate.map(|mut r| {
+        r.structural_status = found.status;
+        r
+    });
     let (mut cost, mut gap) = (Some(found.cost), Some(found.gap));
     if let Some(r) = &rate {
         if r.met || r.timed_out {

@@ -266,6 +266,13 @@ pub fn meet_target(
         met,
         structural_cost,
         added_links: added.iter().map(|&l| problem.link(l).id.clone()).collect(),
+        removed_links: start
+            .ids()
+            .iter()
+            .filter(|l| !set.ids().contains(l))
+            .map(|&l| problem.link(l).id.clone())
+            .collect(),
+        structural_status: PlanStatus::Feasible,
         best_reachable,
         timed_out,
         raised_min_excitation: raised,

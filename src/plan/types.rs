@@ -210,6 +210,12 @@ pub struct RatePlan {
     pub structural_cost: f64,
     /// Ids of the links added for speed, in the order they were added.
     pub added_links: Vec<String>,
+    /// Ids of the structural plan's links that the rate stage swapped out
+    /// (not in the returned set), in candidate order.
+    pub removed_links: Vec<String>,
+    /// Status of the structural plan the stage started from: `optimal`
+    /// when its cost is proven minimal for the structure alone.
+    pub structural_status: PlanStatus,
     /// When not met: the best certified rate found (the greedy additions or
     /// every candidate at once, whichever is faster).
     pub best_reachable: Option<f64>,

@@ -5,6 +5,7 @@ pub mod dot;
 pub mod html;
 pub mod json;
 pub mod map;
+pub mod number;
 pub mod svg;
 pub mod text;
 

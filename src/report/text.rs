@@ -1,6 +1,7 @@
 //! Plain-text output for people.
 
 use super::CAUTIONS;
+use super::number::{self as num, Round};
 use crate::analysis::Verdict;
 use crate::analysis::{Check, ExcitationSummary};
 use crate::certify::{Certificate, NormBoundKind};
@@ -11,7 +12,13 @@ use std::io::{self, Write};
 fn direction(v: &[f64]) -> String {
     let parts: Vec<String> = v
         .iter()
-        .map(|x| format!("{:+.3}", if x.abs() < 5e-4 { 0.0 } else { *x }))
+        .map(|x| {
+            if x.abs() < 5e-4 {
+                " 0.000".to_string()
+            } else {
+                format!("{x:+.3}")
+            }
+        })
         .collect();
     format!("[{}]", parts.join(", "))
 }
@@ -37,7 +44,8 @@ fn threshold(out: &mut impl Write, value: f64, given: bool, windows: usize) -> i
     };
     writeln!(
         out,
-        "required excitation μ_req = {value:.4e} ({origin}); {windows} windows scanned"
+        "required excitation μ_req = {} ({origin}); {windows} windows scanned",
+        num::level(value)
     )
 }
 
@@ -77,9 +85,9 @@ pub fn excitation(s: &ExcitationSummary, out: &mut impl Write) -> io::Result<()>
     for u in s.units.iter().chain(std::iter::once(&s.pooled)) {
         writeln!(
             out,
-            "{:<width$}  {:>11.4e}  {:>7}  {:>4}  {:>4.0}%  {:>4.0}%  {} (t = {})",
+            "{:<width$}  {:>11}  {:>7}  {:>4}  {:>4.0}%  {:>4.0}%  {} (t = {})",
             u.id,
-            u.excitation,
+            num::level(u.excitation),
             yes_no(u.excited),
             u.rank,
             100.0 * u.flow_share,
@@ -110,20 +118,20 @@ pub fn excitation(s: &ExcitationSummary, out: &mut impl Write) -> io::Result<()>
 pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
     writeln!(
         out,
-        "Check of {}: {} links, cost {:.2}",
+        "Check of {}: {}, cost {}",
         c.network,
-        c.links.len(),
-        c.cost
+        num::count(c.links.len(), "link", "links"),
+        num::cost(c.cost, Round::Nearest)
     )?;
     threshold(out, c.min_excitation, c.min_excitation_given, c.windows)?;
     writeln!(out)?;
     for (k, sc) in c.source_components.iter().enumerate() {
         writeln!(
             out,
-            "source component {}: {} unit(s), level {:.4e}, excited: {}",
+            "source component {}: {}, level {}, excited: {}",
             k + 1,
-            sc.nodes.len(),
-            sc.excitation,
+            num::count(sc.nodes.len(), "unit", "units"),
+            num::level(sc.excitation),
             yes_no(sc.excited)
         )?;
         writeln!(out, "  units:   {}", sc.nodes.join(", "))?;
@@ -144,7 +152,11 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
                 )?;
             }
         }
-        writeln!(out, "  drives:  {} unit(s)", sc.reaches.len())?;
+        writeln!(
+            out,
+            "  drives:  {}",
+            num::count(sc.reaches.len(), "unit", "units")
+        )?;
     }
     writeln!(out)?;
     if let Some(cert) = &c.certificate {
@@ -163,7 +175,12 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
         Verdict::StructureFails => {
             writeln!(
                 out,
-                "Verdict: {bad} source component(s) are not excited — the estimates they drive need not converge."
+                "Verdict: {} not excited — the estimates they drive need not converge.",
+                if bad == 1 {
+                    "1 source component is".to_string()
+                } else {
+                    format!("{bad} source components are")
+                }
             )?;
             writeln!(
                 out,
@@ -203,32 +220,44 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
         Some(rate) => {
             writeln!(
                 out,
-                "Certified rate: {rate:.4e} 1/s over windows of {} s ({} windows, worst ‖Φ‖ ≤ {:.6})",
-                c.window, c.windows, c.contraction
+                "Certified rate: {} over windows of {} s ({}, worst ‖Φ‖ ≤ {})",
+                num::rate(rate),
+                c.window,
+                num::count(c.windows, "window", "windows"),
+                num::sig(c.contraction, 6, Round::Up)
             )?;
+            let r = num::sig(rate, 4, Round::Down);
             if let (Some(k), Some(t)) = (c.transient_factor, c.time_to_1pct) {
                 let h = c.envelope_from;
                 writeln!(
                     out,
-                    "  |e(t)| ≤ {k:.4} · exp(−{rate:.4e} (t − {h})) · |e({h})| for every t in the horizon, its last jumps included"
+                    "  |e(t)| ≤ {} · exp(−{r} (t − {h})) · |e({h})| for every t in the horizon, its last jumps included",
+                    num::sig(k, 4, Round::Up)
                 )?;
                 writeln!(
                     out,
-                    "  (the transient factor {k:.4} bounds how much the error can grow inside a window before the window's contraction applies)"
+                    "  (the transient factor {} bounds how much the error can grow inside a window before the window's contraction applies)",
+                    num::sig(k, 4, Round::Up)
                 )?;
                 if let Some(any) = c.transient_factor_any_start {
                     writeln!(
                         out,
-                        "  from any start s in the horizon: |e(t)| ≤ {any:.4} · exp(−{rate:.4e} (t − s)) · |e(s)|"
+                        "  from any start s in the horizon: |e(t)| ≤ {} · exp(−{r} (t − s)) · |e(s)|",
+                        num::sig(any, 4, Round::Up)
                     )?;
                 }
                 if c.time_to_1pct_extrapolated {
                     writeln!(
                         out,
-                        "  error below 1 % after {t:.1} s — extrapolated beyond the recorded horizon (assumes the signals keep behaving as recorded)"
+                        "  error below 1 % after {} s — extrapolated beyond the recorded horizon (assumes the signals keep behaving as recorded)",
+                        num::sig(t, 4, Round::Up)
                     )?;
                 } else {
-                    writeln!(out, "  error below 1 % after {t:.1} s")?;
+                    writeln!(
+                        out,
+                        "  error below 1 % after {} s",
+                        num::sig(t, 4, Round::Up)
+                    )?;
                 }
             }
         }
@@ -245,8 +274,8 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
         )?,
         NormBoundKind::Randomized => writeln!(
             out,
-            "  window norms: upper bounds from randomized tests; the certificate fails with probability at most {:.1e}",
-            c.failure_probability
+            "  window norms: upper bounds from randomized tests; the certificate fails with probability at most {}",
+            num::sig(c.failure_probability, 2, Round::Up)
         )?,
     }
     if c.blocks.len() > 1 {
@@ -259,13 +288,15 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
     if let Some(a) = c.asymptotic_rate {
         writeln!(
             out,
-            "  decay over the whole horizon (estimate, not certified): {a:.4e} 1/s"
+            "  decay over the whole horizon (estimate, not certified): {}",
+            num::rate_nearest(a)
         )?;
     }
     if c.rate.is_some() {
         let top: Vec<String> = c
             .units
             .iter()
+            .filter(|u| u.share >= 0.005)
             .take(3)
             .map(|u| format!("{} ({:.0} %)", u.node, 100.0 * u.share))
             .collect();
@@ -296,14 +327,14 @@ fn gain_lines(gains: &[crate::certify::GainCheck], out: &mut impl Write) -> io::
     for g in gains {
         writeln!(
             out,
-            "  gain check{}: {} — value {:.4} (limit {}): {}",
+            "  gain check{}: {} — value {} (limit {}): {}",
             g.node
                 .as_deref()
                 .map(|n| format!(" at {n}"))
                 .unwrap_or_default(),
             g.condition,
-            g.value,
-            g.limit,
+            num::sig(g.value, 4, Round::Up),
+            num::sig(g.limit, 4, Round::Nearest),
             if g.ok { "pass" } else { "FAIL" }
         )?;
     }
@@ -330,11 +361,14 @@ pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
     match (t.observed_rate, t.certified_rate) {
         (Some(o), Some(c)) => writeln!(
             out,
-            "decay of the stacked error: observed {o:.4e} 1/s, certified {c:.4e} 1/s"
+            "decay of the stacked error: observed {} (estimate), certified {}",
+            num::rate_nearest(o),
+            num::rate(c)
         )?,
         (Some(o), None) => writeln!(
             out,
-            "decay of the stacked error: observed {o:.4e} 1/s; no certified rate"
+            "decay of the stacked error: observed {} (estimate); no certified rate",
+            num::rate_nearest(o)
         )?,
         _ => writeln!(out, "the stacked error did not decay")?,
     }
@@ -368,12 +402,18 @@ pub fn simulation(t: &Trajectory, out: &mut impl Write) -> io::Result<()> {
     for u in units.iter().take(10) {
         writeln!(
             out,
-            "{:<20} {:>14.4e} {:>14.4e}",
-            u.node, u.initial_error, u.final_error
+            "{:<20} {:>14} {:>14}",
+            u.node,
+            num::sig(u.initial_error, 4, Round::Nearest),
+            num::sig(u.final_error, 4, Round::Nearest)
         )?;
     }
     if units.len() > 10 {
-        writeln!(out, "... {} more units (all in the CSV)", units.len() - 10)?;
+        writeln!(
+            out,
+            "... {} more (all in the CSV)",
+            num::count(units.len() - 10, "unit", "units")
+        )?;
     }
     cautions(out)
 }
@@ -391,19 +431,37 @@ pub fn front(f: &crate::whatif::budget::Front, out: &mut impl Write) -> io::Resu
         )?;
         return cautions(out);
     };
+    let what = if f.structural_status == PlanStatus::Optimal {
+        "structural optimum"
+    } else {
+        "structural plan (not proven optimal)"
+    };
     writeln!(
         out,
-        "structural optimum {cost:.2} (proven lower bound {:.2}); {} sets certified",
-        f.lower_bound.unwrap_or(cost),
-        f.certified_sets
+        "{what} {} (proven lower bound {}); {} certified",
+        num::cost(cost, Round::Nearest),
+        num::cost(f.lower_bound.unwrap_or(cost), Round::Down),
+        num::count(f.certified_sets, "set", "sets")
     )?;
     writeln!(out)?;
-    writeln!(out, "{:>12}  {:>14}  {:>6}", "cost", "rate (1/s)", "links")?;
+    writeln!(
+        out,
+        "{:>12}  {:>14}  {:>16}  {:>6}",
+        "cost", "rate (1/s)", "time constant (s)", "links"
+    )?;
     for p in &f.front {
-        let rate = p
+        let (rate, tau) = p
             .rate
-            .map_or("not certified".to_string(), |r| format!("{r:.4e}"));
-        writeln!(out, "{:>12.2}  {rate:>14}  {:>6}", p.cost, p.links.len())?;
+            .filter(|r| *r > 0.0)
+            .map_or(("not certified".to_string(), "-".to_string()), |r| {
+                (num::sig(r, 4, Round::Down), num::sig(1.0 / r, 4, Round::Up))
+            });
+        writeln!(
+            out,
+            "{:>12}  {rate:>14}  {tau:>16}  {:>6}",
+            num::cost(p.cost, Round::Nearest),
+            p.links.len()
+        )?;
     }
     if f.timed_out {
         writeln!(out, "(the time limit stopped the sweep)")?;
@@ -414,16 +472,18 @@ pub fn front(f: &crate::whatif::budget::Front, out: &mut impl Write) -> io::Resu
             Some(p) => {
                 writeln!(
                     out,
-                    "Within {b:.2}: cost {:.2}, certified rate {}",
-                    p.cost,
-                    p.rate
-                        .map_or("none".to_string(), |r| format!("{r:.4e} 1/s"))
+                    "Within {}: cost {}, certified rate {}",
+                    num::cost(b, Round::Nearest),
+                    num::cost(p.cost, Round::Nearest),
+                    p.rate.map_or("none".to_string(), num::rate)
                 )?;
                 writeln!(out, "  links: {}", p.links.join(", "))?;
             }
             None => writeln!(
                 out,
-                "Budget {b:.2} is too small: the cheapest plan that meets the condition costs {cost:.2}."
+                "Budget {} is too small: the cheapest plan found that meets the condition costs {}.",
+                num::cost(b, Round::Nearest),
+                num::cost(cost, Round::Nearest)
             )?,
         }
     }
@@ -441,8 +501,11 @@ pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Re
         out,
         "without failures: condition {}, certified rate {}",
         if s.baseline_holds { "holds" } else { "FAILS" },
-        s.baseline_rate
-            .map_or("none".to_string(), |r| format!("{r:.4e} 1/s"))
+        match (s.rates_checked, s.baseline_rate) {
+            (false, _) => "skipped (--skip-rate)".to_string(),
+            (true, None) => "none".to_string(),
+            (true, Some(r)) => num::rate(r),
+        }
     )?;
     writeln!(out, "critical links: {}", names_or_none(&s.critical_links))?;
     writeln!(out, "critical units: {}", names_or_none(&s.critical_units))?;
@@ -457,7 +520,11 @@ pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Re
             FailureKind::Link => "link",
             FailureKind::Unit => "unit",
         };
-        let rate = sc.rate.map_or("-".to_string(), |r| format!("{r:.4e}"));
+        let rate = match (s.rates_checked, sc.rate) {
+            (false, _) => "skipped".to_string(),
+            (true, None) => "-".to_string(),
+            (true, Some(r)) => num::sig(r, 4, Round::Down),
+        };
         writeln!(
             out,
             "{kind:<6} {:<28} {:<10} {rate:>14}  {}",
@@ -489,7 +556,11 @@ pub fn retirement(r: &crate::whatif::retire::Retirement, out: &mut impl Write) -
         names_or_none(&r.removed_with_units)
     )?;
     match r.added_cost {
-        Some(c) => writeln!(out, "  cost of the additions: {c:.2}")?,
+        Some(c) => writeln!(
+            out,
+            "  cost of the additions: {}",
+            num::cost(c, Round::Nearest)
+        )?,
         None => writeln!(out, "  no link set restores the condition")?,
     }
     writeln!(out)?;
@@ -502,8 +573,15 @@ pub fn retirement(r: &crate::whatif::retire::Retirement, out: &mut impl Write) -
 /// # Errors
 /// Any I/O error of `out`.
 pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
+    let rate_stage_proven_structure = p
+        .rate
+        .as_ref()
+        .is_some_and(|r| r.met && r.structural_status == PlanStatus::Optimal && !r.timed_out);
     let status = match p.status {
         PlanStatus::Optimal => "optimal",
+        PlanStatus::Feasible if rate_stage_proven_structure => {
+            "feasible — the structural part is proven optimal, the rate stage has no optimality proof"
+        }
         PlanStatus::Feasible => "feasible (not proven optimal)",
         PlanStatus::Infeasible => "INFEASIBLE",
         PlanStatus::TimeLimit => "stopped at the time limit",
@@ -521,11 +599,12 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         writeln!(out)?;
         writeln!(
             out,
-            "The structure can be met (cost {:.2}), but no link set found reaches the target rate {:.4e} 1/s.",
-            r.structural_cost, r.target
+            "The structure can be met (cost {}), but no link set found reaches the target rate {}.",
+            num::cost(r.structural_cost, Round::Nearest),
+            num::rate_nearest(r.target)
         )?;
         match r.best_reachable {
-            Some(b) => writeln!(out, "Best certified rate reachable: {b:.4e} 1/s.")?,
+            Some(b) => writeln!(out, "Best certified rate reachable: {}.", num::rate(b))?,
             None => writeln!(
                 out,
                 "No link set found has a certified rate on this horizon."
@@ -548,21 +627,60 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         return cautions(out);
     };
     let (lower, gap) = (p.lower_bound.unwrap_or(0.0), p.gap.unwrap_or(0.0));
-    writeln!(
-        out,
-        "cost {cost:.2}, proven lower bound {lower:.2}, gap {:.2} %",
-        100.0 * gap
-    )?;
+    let rate_cost = p
+        .rate
+        .as_ref()
+        .filter(|r| r.met && (cost - r.structural_cost).abs() > 1e-9 * cost.abs().max(1.0));
+    match rate_cost {
+        Some(r) => {
+            let proven = if r.structural_status == PlanStatus::Optimal {
+                "proven optimal"
+            } else {
+                "not proven optimal"
+            };
+            writeln!(
+                out,
+                "cost {}: structural plan {} ({proven}) {} {} for the target rate {} (rate stage, no optimality proof)",
+                num::cost(cost, Round::Nearest),
+                num::cost(r.structural_cost, Round::Nearest),
+                if cost >= r.structural_cost { "+" } else { "-" },
+                num::cost((cost - r.structural_cost).abs(), Round::Nearest),
+                num::rate_nearest(r.target)
+            )?;
+            writeln!(
+                out,
+                "proven lower bound {} (no plan meeting the structure costs less), gap {} — the gap is what the rate target may have cost beyond the structure, not a search that gave up",
+                num::cost(lower, Round::Down),
+                num::percent(gap, Round::Up)
+            )?;
+        }
+        None => writeln!(
+            out,
+            "cost {}, proven lower bound {}, gap {}",
+            num::cost(cost, Round::Nearest),
+            num::cost(lower, Round::Down),
+            num::percent(gap, Round::Up)
+        )?,
+    }
     if let Some(r) = &p.robustness {
         let what = match r.survive {
             crate::plan::Survive::Link => "any one link failing",
             crate::plan::Survive::Unit => "the loss of any one unit",
             crate::plan::Survive::Nothing => "nothing",
         };
+        let caveat = match r.plain_status {
+            PlanStatus::TimeLimit => {
+                " (the plain plan was stopped by the time limit: the difference is not exact)"
+            }
+            PlanStatus::Feasible => " (the plain plan is not proven optimal)",
+            _ => "",
+        };
         match (r.plain_cost, r.extra_cost) {
             (Some(plain), Some(extra)) => writeln!(
                 out,
-                "survives {what}; the plain plan costs {plain:.2}, so robustness costs {extra:.2} more"
+                "survives {what}; the plain plan costs {}, so robustness costs {} more{caveat}",
+                num::cost(plain, Round::Nearest),
+                num::cost(extra, Round::Nearest)
             )?,
             _ => writeln!(out, "survives {what}")?,
         }
@@ -581,21 +699,25 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         })
         .collect();
     let width = ends.iter().map(|e| e.chars().count()).max().unwrap_or(4);
-    writeln!(out, "{} link(s):", p.links.len())?;
+    writeln!(out, "{}:", num::count(p.links.len(), "link", "links"))?;
     for (l, e) in p.links.iter().zip(&ends) {
         let note = if l.installed { "  (installed)" } else { "" };
-        writeln!(out, "  {e:<width$}  {:>10.2}{note}", l.cost)?;
+        writeln!(
+            out,
+            "  {e:<width$}  {:>10}{note}",
+            num::cost(l.cost, Round::Nearest)
+        )?;
     }
     writeln!(out)?;
     for (k, sc) in p.source_components.iter().enumerate() {
         writeln!(
             out,
-            "source component {}: {} unit(s), level {:.4e}, excited: {}, drives {} unit(s)",
+            "source component {}: {}, level {}, excited: {}, drives {}",
             k + 1,
-            sc.nodes.len(),
-            sc.excitation,
+            num::count(sc.nodes.len(), "unit", "units"),
+            num::level(sc.excitation),
             yes_no(sc.excited),
-            sc.reaches.len()
+            num::count(sc.reaches.len(), "unit", "units")
         )?;
         writeln!(out, "  units: {}", sc.nodes.join(", "))?;
     }
@@ -631,8 +753,8 @@ fn shortfalls(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         writeln!(out, "  units: {}", s.nodes.join(", "))?;
         writeln!(
             out,
-            "    level {:.4e}, weakest direction {} (window from t = {})",
-            s.excitation,
+            "    level {}, weakest direction {} (window from t = {})",
+            num::level(s.excitation),
             direction(&s.weakest_direction),
             s.weakest_window_start
         )?;
@@ -646,21 +768,30 @@ fn rate_stage(r: &crate::plan::RatePlan, out: &mut impl Write) -> io::Result<()>
     writeln!(out)?;
     writeln!(
         out,
-        "target rate {:.4e} 1/s: {} — structural plan cost {:.2}, {} link(s) added for speed{}",
-        r.target,
+        "target rate {}: {} — structural plan cost {}, {} added for speed{}",
+        num::rate_nearest(r.target),
         if r.met { "met" } else { "NOT met" },
-        r.structural_cost,
-        r.added_links.len(),
+        num::cost(r.structural_cost, Round::Nearest),
+        num::count(r.added_links.len(), "link", "links"),
         if r.added_links.is_empty() {
             String::new()
         } else {
             format!(" ({})", r.added_links.join(", "))
         }
     )?;
+    if !r.removed_links.is_empty() {
+        writeln!(
+            out,
+            "  {} of the structural plan swapped out: {}",
+            num::count(r.removed_links.len(), "link", "links"),
+            r.removed_links.join(", ")
+        )?;
+    }
     if let Some(mu) = r.raised_min_excitation {
         writeln!(
             out,
-            "  (from the structural optimum at a raised required excitation μ_req = {mu:.4e}, then pruned)"
+            "  (from the structural optimum at a raised required excitation μ_req = {}, then pruned)",
+            num::level(mu)
         )?;
     }
     if r.timed_out {
@@ -677,21 +808,26 @@ fn search_figures(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     writeln!(out)?;
     writeln!(
         out,
-        "search: greedy {:.2}, root LP bound {:.2}, {} rounds, {} rows, {} nodes, {} LP solves, {} links fixed by reduced cost, {} excitation queries ({} full scans)",
-        s.greedy_cost,
-        s.root_lp_bound,
-        s.rounds,
-        s.cuts,
-        s.nodes,
-        s.lp_solves,
-        s.fixed_by_reduced_cost,
-        s.excitation_queries,
-        s.excitation_scans
+        "search: greedy {}, root LP bound {}, {}, {}, {}, {}, {} by reduced cost (fixings over all nodes, a link can count more than once), {} ({})",
+        num::cost(s.greedy_cost, Round::Nearest),
+        num::cost(s.root_lp_bound, Round::Down),
+        num::count(s.rounds as usize, "round", "rounds"),
+        num::count(s.cuts as usize, "row", "rows"),
+        num::count(s.nodes as usize, "node", "nodes"),
+        num::count(s.lp_solves as usize, "LP solve", "LP solves"),
+        num::count(s.fixed_by_reduced_cost as usize, "fixing", "fixings"),
+        num::count(
+            s.excitation_queries as usize,
+            "excitation query",
+            "excitation queries"
+        ),
+        num::count(s.excitation_scans as usize, "full scan", "full scans")
     )?;
     if let (Some(b), Some(k)) = (s.component_bound, s.component_size) {
         writeln!(
             out,
-            "bound from components of up to {k} units as columns: {b:.2} ({} connected sets, {} columns, {} taken up; {:.3} s on the second thread)",
+            "bound from components of up to {k} units as columns: {} ({} connected sets, {} columns, {} taken up; {:.3} s on the second thread)",
+            num::cost(b, Round::Down),
             s.component_sets.unwrap_or(0),
             s.component_columns.unwrap_or(0),
             s.component_columns_used.unwrap_or(0),

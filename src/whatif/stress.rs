@@ -44,6 +44,9 @@ pub struct Stress {
     pub baseline_holds: bool,
     /// Certified rate without failures (null when not certified or skipped).
     pub baseline_rate: Option<f64>,
+    /// Whether rates were computed (false with `--skip-rate`: every rate is
+    /// then null because it was skipped, not because none was certified).
+    pub rates_checked: bool,
     /// Scenarios, worst first: the condition failing first (more units left
     /// unexcited first), then by certified rate, lowest first.
     pub scenarios: Vec<Scenario>,
@@ -164,6 +167,7 @@ pub fn stress(
         network: problem.settings.name.clone(),
         baseline_holds: base.condition_holds,
         baseline_rate,
+        rates_checked: rates,
         critical_links: critical(FailureKind::Link),
         critical_units: critical(FailureKind::Unit),
         scenarios,

@@ -232,6 +232,9 @@ struct Tally {
     /// Exit 2 whose message names a file but no line (a whole-file
     /// complaint such as an empty log, or a flag).
     without_line: usize,
+    /// The first few of those messages (first line), to read after a
+    /// campaign.
+    without_line_samples: Vec<String>,
     failures: Vec<String>,
 }
 
@@ -308,6 +311,11 @@ fn judge(tally: &mut Tally, run: &CappedRun, what: &str, outputs_ok: bool) {
             .is_some_and(|l| !l.is_empty() && l.bytes().all(|b| b.is_ascii_digit()));
         if !has_line {
             tally.without_line += 1;
+            let first = message.lines().next().unwrap_or("").to_string();
+            if tally.without_line_samples.len() < 12 && !tally.without_line_samples.contains(&first)
+            {
+                tally.without_line_samples.push(first);
+            }
         }
     }
 }
@@ -356,6 +364,9 @@ fn mutated_demo_inputs_never_crash_hang_or_leave_partial_outputs() {
         tally.without_line,
         tally.failures.len()
     );
+    for m in &tally.without_line_samples {
+        println!("fuzz: exit 2 without a line: {m}");
+    }
     assert!(tally.crashes.is_empty(), "crashes: {:#?}", tally.crashes);
     assert!(tally.hangs.is_empty(), "hangs: {:#?}", tally.hangs);
     assert!(
