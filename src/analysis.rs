@@ -44,10 +44,66 @@ pub struct ExcitationSummary {
     pub windows: usize,
     /// Common horizon `[h0, h1]`.
     pub horizon: [f64; 2],
+    /// The logs that shorten the common horizon: the unit(s) whose log
+    /// starts last or ends first, when some other log reaches further.
+    pub horizon_cuts: Vec<HorizonCut>,
     /// Per unit, in file order.
     pub units: Vec<UnitExcitation>,
     /// All units pooled.
     pub pooled: UnitExcitation,
+}
+
+/// A log that sets one end of the common horizon and shortens it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct HorizonCut {
+    /// The unit whose log sets that end.
+    pub node: String,
+    /// `start` (its log starts last) or `end` (its log ends first).
+    pub side: &'static str,
+    /// Where its log starts or ends (s).
+    pub at: f64,
+    /// Seconds of recording the other logs have beyond it at that end (up
+    /// to the log that reaches furthest).
+    pub cut: f64,
+}
+
+/// The logs that set the ends of the common horizon, when another log
+/// reaches further by at least 1 % of the span of all logs; file order,
+/// starts first.
+pub fn horizon_cuts(problem: &Problem) -> Vec<HorizonCut> {
+    let spans: Vec<(f64, f64)> = problem.nodes.iter().map(|n| n.log.span()).collect();
+    let (h0, h1) = (problem.domain.h0, problem.domain.h1);
+    let first = spans.iter().map(|s| s.0).fold(f64::INFINITY, f64::min);
+    let last = spans.iter().map(|s| s.1).fold(f64::NEG_INFINITY, f64::max);
+    // Cuts of less than 1 % of the span of all logs (a sample or two of
+    // offset) are not worth a line.
+    let floor = 0.01 * (last - first);
+    let mut cuts = Vec::new();
+    if h0 - first >= floor && h0 > first {
+        for (node, span) in problem.nodes.iter().zip(&spans) {
+            if span.0 == h0 {
+                cuts.push(HorizonCut {
+                    node: node.id.clone(),
+                    side: "start",
+                    at: h0,
+                    cut: h0 - first,
+                });
+            }
+        }
+    }
+    if last - h1 >= floor && h1 < last {
+        for (node, span) in problem.nodes.iter().zip(&spans) {
+            if span.1 == h1 {
+                cuts.push(HorizonCut {
+                    node: node.id.clone(),
+                    side: "end",
+                    at: h1,
+                    cut: last - h1,
+                });
+            }
+        }
+    }
+    cuts
 }
 
 /// One source component in a check.
@@ -226,6 +282,7 @@ pub fn excitation_summary(problem: &Problem, table: &ExcitationTable) -> Excitat
         window: problem.settings.window,
         windows: table.windows().len(),
         horizon: [problem.domain.h0, problem.domain.h1],
+        horizon_cuts: horizon_cuts(problem),
         units,
         pooled: unit_excitation(problem, table, "all units".to_string(), &all),
     }

@@ -41,3 +41,31 @@ fn positive_zero(v: &mut serde_json::Value) {
         _ => {}
     }
 }
+
+#[cfg(test)]
+mod tests {
+    /// A negative zero (round-off in a direction) is written as 0.0; other
+    /// numbers keep full precision and keys keep their order.
+    #[test]
+    fn negative_zero_is_written_as_zero() {
+        #[derive(serde::Serialize)]
+        struct Sample {
+            zeta: Vec<f64>,
+            alpha: f64,
+        }
+        let mut out = Vec::new();
+        super::write(
+            &Sample {
+                zeta: vec![-0.0, 0.1 + 0.2, -1e-300],
+                alpha: -0.0,
+            },
+            &mut out,
+        )
+        .unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(!text.contains("-0.0"), "{text}");
+        assert!(text.contains("0.30000000000000004"), "{text}");
+        assert!(text.contains("-1e-300"), "{text}");
+        assert!(text.find("zeta").unwrap() < text.find("alpha").unwrap());
+    }
+}

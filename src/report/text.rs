@@ -68,6 +68,30 @@ pub fn excitation(s: &ExcitationSummary, out: &mut impl Write) -> io::Result<()>
         "Excitation of {} (p = {}, window {} s, horizon {}–{} s)",
         s.network, s.parameters, s.window, s.horizon[0], s.horizon[1]
     )?;
+    for side in ["start", "end"] {
+        let cuts: Vec<&crate::analysis::HorizonCut> =
+            s.horizon_cuts.iter().filter(|c| c.side == side).collect();
+        let Some(c) = cuts.first() else { continue };
+        let names: Vec<&str> = cuts.iter().map(|c| c.node.as_str()).collect();
+        let whose = match (cuts.len(), side) {
+            (1, "start") => "its log starts",
+            (1, _) => "its log ends",
+            (_, "start") => "their logs start",
+            _ => "their logs end",
+        };
+        writeln!(
+            out,
+            "the horizon's {side} is set by {}: {whose} at {} s, {} s {} (the other units' data there is not used)",
+            names.join(", "),
+            c.at,
+            num::sig(c.cut, 4, Round::Nearest),
+            if side == "start" {
+                "after the earliest log starts"
+            } else {
+                "before the latest log ends"
+            }
+        )?;
+    }
     threshold(out, s.min_excitation, s.min_excitation_given, s.windows)?;
     writeln!(out)?;
     let width = s

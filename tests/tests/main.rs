@@ -11,6 +11,7 @@ mod hostile;
 mod pictures;
 mod planning;
 mod props;
+mod reading;
 mod robust;
 mod trust;
 mod whatif;
