@@ -364,6 +364,11 @@ pub fn write_csv(
     traj: &Trajectory,
     out: &mut impl std::io::Write,
 ) -> std::io::Result<()> {
+    // The cautions as `#` lines first (spreadsheets show them as text
+    // rows; exmesh's own CSV reader skips `#` lines).
+    for c in crate::report::CAUTIONS {
+        writeln!(out, "# Caution: {c}")?;
+    }
     let mut header = vec!["t".to_string()];
     header.extend(problem.nodes.iter().map(|v| format!("err_{}", v.id)));
     header.push("total".into());

@@ -1,8 +1,14 @@
 //! The chosen digraph in Graphviz DOT (an open format): one node per unit,
 //! one edge per chosen link (`dir=both` for two-way links), costs and
 //! installed flags as attributes, every source component as a cluster.
+//! Positions, when the problem gives them, are pinned `pos` attributes in
+//! inches, the unit neato and fdp read by default (Graphviz attribute
+//! reference, "pos", graphviz.org/docs/attrs/pos); the file says the scale
+//! in a comment. The cautions head the file as comments.
 
+use super::CAUTIONS;
 use super::map::Scene;
+use super::number::{self as num, Round};
 use std::fmt::Write as _;
 
 fn quote(s: &str) -> String {
@@ -23,15 +29,37 @@ fn quote(s: &str) -> String {
 pub fn dot(scene: &Scene) -> String {
     let mut out = String::new();
     let chosen: Vec<_> = scene.links.iter().filter(|l| l.chosen).collect();
+    for c in CAUTIONS {
+        let _ = writeln!(out, "// Caution: {c}");
+    }
+    // Positions in km → inches so the widest extent is 10 inches.
+    let span = if scene.geographic {
+        let (xs, ys): (Vec<f64>, Vec<f64>) = scene.positions.iter().copied().unzip();
+        let extent = |v: &[f64]| {
+            v.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+                - v.iter().copied().fold(f64::INFINITY, f64::min)
+        };
+        extent(&xs).max(extent(&ys))
+    } else {
+        0.0
+    };
+    let km_per_inch = if span > 0.0 { span / 10.0 } else { 1.0 };
+    if scene.geographic {
+        let _ = writeln!(
+            out,
+            "// pos: the units' positions in inches, 1 inch = {} km (the widest extent drawn 10 inches wide); `neato -Tsvg` keeps them (pinned with !)",
+            num::sig(km_per_inch, 6, Round::Nearest)
+        );
+    }
     let _ = writeln!(out, "digraph {} {{", quote(&scene.network));
     let _ = writeln!(
         out,
         "  graph [label={}, labelloc=t];",
         quote(&format!(
-            "{}: {} chosen link(s), cost {:.2}",
+            "{}: {} chosen, cost {}",
             scene.network,
-            chosen.len(),
-            scene.cost
+            num::count(chosen.len(), "link", "links"),
+            num::cost(scene.cost, Round::Nearest)
         ))
     );
     let _ = writeln!(out, "  node [shape=circle, fontname=\"sans-serif\"];");
@@ -47,11 +75,11 @@ pub fn dot(scene: &Scene) -> String {
         );
         let _ = writeln!(
             out,
-            "    label={}; style={}; excitation=\"{:.6e}\"; excited={};",
+            "    label={}; style={}; excitation=\"{:e}\"; excited={};",
             quote(&format!(
-                "source component S{}: level {:.3e}{}",
+                "source component S{}: level {}{}",
                 k + 1,
-                c.level,
+                num::level_vs(c.level, scene.min_excitation),
                 if c.excited { "" } else { ", NOT excited" }
             )),
             if c.excited { "solid" } else { "dashed" },
@@ -77,7 +105,7 @@ pub fn dot(scene: &Scene) -> String {
             scene.excited_alone[k],
             in_component[k].map_or("\"\"".to_string(), |c| quote(&format!("S{}", c + 1))),
             if scene.geographic {
-                format!(", pos=\"{x:.3},{y:.3}!\"")
+                format!(", pos=\"{:.4},{:.4}!\"", x / km_per_inch, y / km_per_inch)
             } else {
                 String::new()
             }
@@ -90,7 +118,7 @@ pub fn dot(scene: &Scene) -> String {
             quote(&scene.units[l.a]),
             quote(&scene.units[l.b]),
             quote(&l.id),
-            quote(&format!("{:.2}", l.cost)),
+            quote(&num::cost(l.cost, Round::Nearest)),
             l.cost,
             l.two_way,
             l.installed,

@@ -6,6 +6,7 @@
 //! excited alone drawn hollow, a legend and a scale bar in km. Everything
 //! is black, white and greys, so it prints in greyscale.
 
+use super::number::{self as num_fmt, Round};
 use super::svg::{Svg, num, s};
 use crate::analysis;
 use crate::excitation::ExcitationTable;
@@ -31,6 +32,8 @@ pub struct Scene {
     pub components: Vec<SceneComponent>,
     /// Cost of the chosen links.
     pub cost: f64,
+    /// μ_req in use.
+    pub min_excitation: f64,
 }
 
 /// A link in a scene.
@@ -132,6 +135,7 @@ impl Scene {
             links,
             components,
             cost: problem.cost(set),
+            min_excitation: table.min_excitation(),
         }
     }
 }
@@ -152,15 +156,78 @@ fn nice(target: f64) -> f64 {
     f * e
 }
 
+/// Side of the plot area for up to 40 units (px); larger networks get
+/// more room (√n growth, so the density of labels stays about the same).
 const PLOT: f64 = 640.0;
 const MARGIN: f64 = 50.0;
-const LEGEND: f64 = 250.0;
 const UNIT_R: f64 = 6.0;
+/// Font size of unit labels and component tags (px).
+const LABEL: f64 = 11.0;
+/// Width of one character as a share of the font size: a safe estimate
+/// for sans-serif text (digits and most letters are narrower), used for
+/// every text box placed here.
+pub const CHAR_WIDTH: f64 = 0.6;
+
+/// An axis-aligned box (left, top, right, bottom) in px.
+type Rect = (f64, f64, f64, f64);
+
+/// The box of `text` written at `(x, baseline)` with font `size`.
+pub fn text_box(x: f64, baseline: f64, size: f64, text: &str) -> Rect {
+    (
+        x,
+        baseline - 0.8 * size,
+        x + CHAR_WIDTH * size * text.chars().count() as f64,
+        baseline + 0.25 * size,
+    )
+}
+
+fn overlaps(a: &Rect, b: &Rect) -> bool {
+    a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
+}
+
+/// Places labels without overlaps: each label tries positions around its
+/// anchor point and takes the first whose box meets no box placed so far
+/// (labels and unit circles).
+struct Placer {
+    taken: Vec<Rect>,
+    /// Boxes may not reach left of this or above `top` (the canvas edge
+    /// and the title).
+    left: f64,
+    top: f64,
+}
+
+impl Placer {
+    /// The first free baseline position for `text` around `p` (right,
+    /// left, above, below, then diagonals further out), or `None`.
+    fn place(&mut self, p: (f64, f64), size: f64, text: &str) -> Option<(f64, f64)> {
+        let w = CHAR_WIDTH * size * text.chars().count() as f64;
+        let r = UNIT_R + 2.0;
+        let candidates = [
+            (p.0 + r, p.1 - r + 0.3 * size),
+            (p.0 + r, p.1 + r + 0.6 * size),
+            (p.0 - r - w, p.1 - r + 0.3 * size),
+            (p.0 - r - w, p.1 + r + 0.6 * size),
+            (p.0 - w / 2.0, p.1 - r - 0.3 * size),
+            (p.0 - w / 2.0, p.1 + r + 0.9 * size),
+            (p.0 + r, p.1 + 0.35 * size),
+            (p.0 - r - w, p.1 + 0.35 * size),
+            (p.0 + r + 8.0, p.1 - r - 0.9 * size),
+            (p.0 - r - w - 8.0, p.1 + r + 1.5 * size),
+        ];
+        let found = candidates.iter().copied().find(|&(x, y)| {
+            let b = text_box(x, y, size, text);
+            b.0 >= self.left && b.1 >= self.top && !self.taken.iter().any(|o| overlaps(&b, o))
+        })?;
+        self.taken.push(text_box(found.0, found.1, size, text));
+        Some(found)
+    }
+}
 
 /// Renders the map.
-// Long function: One drawing, layer by layer (halos, labels, links, units, scale), all in
-// the same coordinate frame and label boxes.
+// Long function: One drawing, layer by layer (halos, links, units, labels, legend, scale), all
+// in the same coordinate frame and label boxes.
 pub fn svg(scene: &Scene) -> String {
+    let n = scene.units.len();
     let (mut x0, mut x1, mut y0, mut y1) = (
         f64::INFINITY,
         f64::NEG_INFINITY,
@@ -176,18 +243,148 @@ pub fn svg(scene: &Scene) -> String {
     if !x0.is_finite() {
         (x0, x1, y0, y1) = (0.0, 1.0, 0.0, 1.0);
     }
+    let side = (PLOT * (n as f64 / 40.0).sqrt().max(1.0)).min(2400.0);
     let span = (x1 - x0).max(y1 - y0).max(1e-9);
-    let scale = PLOT / span;
+    // A long, thin network keeps about the area of a square one: its long
+    // side grows with the square root of the aspect ratio (at most 3000 px),
+    // so the units do not crowd into a strip.
+    let short = (x1 - x0).min(y1 - y0).max(span * 1e-6);
+    let long_px = (side * (span / short).sqrt()).min(3000.0).max(side);
+    let scale = long_px / span;
     let top = MARGIN + 30.0;
-    let width = MARGIN * 2.0 + (x1 - x0) * scale + LEGEND;
-    let height = (top + (y1 - y0) * scale + MARGIN + 40.0).max(top + 330.0);
     let at = |k: usize| {
         let (x, y) = scene.positions[k];
         (MARGIN + (x - x0) * scale, top + (y1 - y) * scale)
     };
+    let (plot_w, plot_h) = ((x1 - x0) * scale, (y1 - y0) * scale);
+    let points: Vec<(f64, f64)> = (0..n).map(at).collect();
+
+    // Halo radius: at most 17 px, and below half the distance between
+    // units of different source components, so halos of neighbours do not
+    // merge (at least 9 px, so a halo stays visible around a unit).
+    let mut component_of = vec![usize::MAX; n];
+    for (k, c) in scene.components.iter().enumerate() {
+        for &u in &c.units {
+            component_of[u] = k;
+        }
+    }
+    let mut halo: f64 = 17.0;
+    if n <= 3000 {
+        for a in 0..n {
+            for b in a + 1..n {
+                if component_of[a] != component_of[b] {
+                    let d = ((points[a].0 - points[b].0).powi(2)
+                        + (points[a].1 - points[b].1).powi(2))
+                    .sqrt();
+                    halo = halo.min(0.45 * d);
+                }
+            }
+        }
+    }
+    let halo = halo.max(9.0);
+
+    // Labels: unit circles are obstacles, then every unit's label, then
+    // a short tag per source component (S1, S2…) beside one of its units.
+    let mut placer = Placer {
+        left: 2.0,
+        top: 40.0,
+        taken: points
+            .iter()
+            .map(|p| {
+                (
+                    p.0 - UNIT_R - 1.0,
+                    p.1 - UNIT_R - 1.0,
+                    p.0 + UNIT_R + 1.0,
+                    p.1 + UNIT_R + 1.0,
+                )
+            })
+            .collect(),
+    };
+    let unit_labels: Vec<Option<(f64, f64)>> = (0..n)
+        .map(|k| placer.place(points[k], LABEL, &scene.units[k]))
+        .collect();
+    let tags: Vec<Option<(f64, f64)>> = scene
+        .components
+        .iter()
+        .enumerate()
+        .map(|(k, c)| {
+            let tag = format!("S{}", k + 1);
+            // The topmost unit first, then the others.
+            let mut order = c.units.clone();
+            order.sort_by(|&a, &b| points[a].1.total_cmp(&points[b].1).then(a.cmp(&b)));
+            order
+                .iter()
+                .find_map(|&u| placer.place(points[u], LABEL, &tag))
+        })
+        .collect();
+    let left_out = unit_labels.iter().filter(|l| l.is_none()).count()
+        + tags.iter().filter(|t| t.is_none()).count();
+    let drawn_right = placer
+        .taken
+        .iter()
+        .map(|b| b.2)
+        .fold(MARGIN + plot_w, f64::max);
+    let drawn_bottom = placer
+        .taken
+        .iter()
+        .map(|b| b.3)
+        .fold(top + plot_h, f64::max);
+
+    // Legend and the list of source components: beside the drawing, or
+    // below it when the network is long and thin.
+    let rows = legend_rows(scene, left_out);
+    let below = plot_w > 2.0 * plot_h.max(1.0);
+    // Columns of at most this height (px), so a long list of components
+    // does not run far below the drawing.
+    let column_h = if below {
+        640.0
+    } else {
+        (plot_h + 40.0).max(640.0)
+    };
+    let columns = split_columns(rows, column_h);
+    let widths: Vec<f64> = columns
+        .iter()
+        .map(|c| {
+            c.iter()
+                .map(|r| r.indent + CHAR_WIDTH * r.size * r.text.chars().count() as f64)
+                .fold(0.0, f64::max)
+                + 20.0
+        })
+        .collect();
+    let legend_w: f64 = widths.iter().sum();
+    let legend_h = columns
+        .iter()
+        .map(|c| c.iter().map(|r| r.height).sum::<f64>())
+        .fold(0.0, f64::max)
+        + 20.0;
+    let (lx, ly) = if below {
+        (MARGIN, drawn_bottom + 60.0)
+    } else {
+        (drawn_right + 30.0, top)
+    };
+    let scale_y = if below {
+        drawn_bottom + 30.0
+    } else {
+        drawn_bottom + 36.0
+    };
+    let title = format!(
+        "{}: {} chosen, cost {}",
+        scene.network,
+        num_fmt::count(
+            scene.links.iter().filter(|l| l.chosen).count(),
+            "link",
+            "links"
+        ),
+        num_fmt::cost(scene.cost, Round::Nearest)
+    );
+    let title_w = CHAR_WIDTH * 17.0 * title.chars().count() as f64;
+    let width = (lx + legend_w + 20.0)
+        .max(MARGIN + title_w + 20.0)
+        .max(drawn_right + 20.0);
+    let height = (ly + legend_h + 20.0).max(scale_y + 20.0);
     let mut doc = Svg::new(width, height);
     doc.raw(
-        "<defs><marker id=\"arrow\" viewBox=\"0 0 10 10\" refX=\"10\" refY=\"5\" markerWidth=\"7\" markerHeight=\"7\" orient=\"auto-start-reverse\"><path d=\"M 0 0 L 10 5 L 0 10 z\" fill=\"#000\"/></marker></defs>",
+        "<defs><marker id=\"arrow\" viewBox=\"0 0 10 10\" refX=\"10\" refY=\"5\" markerUnits=\"userSpaceOnUse\" markerWidth=\"11\" markerHeight=\"11\" orient=\"auto-start-reverse\"><path d=\"M 0 0 L 10 5 L 0 10 z\" fill=\"#000\"/></marker></defs>",
     );
     doc.element(
         "rect",
@@ -199,20 +396,16 @@ pub fn svg(scene: &Scene) -> String {
             s("fill", "#ffffff"),
         ],
     );
-    let chosen = scene.links.iter().filter(|l| l.chosen).count();
-    doc.text(
-        (MARGIN, 28.0),
-        17.0,
-        &format!(
-            "{}: {} chosen link(s), cost {:.2}",
-            scene.network, chosen, scene.cost
-        ),
-        &[s("font-weight", "bold")],
-    );
+    doc.text((MARGIN, 28.0), 17.0, &title, &[s("font-weight", "bold")]);
     // Source components: a halo around their units and the chosen links
     // inside them (so units outside are never covered), an outline pass
-    // first and a fill pass on top.
-    for (pass, width) in [(0, 38.0), (1, 34.0)] {
+    // first and a fill pass on top; not excited ones dashed.
+    for pass in [0, 1] {
+        let w = if pass == 0 {
+            2.0 * halo + 4.0
+        } else {
+            2.0 * halo
+        };
         for c in &scene.components {
             let colour = match (pass, c.excited) {
                 (0, true) => "#666666",
@@ -227,95 +420,58 @@ pub fn svg(scene: &Scene) -> String {
                 .filter(|l| l.chosen && inside(l.a) && inside(l.b))
             {
                 doc.line(
-                    at(l.a),
-                    at(l.b),
+                    points[l.a],
+                    points[l.b],
                     &[
                         s("stroke", colour),
-                        s("stroke-width", num(width)),
+                        s("stroke-width", num(w)),
                         s("stroke-linecap", "round"),
                     ],
                 );
             }
             for &u in &c.units {
-                doc.circle(at(u), width / 2.0, &[s("fill", colour)]);
+                doc.circle(points[u], w / 2.0, &[s("fill", colour)]);
             }
         }
     }
-    // Component labels: above the topmost unit, else below the lowest, else
-    // beside; the first place that does not overlap a label already placed
-    // or a unit's own label (approximate text boxes).
-    let mut boxes: Vec<(f64, f64, f64, f64)> = (0..scene.units.len())
-        .map(|k| {
-            let (x, y) = at(k);
-            let w = 6.5 * scene.units[k].chars().count() as f64;
-            (x + 8.0, y - 19.0, x + 8.0 + w, y - 6.0)
-        })
-        .collect();
-    let overlaps = |b: &(f64, f64, f64, f64), boxes: &[(f64, f64, f64, f64)]| {
-        boxes
-            .iter()
-            .any(|o| b.0 < o.2 && o.0 < b.2 && b.1 < o.3 && o.1 < b.3)
-    };
-    for (k, c) in scene.components.iter().enumerate() {
-        let label = format!(
-            "S{}: level {:.3e}{}",
-            k + 1,
-            c.level,
-            if c.excited { "" } else { " — NOT excited" }
-        );
-        let width = 6.3 * label.chars().count() as f64;
-        let pts: Vec<(f64, f64)> = c.units.iter().map(|&u| at(u)).collect();
-        let top = pts
-            .iter()
-            .fold((0.0, f64::INFINITY), |m, p| if p.1 < m.1 { *p } else { m });
-        let bottom = pts.iter().fold(
-            (0.0, f64::NEG_INFINITY),
-            |m, p| if p.1 > m.1 { *p } else { m },
-        );
-        let left = pts
-            .iter()
-            .fold((f64::INFINITY, 0.0), |m, p| if p.0 < m.0 { *p } else { m });
-        let right = pts.iter().fold(
-            (f64::NEG_INFINITY, 0.0),
-            |m, p| if p.0 > m.0 { *p } else { m },
-        );
-        let candidates = [
-            (top.0 - 24.0, top.1 - 24.0),
-            (bottom.0 - 24.0, bottom.1 + 34.0),
-            (right.0 + 24.0, right.1 + 4.0),
-            (left.0 - 24.0 - width, left.1 + 4.0),
-            (top.0 - 24.0, top.1 - 38.0),
-        ];
-        let boxed = |(x, y): (f64, f64)| (x, y - 11.0, x + width, y + 3.0);
-        let place = candidates
-            .iter()
-            .copied()
-            .find(|&p| !overlaps(&boxed(p), &boxes))
-            .unwrap_or(candidates[0]);
-        boxes.push(boxed(place));
-        let mut style = vec![s("fill", "#222222")];
-        if !c.excited {
-            style.push(s("font-weight", "bold"));
-        }
-        doc.text(place, 11.0, &label, &style);
-    }
-    // Candidates first (faint), then chosen links on top.
+    // Candidates first (faint), then chosen links on top; parallel chosen
+    // links between the same two units are drawn side by side.
     for l in scene.links.iter().filter(|l| !l.chosen) {
         doc.line(
-            at(l.a),
-            at(l.b),
+            points[l.a],
+            points[l.b],
             &[s("stroke", "#c8c8c8"), s("stroke-width", "1")],
         );
     }
-    for l in scene.links.iter().filter(|l| l.chosen) {
-        let (a, b) = (at(l.a), at(l.b));
-        let len = ((b.0 - a.0).powi(2) + (b.1 - a.1).powi(2)).sqrt().max(1e-9);
-        let shrink =
-            |p: (f64, f64), d: f64| (p.0 + (b.0 - a.0) / len * d, p.1 + (b.1 - a.1) / len * d);
+    let chosen: Vec<&SceneLink> = scene.links.iter().filter(|l| l.chosen).collect();
+    let pair = |l: &SceneLink| (l.a.min(l.b), l.a.max(l.b));
+    for (k, l) in chosen.iter().enumerate() {
+        let same: Vec<usize> = (0..chosen.len())
+            .filter(|&j| pair(chosen[j]) == pair(l))
+            .collect();
+        let slot = same.iter().position(|&j| j == k).unwrap_or(0) as f64;
+        let offset = 6.0 * (slot - (same.len() as f64 - 1.0) / 2.0);
+        // The normal of the pair's own direction (lower index to higher),
+        // so both links of a pair agree on the side.
+        let (lo, hi) = pair(l);
+        let (pa, pb) = (points[lo], points[hi]);
+        let len = ((pb.0 - pa.0).powi(2) + (pb.1 - pa.1).powi(2))
+            .sqrt()
+            .max(1e-9);
+        let normal = (-(pb.1 - pa.1) / len * offset, (pb.0 - pa.0) / len * offset);
+        let (a, b) = (points[l.a], points[l.b]);
+        let (a, b) = (
+            (a.0 + normal.0, a.1 + normal.1),
+            (b.0 + normal.0, b.1 + normal.1),
+        );
         let (a2, b2) = if l.two_way {
             (a, b)
         } else {
-            (a, shrink(b, -(UNIT_R + 2.0)))
+            let d = UNIT_R + 2.0;
+            (
+                a,
+                (b.0 - (b.0 - a.0) / len * d, b.1 - (b.1 - a.1) / len * d),
+            )
         };
         let mut style = vec![
             s("stroke", "#000000"),
@@ -329,10 +485,9 @@ pub fn svg(scene: &Scene) -> String {
             doc.line(a2, b2, &[s("stroke", "#ffffff"), s("stroke-width", "1.6")]);
         }
     }
-    for (k, id) in scene.units.iter().enumerate() {
-        let p = at(k);
+    for (k, p) in points.iter().enumerate() {
         doc.circle(
-            p,
+            *p,
             UNIT_R,
             &[
                 s(
@@ -347,145 +502,270 @@ pub fn svg(scene: &Scene) -> String {
                 s("stroke-width", "1.5"),
             ],
         );
-        doc.text((p.0 + 8.0, p.1 - 8.0), 11.0, id, &[]);
+    }
+    for (k, at) in unit_labels.iter().enumerate() {
+        if let Some(at) = at {
+            doc.text(*at, LABEL, &scene.units[k], &[]);
+        }
+    }
+    for (k, at) in tags.iter().enumerate() {
+        if let Some(at) = at {
+            let mut style = vec![s("font-weight", "bold")];
+            if !scene.components[k].excited {
+                style.push(s("text-decoration", "underline"));
+            }
+            doc.text(*at, LABEL, &format!("S{}", k + 1), &style);
+        }
     }
     // Scale bar (geographic) or a note (schematic).
-    let base_y = height - 22.0;
     if scene.geographic {
         let km = nice(span / 5.0);
         let px = km * scale;
         doc.line(
-            (MARGIN, base_y),
-            (MARGIN + px, base_y),
+            (MARGIN, scale_y),
+            (MARGIN + px, scale_y),
             &[s("stroke", "#000000"), s("stroke-width", "2")],
         );
         for x in [MARGIN, MARGIN + px] {
             doc.line(
-                (x, base_y - 5.0),
-                (x, base_y + 5.0),
+                (x, scale_y - 5.0),
+                (x, scale_y + 5.0),
                 &[s("stroke", "#000000"), s("stroke-width", "1.5")],
             );
         }
         doc.text(
-            (MARGIN + px + 8.0, base_y + 4.0),
+            (MARGIN + px + 8.0, scale_y + 4.0),
             12.0,
-            &format!("{km} km"),
+            &format!("{} km", num_fmt::sig(km, 3, Round::Nearest)),
             &[],
         );
     } else {
         doc.text(
-            (MARGIN, base_y + 4.0),
+            (MARGIN, scale_y + 4.0),
             12.0,
             "schematic layout: the problem gives no positions",
             &[s("fill", "#333333")],
         );
     }
-    legend(&mut doc, width - LEGEND + 10.0, top);
-    doc.finish(&format!("{}: link map", scene.network))
-}
-
-fn legend(doc: &mut Svg, x: f64, y: f64) {
     doc.element(
         "rect",
         &[
-            s("x", num(x)),
-            s("y", num(y)),
-            s("width", num(LEGEND - 30.0)),
-            s("height", "300"),
+            s("x", num(lx)),
+            s("y", num(ly)),
+            s("width", num(legend_w)),
+            s("height", num(legend_h)),
             s("fill", "#ffffff"),
             s("stroke", "#000000"),
         ],
     );
-    doc.text(
-        (x + 10.0, y + 20.0),
-        13.0,
-        "Legend",
-        &[s("font-weight", "bold")],
-    );
-    let row = |k: usize| y + 45.0 + 30.0 * k as f64;
-    let (a, b) = (x + 10.0, x + 50.0);
-    doc.line(
-        (a, row(0)),
-        (b, row(0)),
-        &[s("stroke", "#c8c8c8"), s("stroke-width", "1")],
-    );
-    doc.text((b + 10.0, row(0) + 4.0), 11.0, "candidate link", &[]);
-    doc.line(
-        (a, row(1)),
-        (b, row(1)),
-        &[s("stroke", "#000000"), s("stroke-width", "2.5")],
-    );
-    doc.text((b + 10.0, row(1) + 4.0), 11.0, "new link, two-way", &[]);
-    doc.line(
-        (a, row(2)),
-        (b, row(2)),
-        &[
-            s("stroke", "#000000"),
-            s("stroke-width", "2.5"),
-            s("marker-end", "url(#arrow)"),
-        ],
-    );
-    doc.text(
-        (b + 10.0, row(2) + 4.0),
-        11.0,
-        "new link, one-way (talks →)",
-        &[],
-    );
-    doc.line(
-        (a, row(3)),
-        (b, row(3)),
-        &[s("stroke", "#000000"), s("stroke-width", "5")],
-    );
-    doc.line(
-        (a, row(3)),
-        (b, row(3)),
-        &[s("stroke", "#ffffff"), s("stroke-width", "1.6")],
-    );
-    doc.text((b + 10.0, row(3) + 4.0), 11.0, "installed link", &[]);
-    doc.circle(
-        (a + 20.0, row(4)),
-        UNIT_R,
-        &[s("fill", "#000000"), s("stroke", "#000000")],
-    );
-    doc.text((b + 10.0, row(4) + 4.0), 11.0, "unit excited alone", &[]);
-    doc.circle(
-        (a + 20.0, row(5)),
-        UNIT_R,
-        &[
-            s("fill", "#ffffff"),
-            s("stroke", "#000000"),
-            s("stroke-width", "1.5"),
-        ],
-    );
-    doc.text(
-        (b + 10.0, row(5) + 4.0),
-        11.0,
-        "unit not excited alone",
-        &[],
-    );
-    for (k, fill, stroke, label) in [
-        (6, "#e6e6e6", "#666666", "source component, excited"),
-        (7, "#ffffff", "#000000", "source component, NOT excited"),
-    ] {
-        doc.element(
-            "rect",
-            &[
-                s("x", num(a)),
-                s("y", num(row(k) - 9.0)),
-                s("width", "40"),
-                s("height", "18"),
-                s("rx", "9"),
-                s("fill", fill),
-                s("stroke", stroke),
-                s("stroke-width", "2"),
-            ],
-        );
-        doc.text((b + 10.0, row(k) + 4.0), 11.0, label, &[]);
+    let mut x = lx;
+    for (c, w) in columns.iter().zip(&widths) {
+        legend(&mut doc, c, x, ly);
+        x += w;
     }
-    doc.text(
-        (a, row(8) + 4.0),
-        10.0,
-        "S#: level = joint excitation μ",
-        &[s("fill", "#333333")],
-    );
+    doc.finish(&format!("{}: link map", scene.network))
+}
+
+/// One row of the legend panel.
+struct Row {
+    /// What the row shows beside its text.
+    sample: Sample,
+    text: String,
+    size: f64,
+    /// Left edge of the text from the panel's left edge.
+    indent: f64,
+    height: f64,
+    bold: bool,
+}
+
+#[derive(Clone, Copy)]
+enum Sample {
+    None,
+    Candidate,
+    TwoWay,
+    OneWay,
+    Installed,
+    UnitExcited,
+    UnitNot,
+    HaloExcited,
+    HaloNot,
+}
+
+fn legend_rows(scene: &Scene, left_out: usize) -> Vec<Row> {
+    let item = |sample, text: &str| Row {
+        sample,
+        text: text.to_string(),
+        size: 11.0,
+        indent: 70.0,
+        height: 26.0,
+        bold: false,
+    };
+    let note = |text: String, bold: bool| Row {
+        sample: Sample::None,
+        text,
+        size: 10.0,
+        indent: 10.0,
+        height: 15.0,
+        bold,
+    };
+    let mut rows = vec![
+        Row {
+            sample: Sample::None,
+            text: "Legend".into(),
+            size: 13.0,
+            indent: 10.0,
+            height: 28.0,
+            bold: true,
+        },
+        item(Sample::Candidate, "candidate link"),
+        item(Sample::TwoWay, "new link, two-way"),
+        item(Sample::OneWay, "new link, one-way (talks →)"),
+        item(Sample::Installed, "installed link"),
+        item(Sample::UnitExcited, "unit excited alone"),
+        item(Sample::UnitNot, "unit not excited alone"),
+        item(Sample::HaloExcited, "source component, excited"),
+        item(Sample::HaloNot, "source component, NOT excited"),
+        note(String::new(), false),
+        note(
+            "Source components (level = joint excitation μ)".into(),
+            true,
+        ),
+    ];
+    for (k, c) in scene.components.iter().enumerate() {
+        let mut names: Vec<&str> = c.units.iter().map(|&u| scene.units[u].as_str()).collect();
+        let more = names.len().saturating_sub(3);
+        names.truncate(3);
+        let mut text = format!(
+            "S{}: level {}{} — {}",
+            k + 1,
+            num_fmt::level_vs(c.level, scene.min_excitation),
+            if c.excited { "" } else { ", NOT excited" },
+            names.join(", ")
+        );
+        if more > 0 {
+            text.push_str(&format!(" and {more} more"));
+        }
+        rows.push(note(text, !c.excited));
+    }
+    if left_out > 0 {
+        rows.push(note(String::new(), false));
+        rows.push(note(
+            format!(
+                "{} left out where {} overlap",
+                num_fmt::count(left_out, "label", "labels"),
+                if left_out == 1 {
+                    "it would"
+                } else {
+                    "they would"
+                }
+            ),
+            false,
+        ));
+    }
+    rows
+}
+
+/// Splits the legend rows into columns of at most `height` px (a column
+/// holds at least one row).
+fn split_columns(rows: Vec<Row>, height: f64) -> Vec<Vec<Row>> {
+    let mut columns: Vec<Vec<Row>> = vec![Vec::new()];
+    let mut used = 0.0;
+    for r in rows {
+        let last = columns.len() - 1;
+        if used + r.height > height && !columns[last].is_empty() {
+            columns.push(Vec::new());
+            used = 0.0;
+        }
+        used += r.height;
+        let last = columns.len() - 1;
+        columns[last].push(r);
+    }
+    columns
+}
+
+/// Draws one column of legend rows from `(x, y)`.
+fn legend(doc: &mut Svg, rows: &[Row], x: f64, y: f64) {
+    let mut top = y + 10.0;
+    let (a, b) = (x + 10.0, x + 50.0);
+    for r in rows {
+        let mid = top + r.height / 2.0;
+        match r.sample {
+            Sample::None => {}
+            Sample::Candidate => doc.line(
+                (a, mid),
+                (b, mid),
+                &[s("stroke", "#c8c8c8"), s("stroke-width", "1")],
+            ),
+            Sample::TwoWay => doc.line(
+                (a, mid),
+                (b, mid),
+                &[s("stroke", "#000000"), s("stroke-width", "2.5")],
+            ),
+            Sample::OneWay => doc.line(
+                (a, mid),
+                (b, mid),
+                &[
+                    s("stroke", "#000000"),
+                    s("stroke-width", "2.5"),
+                    s("marker-end", "url(#arrow)"),
+                ],
+            ),
+            Sample::Installed => {
+                doc.line(
+                    (a, mid),
+                    (b, mid),
+                    &[s("stroke", "#000000"), s("stroke-width", "5")],
+                );
+                doc.line(
+                    (a, mid),
+                    (b, mid),
+                    &[s("stroke", "#ffffff"), s("stroke-width", "1.6")],
+                );
+            }
+            Sample::UnitExcited | Sample::UnitNot => doc.circle(
+                (a + 20.0, mid),
+                UNIT_R,
+                &[
+                    s(
+                        "fill",
+                        if matches!(r.sample, Sample::UnitExcited) {
+                            "#000000"
+                        } else {
+                            "#ffffff"
+                        },
+                    ),
+                    s("stroke", "#000000"),
+                    s("stroke-width", "1.5"),
+                ],
+            ),
+            Sample::HaloExcited | Sample::HaloNot => {
+                let (fill, stroke) = if matches!(r.sample, Sample::HaloExcited) {
+                    ("#e6e6e6", "#666666")
+                } else {
+                    ("#ffffff", "#000000")
+                };
+                doc.element(
+                    "rect",
+                    &[
+                        s("x", num(a)),
+                        s("y", num(mid - 9.0)),
+                        s("width", "40"),
+                        s("height", "18"),
+                        s("rx", "9"),
+                        s("fill", fill),
+                        s("stroke", stroke),
+                        s("stroke-width", "2"),
+                    ],
+                );
+            }
+        }
+        if !r.text.is_empty() {
+            let mut style = Vec::new();
+            if r.bold {
+                style.push(s("font-weight", "bold"));
+            }
+            doc.text((x + r.indent, mid + 0.35 * r.size), r.size, &r.text, &style);
+        }
+        top += r.height;
+    }
 }

@@ -139,6 +139,21 @@ pub fn level(x: f64) -> String {
     sig(x, 4, Round::Nearest)
 }
 
+/// Levels below this share of μ_req print as 0: eigenvalue round-off of
+/// a rank-deficient Gramian (about machine precision times its largest
+/// eigenvalue) lands there, and the verdict is "not excited" either way.
+pub const LEVEL_FLOOR: f64 = 1e-9;
+
+/// An excitation level next to the required one `mu`: round-off below
+/// [`LEVEL_FLOOR`]·μ_req prints as 0.
+pub fn level_vs(x: f64, mu: f64) -> String {
+    if x.abs() < LEVEL_FLOOR * mu.abs() {
+        "0".into()
+    } else {
+        level(x)
+    }
+}
+
 /// A certified rate (a proven lower bound on the decay): rounded down, with
 /// its time constant (rounded up): `0.04483 1/s (time constant 22.31 s)`.
 pub fn rate(r: f64) -> String {
@@ -230,6 +245,8 @@ mod tests {
     fn rates_carry_their_time_constant() {
         assert_eq!(rate(0.044_839), "0.04483 1/s (time constant 22.31 s)");
         assert_eq!(count(1, "link", "links"), "1 link");
+        assert_eq!(level_vs(2.2e-12, 0.05), "0");
+        assert_eq!(level_vs(2.2e-3, 0.05), "0.0022");
         assert_eq!(count(3, "link", "links"), "3 links");
     }
 }

@@ -115,6 +115,107 @@ impl Svg {
     }
 }
 
+/// Font size of the cautions footer (px).
+const FOOTER_FONT: f64 = 9.0;
+
+/// `doc` (a whole SVG document with numeric `width` and `height` on its
+/// root) with the cautions as a small footer below the drawing: the
+/// canvas grows by the footer's height, its `viewBox` with it, and the
+/// cautions are wrapped to the canvas width (0.6 em per character, a
+/// safe width for sans-serif). A standalone picture pasted into a slide
+/// keeps them. Returns `doc` unchanged when its root has no such size.
+pub fn with_cautions(doc: &str) -> String {
+    let Some(start) = doc.find("<svg") else {
+        return doc.to_string();
+    };
+    let Some(end) = doc[start..].find('>').map(|e| start + e) else {
+        return doc.to_string();
+    };
+    let root = &doc[start..end];
+    let attr = |name: &str| -> Option<f64> {
+        let key = format!(" {name}=\"");
+        let i = root.find(&key)? + key.len();
+        let j = root[i..].find('"')? + i;
+        root[i..j].trim_end_matches("px").parse().ok()
+    };
+    let (Some(w), Some(h)) = (attr("width"), attr("height")) else {
+        return doc.to_string();
+    };
+    let per_line = ((w - 16.0) / (0.6 * FOOTER_FONT)).floor().max(20.0) as usize;
+    let mut lines: Vec<String> = Vec::new();
+    for c in super::CAUTIONS {
+        lines.extend(wrap(&format!("Caution: {c}"), per_line));
+    }
+    let line_height = FOOTER_FONT * 1.3;
+    let footer = 8.0 + line_height * lines.len() as f64;
+    let total = h + footer;
+    // The new root: width kept, height and viewBox grown.
+    let mut new_root = String::from("<svg");
+    let mut rest = &root[4..];
+    // Drop the old height and viewBox, keep every other attribute.
+    while let Some(i) = rest.find('=') {
+        let name_start = rest[..i].rfind(' ').map_or(0, |k| k + 1);
+        let name = rest[name_start..i].trim();
+        let vstart = i + 2;
+        let Some(vlen) = rest[vstart..].find('"') else {
+            break;
+        };
+        let value = &rest[vstart..vstart + vlen];
+        if name != "height" && name != "viewBox" {
+            new_root.push_str(&format!(" {name}=\"{value}\""));
+        }
+        rest = &rest[vstart + vlen + 1..];
+    }
+    new_root.push_str(&format!(
+        " height=\"{}\" viewBox=\"0 0 {} {}\"",
+        num(total),
+        num(w),
+        num(total)
+    ));
+    let mut foot = format!(
+        "<g class=\"cautions\"><rect x=\"0\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"#ffffff\"/>\n",
+        num(h),
+        num(w),
+        num(footer)
+    );
+    for (k, l) in lines.iter().enumerate() {
+        foot.push_str(&format!(
+            "<text x=\"8.00\" y=\"{}\" font-size=\"{}\" font-family=\"sans-serif\" fill=\"#333333\">{}</text>\n",
+            num(h + 4.0 + line_height * (k as f64 + 1.0)),
+            num(FOOTER_FONT),
+            escape(l)
+        ));
+    }
+    foot.push_str("</g>\n");
+    let body_end = doc.rfind("</svg>").unwrap_or(doc.len());
+    format!(
+        "{}{new_root}{}{foot}{}",
+        &doc[..start],
+        &doc[end..body_end],
+        &doc[body_end..]
+    )
+}
+
+/// Splits `text` at spaces into lines of at most `width` characters (a
+/// longer word stays whole on its own line).
+fn wrap(text: &str, width: usize) -> Vec<String> {
+    let mut lines = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+            lines.push(std::mem::take(&mut line));
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
 /// Style attribute helper: `s("stroke", "#000")`.
 pub fn s(key: &'static str, value: impl Into<String>) -> (&'static str, String) {
     (key, value.into())

@@ -111,7 +111,7 @@ pub fn excitation(s: &ExcitationSummary, out: &mut impl Write) -> io::Result<()>
             out,
             "{:<width$}  {:>11}  {:>7}  {:>4}  {:>4.0}%  {:>4.0}%  {} (t = {})",
             u.id,
-            num::level(u.excitation),
+            num::level_vs(u.excitation, s.min_excitation),
             yes_no(u.excited),
             u.rank,
             100.0 * u.flow_share,
@@ -155,7 +155,7 @@ pub fn check(c: &Check, out: &mut impl Write) -> io::Result<()> {
             "source component {}: {}, level {}, excited: {}",
             k + 1,
             num::count(sc.nodes.len(), "unit", "units"),
-            num::level(sc.excitation),
+            num::level_vs(sc.excitation, c.min_excitation),
             yes_no(sc.excited)
         )?;
         writeln!(out, "  units:   {}", sc.nodes.join(", "))?;
@@ -739,7 +739,7 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             "source component {}: {}, level {}, excited: {}, drives {}",
             k + 1,
             num::count(sc.nodes.len(), "unit", "units"),
-            num::level(sc.excitation),
+            num::level_vs(sc.excitation, p.min_excitation),
             yes_no(sc.excited),
             num::count(sc.reaches.len(), "unit", "units")
         )?;
@@ -778,7 +778,7 @@ fn shortfalls(p: &Plan, out: &mut impl Write) -> io::Result<()> {
         writeln!(
             out,
             "    level {}, weakest direction {} (window from t = {})",
-            num::level(s.excitation),
+            num::level_vs(s.excitation, p.min_excitation),
             direction(&s.weakest_direction),
             s.weakest_window_start
         )?;

@@ -70,7 +70,14 @@ fn map_and_dot_parse_and_hold_every_link() {
             .iter()
             .any(|l| l.contains("\"b\" -> \"c\"") && !l.contains("dir=both"))
     );
-    assert!(dot.starts_with("digraph \"three units\" {") && dot.trim_end().ends_with('}'));
+    // The cautions head the file as `//` comments (valid DOT).
+    let body: String = dot
+        .lines()
+        .filter(|l| !l.starts_with("//"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    assert!(dot.starts_with("// Caution: "));
+    assert!(body.starts_with("digraph \"three units\" {") && body.trim_end().ends_with('}'));
     // Balanced braces and quotes: a cheap well-formedness check of the DOT text.
     assert_eq!(dot.matches('{').count(), dot.matches('}').count());
     assert_eq!(dot.matches('"').count() % 2, 0);
@@ -168,4 +175,136 @@ fn report_is_self_contained_html5() {
         html,
         std::fs::read_to_string(folder.path("report.html")).unwrap()
     );
+}
+
+/// Text boxes of an SVG drawn by exmesh: every `<text>` with its `x`, `y`
+/// (baseline), `font-size` and content, boxed with a fixed character width
+/// of 0.6 em (wider than most sans-serif glyphs; common practice for
+/// estimating label extents without a font), 0.8 em above the baseline and
+/// 0.25 em below. Returns the viewBox size and the boxes.
+type TextBox = ((f64, f64, f64, f64), String);
+
+fn text_boxes(svg: &str) -> ((f64, f64), Vec<TextBox>) {
+    let doc = roxmltree::Document::parse(svg).expect("SVG parses as XML");
+    let root = doc.root_element();
+    let vb: Vec<f64> = root
+        .attribute("viewBox")
+        .expect("viewBox")
+        .split_whitespace()
+        .map(|v| v.parse().unwrap())
+        .collect();
+    let mut boxes = Vec::new();
+    for t in doc.descendants().filter(|n| n.has_tag_name("text")) {
+        let f = |k: &str| t.attribute(k).unwrap().parse::<f64>().unwrap();
+        let (x, y, size) = (f("x"), f("y"), f("font-size"));
+        let text = t.text().unwrap_or("").to_string();
+        let w = 0.6 * size * text.chars().count() as f64;
+        let x = match t.attribute("text-anchor") {
+            Some("middle") => x - w / 2.0,
+            Some("end") => x - w,
+            _ => x,
+        };
+        boxes.push(((x, y - 0.8 * size, x + w, y + 0.25 * size), text));
+    }
+    ((vb[2], vb[3]), boxes)
+}
+
+/// No label leaves the canvas and no two labels overlap.
+fn assert_labels_fit(svg: &str, what: &str) {
+    let ((w, h), boxes) = text_boxes(svg);
+    for (b, t) in &boxes {
+        assert!(
+            b.0 >= 0.0 && b.1 >= 0.0 && b.2 <= w && b.3 <= h,
+            "{what}: `{t}` at {b:?} leaves the {w}×{h} canvas"
+        );
+    }
+    for (i, (a, ta)) in boxes.iter().enumerate() {
+        for (b, tb) in &boxes[i + 1..] {
+            let overlap = a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3;
+            assert!(!overlap, "{what}: `{ta}` {a:?} overlaps `{tb}` {b:?}");
+        }
+    }
+}
+
+#[test]
+fn the_detector_sees_overlaps_and_overflow() {
+    let svg = |a: &str, b: &str| {
+        format!("<svg xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 200 100\">{a}{b}</svg>")
+    };
+    let t =
+        |x: f64, y: f64, s: &str| format!("<text x=\"{x}\" y=\"{y}\" font-size=\"10\">{s}</text>");
+    let fits = svg(&t(10.0, 20.0, "abc"), &t(10.0, 40.0, "abc"));
+    assert_labels_fit(&fits, "fits");
+    let clash = std::panic::catch_unwind(|| {
+        assert_labels_fit(&svg(&t(10.0, 20.0, "abcdef"), &t(30.0, 22.0, "x")), "c")
+    });
+    assert!(clash.is_err(), "overlap found");
+    let out = std::panic::catch_unwind(|| {
+        assert_labels_fit(&svg(&t(150.0, 20.0, "abcdefghij"), ""), "o")
+    });
+    assert!(out.is_err(), "overflow found");
+}
+
+/// Maps of both demos (plan and installed links: many unexcited
+/// components), a 150-unit generated network and a long, thin one (a
+/// corridor): every label, the legend and the cautions footer fit on the
+/// canvas without overlaps.
+#[test]
+fn map_labels_fit_and_do_not_overlap() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let folder = Folder::new();
+    for (k, demo) in [
+        "problems/plateau-masts/problem.toml",
+        "problems/delta-substations/problem.toml",
+    ]
+    .iter()
+    .enumerate()
+    {
+        for which in ["--installed", "--all"] {
+            let out = folder.path(&format!("map{k}{which}.svg"));
+            let run = exmesh(
+                root,
+                &[
+                    "check",
+                    demo,
+                    which,
+                    "--skip-rate",
+                    "--svg",
+                    out.to_str().unwrap(),
+                ],
+            );
+            assert!(run.code <= 1, "{}", run.stderr);
+            let svg = std::fs::read_to_string(&out).unwrap();
+            assert_labels_fit(&svg, &format!("{demo} {which}"));
+            assert!(svg.contains("Caution: "), "cautions footer");
+        }
+    }
+    // Stretch 4: x four times, y halved, a corridor 8 times longer than
+    // wide.
+    for stretch in [1.0, 4.0] {
+        let mut problem = exmesh::synth::bench_problem(150, 7, 0.3);
+        for node in &mut problem.nodes {
+            if let Some(p) = &mut node.position {
+                p[0] *= stretch;
+                p[1] /= (stretch / 2.0).max(1.0);
+            }
+        }
+        let table = exmesh::ExcitationTable::build(&problem);
+        let options = exmesh::plan::Options {
+            time_limit: Some(std::time::Duration::from_millis(300)),
+            ..Default::default()
+        };
+        let plan = exmesh::plan::plan(&problem, &table, &options);
+        for set in [plan.link_set(&problem), exmesh::problem::LinkSet::default()] {
+            let scene = exmesh::report::map::Scene::new(&problem, &table, &set);
+            let svg = exmesh::report::svg::with_cautions(&exmesh::report::map::svg(&scene));
+            assert_labels_fit(&svg, &format!("150 units, stretch {stretch}"));
+            // To look at them: EXMESH_DUMP_PICTURES=DIR (render with any
+            // SVG viewer).
+            if let Ok(dir) = std::env::var("EXMESH_DUMP_PICTURES") {
+                let name = format!("gen150-{stretch}-{}.svg", set.ids().len());
+                std::fs::write(std::path::Path::new(&dir).join(name), &svg).unwrap();
+            }
+        }
+    }
 }

@@ -118,6 +118,7 @@ pub(crate) fn budget(
         let text = report::chart::front_svg(&front, problem.settings.target_rate)
             .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
         let mut files = Outputs::default();
+        let text = report::svg::with_cautions(&text);
         files.add(&path, text.into_bytes(), "the figure");
         files.commit()?;
     }
@@ -284,6 +285,7 @@ pub(crate) fn simulate(
     if let Some(path) = &files.svg {
         let text = report::chart::errors_svg(&problem, &traj)
             .map_err(|e| anyhow::anyhow!("drawing the error figure: {e}"))?;
+        let text = report::svg::with_cautions(&text);
         outputs.add(path, text.into_bytes(), "the figure");
     }
     outputs.commit()?;

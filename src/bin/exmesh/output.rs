@@ -149,7 +149,8 @@ impl Outputs {
         }
         let scene = report::map::Scene::new(problem, table, set);
         if let Some(path) = &pictures.map {
-            self.add(path, report::map::svg(&scene).into_bytes(), "the map");
+            let map = report::svg::with_cautions(&report::map::svg(&scene));
+            self.add(path, map.into_bytes(), "the map");
         }
         if let Some(path) = &pictures.dot {
             self.add(path, report::dot::dot(&scene).into_bytes(), "the DOT file");
