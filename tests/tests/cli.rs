@@ -502,7 +502,9 @@ fn simulate_writes_csv_and_svg() {
         run.stdout
     );
     let csv = std::fs::read_to_string(folder.path("traj.csv")).unwrap();
-    let mut lines = csv.lines();
+    // The cautions come first as `#` lines, then the header.
+    assert!(csv.starts_with("# Caution: "));
+    let mut lines = csv.lines().skip_while(|l| l.starts_with('#'));
     assert_eq!(lines.next().unwrap(), "t,err_a,err_b,err_c,total,envelope");
     let rows: Vec<Vec<f64>> = lines
         .map(|l| l.split(',').map(|v| v.parse().unwrap()).collect())
