@@ -4,6 +4,7 @@
 //! files: styles and figures (inline SVG) are in the page.
 
 use super::CAUTIONS;
+use super::number::{self as num, Round};
 use super::svg::escape;
 use crate::analysis::Check;
 use crate::simulate::{Reference, Trajectory};
@@ -22,6 +23,8 @@ pub struct ReportInput<'a> {
     pub check: &'a Check,
     /// Facts from the plan file.
     pub facts: PlanFacts,
+    /// The command and the plan file.
+    pub provenance: Provenance,
     /// The map (SVG).
     pub map_svg: String,
     /// The simulation and its figure, when it could run.
@@ -37,12 +40,28 @@ th{background:#eee}td.num{text-align:right;font-variant-numeric:tabular-nums}\
 .fig{overflow-x:auto;margin:.6em 0}.fig svg{max-width:100%;height:auto}\
 .warn{border:2px solid #000;padding:.6em 1em;background:#f4f4f4}.muted{color:#555}";
 
-fn f(v: Option<f64>, digits: usize) -> String {
-    v.map_or("—".into(), |x| format!("{x:.digits$}"))
+/// A bound rounded on its safe side (`Round::Up` for upper bounds), or a
+/// dash.
+fn bound(v: Option<f64>, round: Round) -> String {
+    v.map_or("—".into(), |x| num::sig(x, 4, round))
 }
 
-fn e(v: Option<f64>) -> String {
-    v.map_or("—".into(), |x| format!("{x:.4e}"))
+/// A rate: certified ones round down, estimates to nearest.
+fn rate_or_dash(v: Option<f64>, certified: bool) -> String {
+    match v {
+        None => "—".into(),
+        Some(x) if certified => num::rate(x),
+        Some(x) => num::rate_nearest(x),
+    }
+}
+
+/// Where the report's numbers come from: the command and the plan file.
+#[derive(Debug, Clone, Default)]
+pub struct Provenance {
+    /// The command line that made the report.
+    pub command: String,
+    /// The plan file.
+    pub plan_file: String,
 }
 
 /// Runs everything the report of `set` shows (check, certificate,
@@ -52,11 +71,15 @@ fn e(v: Option<f64>) -> String {
 /// # Errors
 /// A message when a figure of the front cannot be drawn (a failed
 /// simulation is shown in the page instead).
+// Eight inputs: the problem and its table, the plan and what its file says,
+// where it came from, and the three options of the report command.
+#[allow(clippy::too_many_arguments)]
 pub fn assemble(
     problem: &crate::problem::Problem,
     table: &crate::ExcitationTable,
     set: &crate::problem::LinkSet,
     facts: PlanFacts,
+    provenance: Provenance,
     truth: Option<Vec<f64>>,
     front: bool,
     progress: &crate::progress::Sink,
@@ -94,6 +117,7 @@ pub fn assemble(
         set,
         check: &check,
         facts,
+        provenance,
         map_svg: super::map::svg(&scene),
         simulation,
         front,
@@ -129,6 +153,7 @@ pub fn report(r: &ReportInput) -> String {
     );
 
     summary(&mut h, r);
+    fixes(&mut h, r);
     // Map.
     let _ = writeln!(h, "<h2>Map</h2>\n<div class=\"fig\">{}</div>", r.map_svg);
 
@@ -137,6 +162,7 @@ pub fn report(r: &ReportInput) -> String {
     certificate(&mut h, r);
     simulation(&mut h, r);
     front(&mut h, r);
+    provenance(&mut h, r);
     let _ = writeln!(h, "<h2>Cautions</h2>\n<ul>");
     for c in CAUTIONS {
         let _ = writeln!(h, "<li>{}</li>", escape(c));
@@ -160,18 +186,28 @@ fn summary(h: &mut String, r: &ReportInput) {
     row(h, "units", p.n().to_string());
     row(h, "candidate links", p.links.len().to_string());
     row(h, "chosen links", r.set.ids().len().to_string());
-    row(h, "cost of the chosen links", format!("{:.2}", c.cost));
+    row(
+        h,
+        "cost of the chosen links",
+        num::cost(c.cost, Round::Nearest),
+    );
     if let Some(s) = &r.facts.status {
         row(h, "plan status", s.clone());
     }
     if r.facts.lower_bound.is_some() {
-        row(h, "proven lower bound", f(r.facts.lower_bound, 2));
+        row(
+            h,
+            "proven lower bound",
+            r.facts
+                .lower_bound
+                .map_or("—".into(), |b| num::cost(b, Round::Down)),
+        );
         row(
             h,
             "gap",
             r.facts
                 .gap
-                .map_or("—".into(), |g| format!("{:.2} %", 100.0 * g)),
+                .map_or("—".into(), |g| num::percent(g, Round::Up)),
         );
     }
     row(
@@ -206,8 +242,8 @@ fn summary(h: &mut String, r: &ReportInput) {
         h,
         "required excitation μ_req",
         format!(
-            "{:.4e} ({}; {} windows)",
-            c.min_excitation,
+            "{} ({}; {} windows)",
+            num::level(c.min_excitation),
             if c.min_excitation_given {
                 "from the problem file"
             } else {
@@ -221,19 +257,22 @@ fn summary(h: &mut String, r: &ReportInput) {
             h,
             "certified rate",
             cert.rate
-                .map_or("not certified on this horizon".into(), |x| {
-                    format!("{x:.4e} 1/s")
-                }),
+                .map_or("not certified on this horizon".into(), num::rate),
         );
         row(
             h,
             "time to 1 %",
-            f(cert.time_to_1pct, 1)
-                + if cert.time_to_1pct_extrapolated {
-                    " s (extrapolated beyond the recorded horizon)"
-                } else {
-                    " s"
-                },
+            match cert.time_to_1pct {
+                None => "—".to_string(),
+                Some(t) => {
+                    num::sig(t, 4, Round::Up)
+                        + if cert.time_to_1pct_extrapolated {
+                            " s (extrapolated beyond the recorded horizon)"
+                        } else {
+                            " s"
+                        }
+                }
+            },
         );
         row(
             h,
@@ -241,14 +280,24 @@ fn summary(h: &mut String, r: &ReportInput) {
             match cert.norm_bound {
                 crate::certify::NormBoundKind::Exact => "exact (plus a rounding margin)".into(),
                 crate::certify::NormBoundKind::Randomized => format!(
-                    "upper bounds from randomized tests (fail with probability ≤ {:.1e})",
-                    cert.failure_probability
+                    "upper bounds from randomized tests (fail with probability ≤ {})",
+                    num::sig(cert.failure_probability, 2, Round::Up)
                 ),
             },
         );
     }
     if let Some(t) = p.settings.target_rate {
-        row(h, "target rate", format!("{t:.4e} 1/s"));
+        let met = match c.certificate.as_ref().and_then(|cert| cert.rate) {
+            Some(rate) if rate >= t => "met".to_string(),
+            Some(_) => "NOT met by the certified rate".to_string(),
+            None if c.certificate.is_some() => "NOT met: no certified rate".to_string(),
+            None => "not checked".to_string(),
+        };
+        row(
+            h,
+            "target rate",
+            format!("{} — {met}", num::rate_nearest(t)),
+        );
     }
     let _ = writeln!(*h, "</table>");
 }
@@ -268,11 +317,11 @@ fn links(h: &mut String, r: &ReportInput) {
         };
         let _ = writeln!(
             h,
-            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{kind}</td><td class=\"num\">{:.2}</td><td>{}</td></tr>",
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{kind}</td><td class=\"num\">{}</td><td>{}</td></tr>",
             escape(&link.id),
             escape(p.node_name(a)),
             escape(p.node_name(b)),
-            if link.installed { 0.0 } else { link.cost },
+            num::cost(if link.installed { 0.0 } else { link.cost }, Round::Nearest),
             if link.installed { "installed" } else { "new" }
         );
     }
@@ -289,10 +338,10 @@ fn components(h: &mut String, r: &ReportInput) {
     for (k, s) in c.source_components.iter().enumerate() {
         let _ = writeln!(
             h,
-            "<tr><td>S{}</td><td>{}</td><td class=\"num\">{:.4e}</td><td>{}</td><td class=\"num\">{}</td></tr>",
+            "<tr><td>S{}</td><td>{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"num\">{}</td></tr>",
             k + 1,
             escape(&s.nodes.join(", ")),
-            s.excitation,
+            num::level_vs(s.excitation, c.min_excitation),
             if s.excited { "yes" } else { "NO" },
             s.reaches.len()
         );
@@ -309,29 +358,32 @@ fn certificate(h: &mut String, r: &ReportInput) {
             Some(rate) => {
                 let _ = writeln!(
                     h,
-                    "<p>On the recorded data, |e(t)| ≤ {} · exp(−{rate:.4e} (t − {h0})) · |e({h0})| for the \
+                    "<p>On the recorded data, |e(t)| ≤ {} · exp(−{} (t − {h0})) · |e({h0})| for the \
                      stacked estimation error and every t of the horizon (its last jumps included): \
-                     certified rate <strong>{rate:.4e} 1/s</strong> over windows \
-                     of {} s (worst ‖Φ‖ ≤ {:.6} over {} windows); the bound falls to 1 % after {} s{}. \
+                     certified rate <strong>{}</strong> over windows \
+                     of {} s (worst ‖Φ‖ ≤ {} over {} windows); the bound falls to 1 % after {} s{}. \
                      The transient factor bounds how much the error can grow inside a window before \
                      that window's contraction applies. Decay over the whole horizon (an estimate, \
-                     not certified): {} 1/s.</p>",
-                    f(cert.transient_factor, 4),
+                     not certified): {}.</p>",
+                    bound(cert.transient_factor, Round::Up),
+                    num::sig(rate, 4, Round::Down),
+                    num::rate(rate),
                     cert.window,
-                    cert.contraction,
+                    num::sig(cert.contraction, 6, Round::Up),
                     cert.windows,
-                    f(cert.time_to_1pct, 1),
+                    bound(cert.time_to_1pct, Round::Up),
                     if cert.time_to_1pct_extrapolated {
                         " (extrapolated beyond the recorded horizon)"
                     } else {
                         ""
                     },
-                    e(cert.asymptotic_rate),
+                    rate_or_dash(cert.asymptotic_rate, false),
                     h0 = cert.envelope_from,
                 );
                 let top: Vec<String> = cert
                     .units
                     .iter()
+                    .filter(|u| u.share >= 0.005)
                     .take(5)
                     .map(|u| format!("{} ({:.0} %)", u.node, 100.0 * u.share))
                     .collect();
@@ -360,11 +412,11 @@ fn certificate(h: &mut String, r: &ReportInput) {
         for g in &cert.gains {
             let _ = writeln!(
                 h,
-                "<tr><td>{}</td><td>{}</td><td class=\"num\">{:.4}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+                "<tr><td>{}</td><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
                 escape(g.node.as_deref().unwrap_or("—")),
                 escape(&g.condition),
-                g.value,
-                g.limit,
+                num::sig(g.value, 4, Round::Up),
+                num::sig(g.limit, 4, Round::Nearest),
                 if g.ok { "pass" } else { "FAIL" }
             );
         }
@@ -384,9 +436,15 @@ fn simulation(h: &mut String, r: &ReportInput) {
             let _ = writeln!(
                 h,
                 "<p>Each unit's estimator run on the logs from a zero estimate; errors measured \
-                 against {reference}. Observed decay {} 1/s, certified {} 1/s.</p>\n<div class=\"fig\">{svg}</div>",
-                e(t.observed_rate),
-                e(t.certified_rate)
+                 against {reference}. Observed decay {} (an estimate), certified {}.{}</p>\n<div class=\"fig\">{svg}</div>",
+                rate_or_dash(t.observed_rate, false),
+                rate_or_dash(t.certified_rate, true),
+                if t.reference_kind == Reference::PooledFit && t.certified_rate.is_some() {
+                    " Logged outputs: noise and model mismatch are outside the certificate; \
+                     the bound is drawn for reference."
+                } else {
+                    ""
+                }
             );
         }
         Err(why) => {
@@ -400,17 +458,115 @@ fn front(h: &mut String, r: &ReportInput) {
     if let Some((front, svg)) = &r.front {
         let _ = writeln!(
             h,
-            "<h2>What a budget buys</h2>\n<p>Non-dominated plans from the structural optimum upward; every rate is certified.</p>\n<table>\n<tr><th>cost</th><th>certified rate (1/s)</th><th>links</th></tr>"
+            "<h2>What a budget buys</h2>\n<p>Non-dominated plans from the structural optimum upward; every rate is certified.</p>\n<table>\n<tr><th>cost</th><th>certified rate</th><th>links</th></tr>"
         );
         for pt in &front.front {
             let _ = writeln!(
                 h,
-                "<tr><td class=\"num\">{:.2}</td><td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
-                pt.cost,
-                e(pt.rate),
+                "<tr><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
+                num::cost(pt.cost, Round::Nearest),
+                rate_or_dash(pt.rate, true),
                 pt.links.len()
             );
         }
         let _ = writeln!(*h, "</table>\n<div class=\"fig\">{svg}</div>");
     }
+}
+
+/// What to change when the link set does not make every estimate converge
+/// (the fixes `check` gives).
+fn fixes(h: &mut String, r: &ReportInput) {
+    use crate::analysis::Verdict;
+    let c = r.check;
+    let mut items: Vec<String> = Vec::new();
+    match c.verdict {
+        Verdict::StructureFails => {
+            for (k, s) in c.source_components.iter().enumerate() {
+                if s.excited {
+                    continue;
+                }
+                let into = if s.entering_candidates.is_empty() {
+                    "no candidate link enters it".to_string()
+                } else {
+                    format!("candidate links into it: {}", s.entering_candidates.join(", "))
+                };
+                items.push(format!(
+                    "S{} ({}) is not excited: add a link into it from an excited part of the network, or give its units more excitation along the weakest direction [{}] (window from t = {}); {into}.",
+                    k + 1,
+                    s.nodes.join(", "),
+                    s.weakest_direction
+                        .iter()
+                        .map(|x| num::fixed(*x, 3, Round::Nearest))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    s.weakest_window_start
+                ));
+            }
+        }
+        Verdict::GainsFail => {
+            let units: Vec<&str> = c
+                .gains
+                .iter()
+                .chain(c.certificate.iter().flat_map(|cert| cert.gains.iter()))
+                .filter(|g| !g.ok)
+                .filter_map(|g| g.node.as_deref())
+                .collect();
+            items.push(format!(
+                "The gain condition fails at {}: lower jump_coupling or jump_gain, or give these units fewer (or lighter) incoming links.",
+                units.join(", ")
+            ));
+        }
+        Verdict::NotCertified => items.push(
+            "No window of the recorded horizon shows contraction: record longer or richer logs, raise the gains within their limits, or add links that share excitation.".to_string(),
+        ),
+        Verdict::Converges | Verdict::RateNotChecked => {}
+    }
+    if let (Some(t), Some(cert)) = (r.problem.settings.target_rate, &c.certificate)
+        && cert.rate.is_none_or(|rate| rate < t)
+    {
+        items.push(
+            "The target rate is not met: run `exmesh plan` (its rate stage adds links for speed) or `exmesh budget` for what each cost buys.".to_string(),
+        );
+    }
+    if items.is_empty() {
+        return;
+    }
+    let _ = writeln!(*h, "<h2>What to fix</h2>\n<ul>");
+    for i in items {
+        let _ = writeln!(*h, "<li>{}</li>", escape(&i));
+    }
+    let _ = writeln!(*h, "</ul>");
+}
+
+/// Where the numbers come from: files, spans, horizon, version, command.
+fn provenance(h: &mut String, r: &ReportInput) {
+    let p = r.problem;
+    let _ = writeln!(*h, "<h2>Provenance</h2>\n<table>");
+    let row = |h: &mut String, k: &str, v: String| {
+        let _ = writeln!(*h, "<tr><th>{}</th><td>{}</td></tr>", escape(k), escape(&v));
+    };
+    row(h, "problem file", p.path.display().to_string());
+    row(h, "plan file", r.provenance.plan_file.clone());
+    row(
+        h,
+        "common horizon",
+        format!("{} s to {} s", p.domain.h0, p.domain.h1),
+    );
+    row(h, "exmesh version", env!("CARGO_PKG_VERSION").to_string());
+    row(h, "command", r.provenance.command.clone());
+    let _ = writeln!(
+        *h,
+        "</table>\n<table>\n<tr><th>unit</th><th>log file</th><th>first sample (s)</th><th>last sample (s)</th><th>rows</th></tr>"
+    );
+    for v in &p.nodes {
+        let (a, b) = v.log.span();
+        let _ = writeln!(
+            *h,
+            "<tr><td>{}</td><td>{}</td><td class=\"num\">{a}</td><td class=\"num\">{b}</td><td class=\"num\">{}</td></tr>",
+            escape(&v.id),
+            escape(&v.log.path.display().to_string()),
+            v.log.t.len()
+        );
+    }
+    let _ = writeln!(*h, "</table>");
 }

@@ -163,10 +163,25 @@ fn report_is_self_contained_html5() {
     );
     let v: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
     let rate = v["certificate"]["rate"].as_f64().unwrap();
+    // Printed rounded down to 4 significant digits (a proven figure): the
+    // printed number is at most the rate and within 0.1 % of it.
+    let shown = exmesh::report::number::rate(rate);
+    assert!(text.contains(&shown), "rate {shown} in the report");
+    let figure: f64 = shown.split(' ').next().unwrap().parse().unwrap();
     assert!(
-        text.contains(&format!("{rate:.4e}")),
-        "rate {rate:.4e} in the report"
+        figure <= rate && figure > rate * 0.999,
+        "{figure} vs {rate}"
     );
+    // Provenance: the files, the horizon, the version and the command.
+    for needle in [
+        "Provenance",
+        "problem.toml",
+        "plan.json",
+        "logs/a.csv",
+        "exmesh report problem.toml --plan plan.json",
+    ] {
+        assert!(text.contains(needle), "{needle} in the report");
+    }
     assert!(text.contains("Cautions"));
     // Deterministic bytes.
     let again = exmesh(dir, &args);
@@ -307,4 +322,62 @@ fn map_labels_fit_and_do_not_overlap() {
             }
         }
     }
+}
+
+/// A failing link set: the report repeats the fixes of `check` (every
+/// unexcited component with the candidate links `check --json` lists into
+/// it), says the target rate is not met, and lists no unit with a 0 %
+/// share of the slowest mode.
+#[test]
+fn report_of_a_failing_plan_gives_the_fixes() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let folder = Folder::new();
+    let plan = folder.write(
+        "installed.json",
+        r#"{"links": [{"from": "mast-north", "to": "mast-cairn", "two_way": true}]}"#,
+    );
+    let page = folder.path("r.html");
+    let demo = "problems/plateau-masts/problem.toml";
+    let run = exmesh(
+        root,
+        &[
+            "report",
+            demo,
+            "--plan",
+            plan.to_str().unwrap(),
+            "--out",
+            page.to_str().unwrap(),
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let html = std::fs::read_to_string(&page).unwrap();
+    let doc = scraper::Html::parse_document(&html);
+    let text: String = doc.root_element().text().collect();
+    assert!(text.contains("What to fix"), "fixes section");
+    let check = exmesh(
+        root,
+        &["check", demo, "--plan", plan.to_str().unwrap(), "--json"],
+    );
+    let v: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
+    let mut failing = 0;
+    for c in v["source_components"].as_array().unwrap() {
+        if c["excited"] == true {
+            continue;
+        }
+        failing += 1;
+        let into: Vec<&str> = c["entering_candidates"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_str().unwrap())
+            .collect();
+        assert!(
+            text.contains(&format!("candidate links into it: {}", into.join(", "))),
+            "fix for {:?}",
+            c["nodes"]
+        );
+    }
+    assert!(failing > 0);
+    assert!(text.contains("NOT met"), "target rate not met");
+    assert!(!text.contains("(0 %)"), "no 0 % shares");
 }

@@ -95,6 +95,20 @@ pub(crate) fn plan(
     Ok(plan_code(&plan))
 }
 
+/// The command line as typed, program name shortened to `exmesh` and
+/// arguments with spaces or quotes quoted.
+fn command_line() -> String {
+    let mut parts = vec!["exmesh".to_string()];
+    for a in std::env::args().skip(1) {
+        if a.is_empty() || a.contains([' ', '"', '\'', '\\']) {
+            parts.push(format!("{a:?}"));
+        } else {
+            parts.push(a);
+        }
+    }
+    parts.join(" ")
+}
+
 /// `budget`: the cost–rate front.
 pub(crate) fn budget(
     out: &mut impl Write,
@@ -174,8 +188,21 @@ pub(crate) fn report(
             .into());
         }
     }
-    let html = report::html::assemble(&problem, &table, &set, facts, truth, front, &progress())
-        .map_err(anyhow::Error::msg)?;
+    let provenance = report::html::Provenance {
+        command: command_line(),
+        plan_file: plan.display().to_string(),
+    };
+    let html = report::html::assemble(
+        &problem,
+        &table,
+        &set,
+        facts,
+        provenance,
+        truth,
+        front,
+        &progress(),
+    )
+    .map_err(anyhow::Error::msg)?;
     let mut files = Outputs::default();
     files.add(page, html.into_bytes(), "the report");
     files.commit()?;
