@@ -157,9 +157,14 @@ pub fn meet_target(
             added.push(l);
             progress.update(|| {
                 format!(
-                    "rate stage: {} link(s) added, certified {:.4e} of {target:.4e} 1/s",
-                    added.len(),
-                    rate_of(&cert)
+                    "rate stage: {} added, certified {} of {} 1/s",
+                    crate::report::number::count(added.len(), "link", "links"),
+                    crate::report::number::sig(
+                        rate_of(&cert),
+                        4,
+                        crate::report::number::Round::Down
+                    ),
+                    crate::report::number::sig(target, 4, crate::report::number::Round::Nearest)
                 )
             });
         } else {

@@ -160,9 +160,16 @@ pub fn front(
             step += 1;
             progress.update(|| {
                 format!(
-                    "front: {step}/{steps} points, cost {:.2}, rate {:.4e} 1/s",
-                    problem.cost(&set),
-                    rate_of(&cert)
+                    "front: {step}/{steps} points, cost {}, rate {} 1/s",
+                    crate::report::number::cost(
+                        problem.cost(&set),
+                        crate::report::number::Round::Nearest
+                    ),
+                    crate::report::number::sig(
+                        rate_of(&cert),
+                        4,
+                        crate::report::number::Round::Down
+                    )
                 )
             });
         } else {
