@@ -329,8 +329,8 @@ pub fn certificate(c: &Certificate, out: &mut impl Write) -> io::Result<()> {
     if c.unconverged_windows > 0 {
         writeln!(
             out,
-            "  note: on {} window(s) the upper bound is more than 0.1 % above the lower bound (still a valid bound)",
-            c.unconverged_windows
+            "  note: on {} the upper bound is more than 0.1 % above the lower bound (still a valid bound)",
+            num::count(c.unconverged_windows, "window", "windows")
         )?;
     }
     gain_lines(&c.gains, out)
@@ -770,8 +770,12 @@ fn shortfalls(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     };
     writeln!(
         out,
-        "Even with every candidate link, {} group(s) of units form a source component that is not excited{after}:",
-        p.shortfalls.len()
+        "Even with every candidate link, {} a source component that is not excited{after}:",
+        if p.shortfalls.len() == 1 {
+            "1 group of units forms".to_string()
+        } else {
+            format!("{} groups of units form", p.shortfalls.len())
+        }
     )?;
     for s in &p.shortfalls {
         writeln!(out, "  units: {}", s.nodes.join(", "))?;
