@@ -50,7 +50,7 @@ fn main() {
             exmesh::whatif::stress::stress(&problem, &table, &set, n <= 30, &Default::default());
         save(&dir, &format!("{tag}-stress.json"), &stress);
         let retire =
-            exmesh::whatif::retire::retire(&problem, &[NodeId(0), NodeId(3)], &set, &options)
+            exmesh::whatif::retire::retire(&problem, &[NodeId(0), NodeId(3)], &[], &set, &options)
                 .map_err(|e| e.to_string());
         match retire {
             Ok(r) => save(&dir, &format!("{tag}-retire.json"), &r),

@@ -3,6 +3,8 @@
 
 mod plan_file;
 mod raw;
+mod write;
+pub use write::relative_to;
 
 pub use plan_file::{PlanFacts, read_link_set, read_plan_file};
 
@@ -246,6 +248,20 @@ impl Problem {
         retired: &[NodeId],
         installed: &LinkSet,
     ) -> Option<(Problem, Vec<LinkId>)> {
+        self.without(retired, &[], installed)
+    }
+
+    /// The problem without the `retired` units (their logs and every link
+    /// touching them) and without the `failed` links; links in `installed`
+    /// are marked installed. Returns it with, for each remaining link, its
+    /// id in `self`; `None` when no unit remains or the remaining logs share
+    /// no window.
+    pub fn without(
+        &self,
+        retired: &[NodeId],
+        failed: &[LinkId],
+        installed: &LinkSet,
+    ) -> Option<(Problem, Vec<LinkId>)> {
         let keep: Vec<bool> = (0..self.n())
             .map(|i| !retired.contains(&NodeId(i as u32)))
             .collect();
@@ -268,7 +284,7 @@ impl Problem {
                 Ends::TwoWay(a, b) => (a, b),
                 Ends::OneWay { from, to } => (from, to),
             };
-            if !keep[a.index()] || !keep[b.index()] {
+            if !keep[a.index()] || !keep[b.index()] || failed.contains(&LinkId(k as u32)) {
                 continue;
             }
             let mut l = link.clone();

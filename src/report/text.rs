@@ -566,7 +566,21 @@ pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Re
 /// # Errors
 /// Any I/O error of `out`.
 pub fn retirement(r: &crate::whatif::retire::Retirement, out: &mut impl Write) -> io::Result<()> {
-    writeln!(out, "Retiring {}", r.retired.join(", "))?;
+    if !r.retired.is_empty() {
+        writeln!(out, "Retiring {}", r.retired.join(", "))?;
+    }
+    if !r.failed_links.is_empty() {
+        writeln!(
+            out,
+            "{} failed: {}",
+            if r.failed_links.len() == 1 {
+                "Link"
+            } else {
+                "Links"
+            },
+            r.failed_links.join(", ")
+        )?;
+    }
     writeln!(out, "  kept:               {}", names_or_none(&r.kept))?;
     writeln!(out, "  added:              {}", names_or_none(&r.added))?;
     writeln!(

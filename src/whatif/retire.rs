@@ -1,6 +1,7 @@
-//! Re-planning after units are retired: the units, their logs and their
-//! links go; the links already in place cost nothing; the cheapest additions
-//! restore the condition (and the target rate, when set).
+//! Re-planning after units are retired or links fail: the units, their logs
+//! and their links go, failed links go; the links already in place cost
+//! nothing; the cheapest additions restore the condition (and the target
+//! rate, when set).
 
 use crate::excitation::ExcitationTable;
 use crate::plan::{Options, Plan, PlanStatus, plan};
@@ -12,6 +13,8 @@ use serde::Serialize;
 pub struct Retirement {
     /// Ids of the retired units.
     pub retired: Vec<String>,
+    /// Ids of the links that failed (gone from the candidates).
+    pub failed_links: Vec<String>,
     /// Links in place before that the new plan keeps.
     pub kept: Vec<String>,
     /// Links the new plan adds.
@@ -32,14 +35,17 @@ pub enum RetireError {
     /// Every unit would go.
     #[error("retiring every unit leaves nothing to plan")]
     Nothing,
+    /// Neither a unit nor a link was named.
+    #[error("nothing retired and no link failed; expected --node or --link")]
+    NoChange,
     /// The remaining logs do not share a window.
     #[error("the remaining units' logs do not overlap for a whole window")]
     NoHorizon,
 }
 
-/// Retires `units` from `problem`. `in_place` is the link set installed
-/// before (a plan file's links); links marked `installed` in the problem
-/// count too.
+/// Retires `units` from `problem` and drops the `failed` links. `in_place`
+/// is the link set installed before (a plan file's links); links marked
+/// `installed` in the problem count too.
 ///
 /// # Errors
 /// [`RetireError`] when no unit would remain or the remaining logs share no
@@ -47,10 +53,11 @@ pub enum RetireError {
 pub fn retire(
     problem: &Problem,
     units: &[NodeId],
+    failed: &[LinkId],
     in_place: &LinkSet,
     options: &Options,
 ) -> Result<Retirement, RetireError> {
-    retire_with(problem, units, in_place, options, &|reduced, _| {
+    retire_with(problem, units, failed, in_place, options, &|reduced, _| {
         ExcitationTable::build(reduced)
     })
 }
@@ -64,6 +71,7 @@ pub fn retire(
 pub fn retire_with(
     problem: &Problem,
     units: &[NodeId],
+    failed: &[LinkId],
     in_place: &LinkSet,
     options: &Options,
     table_of: &dyn Fn(&Problem, &[NodeId]) -> ExcitationTable,
@@ -71,11 +79,14 @@ pub fn retire_with(
     if units.len() >= problem.n() {
         return Err(RetireError::Nothing);
     }
+    if units.is_empty() && failed.is_empty() {
+        return Err(RetireError::NoChange);
+    }
     let mut before: Vec<LinkId> = in_place.ids().to_vec();
     before.extend(problem.installed_links().ids());
     let before = LinkSet::new(before);
     let (reduced, origin) = problem
-        .without_units(units, &before)
+        .without(units, failed, &before)
         .ok_or(RetireError::NoHorizon)?;
     let kept_units: Vec<NodeId> = (0..problem.n() as u32)
         .map(NodeId)
@@ -100,7 +111,7 @@ pub fn retire_with(
     let removed_with_units: Vec<String> = before
         .ids()
         .iter()
-        .filter(|l| !origin.contains(l))
+        .filter(|l| !origin.contains(l) && !failed.contains(l))
         .map(name)
         .collect();
     let no_longer_needed: Vec<String> = before
@@ -121,6 +132,7 @@ pub fn retire_with(
             .iter()
             .map(|&v| problem.node_name(v).to_string())
             .collect(),
+        failed_links: failed.iter().map(name).collect(),
         kept,
         added: added_ids.iter().map(name).collect(),
         no_longer_needed,

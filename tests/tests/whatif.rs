@@ -30,7 +30,7 @@ proptest! {
         let kept: Vec<NodeId> = (0..n as u32).map(NodeId).filter(|&v| v != unit).collect();
         let scratch = plan::plan(&reduced, &table.restricted(&kept), &options);
         for (before, equal) in [(in_place, false), (LinkSet::default(), true)] {
-            let r = exmesh::whatif::retire::retire_with(&problem, &[unit], &before, &options, &restrict).unwrap();
+            let r = exmesh::whatif::retire::retire_with(&problem, &[unit], &[], &before, &options, &restrict).unwrap();
             prop_assert_eq!(r.plan.status == PlanStatus::Infeasible, scratch.status == PlanStatus::Infeasible);
             if let (Some(added), Some(fresh)) = (r.added_cost, scratch.cost) {
                 prop_assert!(added <= fresh + 1e-9, "re-plan {} > scratch {}", added, fresh);
@@ -217,4 +217,175 @@ fn survival_shortfalls_name_the_failure() {
             .unwrap()
             .contains("fails")
     );
+}
+
+/// A failed link: on the small problem (a excites e1, b excites e2, c
+/// nothing; a<->b installed, plan a<->b + b->c) the failing b->c leaves c
+/// reachable only through a->c, so the re-plan adds a->c at cost 4
+/// (reasoning by hand from the condition; common practice). The written
+/// problem loads, lists no b->c, marks a<->b installed, and `plan` on it
+/// costs what the re-plan's additions cost; `check` accepts the new plan
+/// on it; a retired unit is gone from `simulate` on the written problem.
+#[test]
+fn a_failed_link_is_replanned_and_the_problem_carried_forward() {
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    let dir = folder.dir.path();
+    std::fs::create_dir_all(dir.join("after")).unwrap();
+    let run = exmesh(
+        dir,
+        &[
+            "retire",
+            "problem.toml",
+            "--link",
+            "b,c",
+            "--plan",
+            "plan.json",
+            "--json",
+            "--out",
+            "after/new.json",
+            "--write-problem",
+            "after/problem.toml",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["failed_links"], serde_json::json!(["b->c"]));
+    assert_eq!(v["retired"], serde_json::json!([]));
+    assert_eq!(v["kept"], serde_json::json!(["a<->b"]));
+    assert_eq!(v["added"], serde_json::json!(["a->c"]));
+    assert_eq!(v["added_cost"], 4.0);
+    // The written problem, from its own folder.
+    let written = std::fs::read_to_string(dir.join("after/problem.toml")).unwrap();
+    assert!(!written.contains("\"b->c\""), "{written}");
+    assert!(written.contains("logs/a.csv"), "{written}");
+    let after = dir.join("after");
+    let plan = exmesh(&after, &["plan", "problem.toml", "--json"]);
+    assert_eq!(plan.code, 0, "{}", plan.stderr);
+    let p: serde_json::Value = serde_json::from_str(&plan.stdout).unwrap();
+    assert_eq!(p["cost"], 4.0);
+    let installed: Vec<&serde_json::Value> = p["links"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|l| l["installed"] == true)
+        .collect();
+    assert_eq!(installed.len(), 1);
+    assert_eq!(installed[0]["id"], "a<->b");
+    let check = exmesh(&after, &["check", "problem.toml", "--plan", "new.json"]);
+    assert_eq!(check.code, 0, "{}{}", check.stdout, check.stderr);
+
+    // Retiring c and writing the problem: simulate no longer runs c.
+    let run = exmesh(
+        dir,
+        &[
+            "retire",
+            "problem.toml",
+            "--node",
+            "c",
+            "--plan",
+            "plan.json",
+            "--out",
+            "after/new2.json",
+            "--write-problem",
+            "after/two.toml",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let sim = exmesh(
+        &after,
+        &[
+            "simulate",
+            "two.toml",
+            "--plan",
+            "new2.json",
+            "--json",
+            "--truth",
+            "1,2",
+        ],
+    );
+    assert_eq!(sim.code, 0, "{}", sim.stderr);
+    let s: serde_json::Value = serde_json::from_str(&sim.stdout).unwrap();
+    let units: Vec<&str> = s["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|u| u["node"].as_str().unwrap())
+        .collect();
+    assert_eq!(units, vec!["a", "b"]);
+}
+
+/// `--link` names a candidate as plan files do; an unknown unit, no
+/// candidate, or several candidates between the two units exit 2 naming
+/// the flag and the matches, and write nothing.
+#[test]
+fn failed_links_are_named_unambiguously() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let text = std::fs::read_to_string(folder.path("problem.toml")).unwrap();
+    folder.write(
+        "problem.toml",
+        &format!("{text}\n[[link]]\nbetween = [\"b\", \"c\"]\ncost = 9.0\n"),
+    );
+    let dir = folder.dir.path();
+    for (arg, words) in [
+        ("b,zz", "unknown unit \"zz\""),
+        ("c,a", "no candidate link joins c to a"),
+        ("b,c", "ambiguous: 2 candidate links join b and c: b->c"),
+        ("bc", "neither a candidate link id nor FROM,TO"),
+    ] {
+        let run = exmesh(
+            dir,
+            &["retire", "problem.toml", "--link", arg, "--out", "x.json"],
+        );
+        assert_eq!(run.code, 2, "{arg}: {}", run.stderr);
+        assert!(
+            run.stderr.contains("--link") && run.stderr.contains(words),
+            "{arg}: {}",
+            run.stderr
+        );
+        assert!(!folder.path("x.json").exists());
+    }
+    // By id: the two-way one.
+    let run = exmesh(
+        dir,
+        &["retire", "problem.toml", "--link", "b<->c", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["failed_links"], serde_json::json!(["b<->c"]));
+}
+
+/// Writing a problem file and loading it back gives the same problem
+/// (settings, units, logs, every candidate with its ends, cost, weight and
+/// state) for both demos, written into another folder.
+#[test]
+fn a_written_problem_loads_back_the_same() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let folder = Folder::new();
+    std::fs::create_dir_all(folder.path("elsewhere/deeper")).unwrap();
+    for demo in ["plateau-masts", "delta-substations"] {
+        let original =
+            exmesh::problem::load(&root.join(format!("problems/{demo}/problem.toml"))).unwrap();
+        let target = folder.path(&format!("elsewhere/deeper/{demo}.toml"));
+        std::fs::write(&target, original.to_toml(&target, &["a header".into()])).unwrap();
+        let back = exmesh::problem::load(&target).unwrap();
+        assert_eq!(back.settings, original.settings, "{demo}");
+        assert_eq!(back.nodes.len(), original.nodes.len());
+        for (a, b) in back.nodes.iter().zip(&original.nodes) {
+            assert_eq!(a.id, b.id);
+            assert_eq!(a.position, b.position);
+            assert_eq!(a.log.t, b.log.t);
+            assert_eq!(a.log.psi, b.log.psi);
+        }
+        assert_eq!(back.links.len(), original.links.len());
+        for (a, b) in back.links.iter().zip(&original.links) {
+            assert_eq!(
+                (&a.id, a.ends, a.cost, a.weight, a.installed),
+                (&b.id, b.ends, b.cost, b.weight, b.installed),
+                "{demo}"
+            );
+        }
+        assert_eq!(back.domain, original.domain);
+    }
 }

@@ -120,13 +120,22 @@ pub(crate) enum Command {
         #[arg(long, value_name = "V1,V2,...", allow_hyphen_values = true, value_parser = vector)]
         truth: Option<Vector>,
     },
-    /// Retire units: drop them, their logs and links, and re-plan with the links in place kept free.
+    /// Retire units or drop failed links, and re-plan with the links in place kept free.
     Retire {
         /// Problem file (TOML).
         problem: PathBuf,
         /// Unit to retire (repeat for several).
-        #[arg(long = "node", value_name = "ID", required = true)]
+        #[arg(long = "node", value_name = "ID", required_unless_present = "links")]
         nodes: Vec<String>,
+        /// A link that failed, as FROM,TO (the candidate between them; a
+        /// two-way link in either order) or by its id (repeat for several).
+        #[arg(long = "link", value_name = "FROM,TO")]
+        links: Vec<String>,
+        /// Also write the reduced problem (TOML): retired units and failed
+        /// links gone, the links in place marked installed, log paths valid
+        /// from the new file's folder.
+        #[arg(long, value_name = "PROBLEM.toml")]
+        write_problem: Option<PathBuf>,
         /// The links in place (a plan file); links marked `installed` count too.
         #[arg(long, value_name = "INSTALLED.json")]
         plan: Option<PathBuf>,

@@ -210,22 +210,101 @@ pub(crate) fn report(
     Ok(ExitCode::SUCCESS)
 }
 
-/// `retire`: drop units and re-plan.
+/// What `retire` is told: units retired, links failed, the links in place
+/// and where to write the new plan and the reduced problem.
+pub(crate) struct Retiring {
+    pub(crate) nodes: Vec<String>,
+    pub(crate) links: Vec<String>,
+    pub(crate) in_place: Option<PathBuf>,
+    pub(crate) plan_out: Option<PathBuf>,
+    pub(crate) problem_out: Option<PathBuf>,
+}
+
+/// Resolves a failed link named `FROM,TO` (the candidate between the two
+/// units: a two-way link in either order or a one-way link FROM → TO) or by
+/// its id. An unknown unit, no candidate or several candidates are flag
+/// errors that say what was found.
+fn failed_link(
+    problem: &exmesh::Problem,
+    text: &str,
+) -> Result<exmesh::problem::LinkId, FlagError> {
+    use exmesh::problem::{Ends, LinkId};
+    if let Some(id) = problem.link_id(text) {
+        return Ok(id);
+    }
+    let bad = |message: String| FlagError {
+        flag: "--link",
+        message,
+    };
+    let Some((a, b)) = text.split_once(',') else {
+        return Err(bad(format!(
+            "{text:?} is neither a candidate link id nor FROM,TO; expected two unit ids separated by a comma, or a link id"
+        )));
+    };
+    let (a, b) = (a.trim(), b.trim());
+    let unit = |name: &str| {
+        problem.node_id(name).ok_or_else(|| {
+            bad(format!(
+                "unknown unit {name:?} in {text:?}; expected one of the problem's [[node]] ids"
+            ))
+        })
+    };
+    let (u, v) = (unit(a)?, unit(b)?);
+    let matches: Vec<LinkId> = (0..problem.links.len() as u32)
+        .map(LinkId)
+        .filter(|&l| match problem.link(l).ends {
+            Ends::TwoWay(x, y) => (x, y) == (u, v) || (x, y) == (v, u),
+            Ends::OneWay { from, to } => (from, to) == (u, v),
+        })
+        .collect();
+    match matches.as_slice() {
+        [] => Err(bad(format!(
+            "no candidate link joins {a} to {b} (two-way in either order, or one-way from {a} to {b})"
+        ))),
+        [one] => Ok(*one),
+        many => Err(bad(format!(
+            "{text:?} is ambiguous: {} candidate links join {a} and {b}: {}; name one by its id",
+            many.len(),
+            many.iter()
+                .map(|&l| {
+                    let link = problem.link(l);
+                    format!(
+                        "{} ({}, cost {})",
+                        link.id,
+                        if matches!(link.ends, Ends::TwoWay(..)) {
+                            "two-way"
+                        } else {
+                            "one-way"
+                        },
+                        link.cost
+                    )
+                })
+                .collect::<Vec<_>>()
+                .join(", ")
+        ))),
+    }
+}
+
+/// `retire`: re-plan without some units or links.
 pub(crate) fn retire(
     out: &mut impl Write,
     path: &Path,
-    nodes: &[String],
-    plan: Option<&Path>,
-    plan_path: Option<PathBuf>,
+    what: &Retiring,
     time_limit: Option<Duration>,
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
     let mut inputs = problem_inputs(&problem);
-    inputs.extend(plan);
-    refuse_overwriting(&inputs, &[("--out", plan_path.as_deref())])?;
+    inputs.extend(what.in_place.as_deref());
+    refuse_overwriting(
+        &inputs,
+        &[
+            ("--out", what.plan_out.as_deref()),
+            ("--write-problem", what.problem_out.as_deref()),
+        ],
+    )?;
     let mut units = Vec::new();
-    for name in nodes {
+    for name in &what.nodes {
         let id = problem.node_id(name).ok_or_else(|| FlagError {
             flag: "--node",
             message: format!("unknown unit {name:?}; expected one of the problem's [[node]] ids"),
@@ -234,7 +313,14 @@ pub(crate) fn retire(
             units.push(id);
         }
     }
-    let in_place = match plan {
+    let mut failed = Vec::new();
+    for text in &what.links {
+        let l = failed_link(&problem, text)?;
+        if !failed.contains(&l) {
+            failed.push(l);
+        }
+    }
+    let in_place = match &what.in_place {
         Some(path) => problem::read_link_set(&problem, path)?,
         None => LinkSet::default(),
     };
@@ -243,10 +329,39 @@ pub(crate) fn retire(
         progress: progress(),
         ..Default::default()
     };
-    let result = whatif::retire::retire(&problem, &units, &in_place, &options)
+    let result = whatif::retire::retire(&problem, &units, &failed, &in_place, &options)
         .map_err(|e| exmesh::InputError::whole(&problem.path, e.to_string()))?;
     let mut files = Outputs::default();
-    files.plan_file(plan_path.as_deref(), &result.plan)?;
+    files.plan_file(what.plan_out.as_deref(), &result.plan)?;
+    if let Some(target) = &what.problem_out {
+        let mut before: Vec<exmesh::problem::LinkId> = in_place.ids().to_vec();
+        before.extend(problem.installed_links().ids());
+        let (reduced, _) = problem
+            .without(&units, &failed, &LinkSet::new(before))
+            .ok_or_else(|| {
+                exmesh::InputError::whole(
+                    &problem.path,
+                    "the remaining units' logs do not overlap for a whole window",
+                )
+            })?;
+        let mut header = vec![format!(
+            "Written by `{}` from {}.",
+            command_line(),
+            problem.path.display()
+        )];
+        if !result.retired.is_empty() {
+            header.push(format!("Retired units: {}.", result.retired.join(", ")));
+        }
+        if !result.failed_links.is_empty() {
+            header.push(format!("Failed links: {}.", result.failed_links.join(", ")));
+        }
+        header.push("Links that were in place are marked installed.".into());
+        files.add(
+            target,
+            reduced.to_toml(target, &header).into_bytes(),
+            "the reduced problem",
+        );
+    }
     files.commit()?;
     emit(out, json, &result, |o| report::text::retirement(&result, o))
         .context("writing the re-plan")?;

@@ -73,6 +73,8 @@ fn run(command: Command) -> anyhow::Result<ExitCode> {
         Command::Retire {
             problem,
             nodes,
+            links,
+            write_problem,
             plan,
             out: file,
             time_limit,
@@ -80,9 +82,13 @@ fn run(command: Command) -> anyhow::Result<ExitCode> {
         } => c::retire(
             out,
             &problem,
-            &nodes,
-            plan.as_deref(),
-            file,
+            &c::Retiring {
+                nodes,
+                links,
+                in_place: plan,
+                plan_out: file,
+                problem_out: write_problem,
+            },
             time_limit,
             json,
         ),
