@@ -470,19 +470,44 @@ pub fn front(f: &crate::whatif::budget::Front, out: &mut impl Write) -> io::Resu
     writeln!(out)?;
     writeln!(
         out,
-        "{:>12}  {:>14}  {:>16}  {:>6}",
+        "{:>12}  {:>14}  {:>16}  {:>6}  change from the row above",
         "cost", "rate (1/s)", "time constant (s)", "links"
     )?;
-    for p in &f.front {
+    for (k, p) in f.front.iter().enumerate() {
         let (rate, tau) = p
             .rate
             .filter(|r| *r > 0.0)
             .map_or(("not certified".to_string(), "-".to_string()), |r| {
                 (num::sig(r, 4, Round::Down), num::sig(1.0 / r, 4, Round::Up))
             });
+        let change = match k.checked_sub(1).map(|j| &f.front[j]) {
+            None => "  (the structural plan)".to_string(),
+            Some(prev) => {
+                let added: Vec<&str> = p
+                    .links
+                    .iter()
+                    .filter(|l| !prev.links.contains(l))
+                    .map(String::as_str)
+                    .collect();
+                let dropped: Vec<&str> = prev
+                    .links
+                    .iter()
+                    .filter(|l| !p.links.contains(l))
+                    .map(String::as_str)
+                    .collect();
+                let mut parts = Vec::new();
+                if !added.is_empty() {
+                    parts.push(format!("adds {}", added.join(", ")));
+                }
+                if !dropped.is_empty() {
+                    parts.push(format!("drops {}", dropped.join(", ")));
+                }
+                format!("  {}", parts.join("; "))
+            }
+        };
         writeln!(
             out,
-            "{:>12}  {rate:>14}  {tau:>16}  {:>6}",
+            "{:>12}  {rate:>14}  {tau:>16}  {:>6}{change}",
             num::cost(p.cost, Round::Nearest),
             p.links.len()
         )?;

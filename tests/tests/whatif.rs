@@ -389,3 +389,55 @@ fn a_written_problem_loads_back_the_same() {
         assert_eq!(back.domain, original.domain);
     }
 }
+
+/// `budget --out-dir` writes every front point as a plan file that `check`
+/// accepts, with the same links; `check` certifies the rate the front
+/// lists for it (the same certificate, recomputed independently of the
+/// sweep). The text names the links each point adds over the previous one.
+#[test]
+fn front_points_are_plan_files() {
+    let folder = Folder::new();
+    small_problem(&folder);
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &["budget", "problem.toml", "--json", "--out-dir", "front"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let points = v["front"].as_array().unwrap();
+    assert!(!points.is_empty());
+    for (k, p) in points.iter().enumerate() {
+        let file = format!("front/front-{:02}.json", k + 1);
+        let check = exmesh(dir, &["check", "problem.toml", "--plan", &file, "--json"]);
+        assert!(check.code <= 1, "{file}: {}", check.stderr);
+        let c: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
+        let mut listed: Vec<&str> = p["links"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|l| l.as_str().unwrap())
+            .collect();
+        let mut checked: Vec<&str> = c["links"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|l| l.as_str().unwrap())
+            .collect();
+        listed.sort_unstable();
+        checked.sort_unstable();
+        assert_eq!(listed, checked, "{file}");
+        assert_eq!(c["certificate"]["rate"], p["rate"], "{file}");
+    }
+    assert!(
+        !folder
+            .path(&format!("front/front-{:02}.json", points.len() + 1))
+            .exists()
+    );
+    let text = exmesh(dir, &["budget", "problem.toml"]);
+    assert!(text.stdout.contains("change from the row above"));
+    assert!(text.stdout.contains("(the structural plan)"));
+    if points.len() > 1 {
+        assert!(text.stdout.contains("adds "), "{}", text.stdout);
+    }
+}

@@ -82,6 +82,9 @@ pub(crate) enum Command {
         /// Draw the front (SVG).
         #[arg(long, value_name = "FRONT.svg")]
         svg: Option<PathBuf>,
+        /// Write every point of the front as a plan file (front-01.json, …) into this folder (made when missing).
+        #[arg(long, value_name = "DIR")]
+        out_dir: Option<PathBuf>,
         /// Stop after this many seconds, counted from the start (half for the structural search, half for the sweep; more than a century counts as a century).
         #[arg(long, value_name = "SECONDS", value_parser = seconds)]
         time_limit: Option<Duration>,

@@ -109,18 +109,39 @@ fn command_line() -> String {
     parts.join(" ")
 }
 
+/// The files `budget` writes besides its answer.
+pub(crate) struct FrontFiles {
+    /// The front figure (SVG).
+    pub(crate) svg: Option<PathBuf>,
+    /// A folder for one plan file per point of the front.
+    pub(crate) out_dir: Option<PathBuf>,
+}
+
+/// One point of the front as a plan file: `check`, `simulate`, `stress`
+/// and `report` read its `links`.
+#[derive(serde::Serialize)]
+struct FrontPlanFile<'a> {
+    network: &'a str,
+    /// Position on the front, from 1 (the cheapest).
+    point: usize,
+    cost: f64,
+    certified_rate: Option<f64>,
+    links: Vec<exmesh::plan::ChosenLink>,
+}
+
 /// `budget`: the cost–rate front.
 pub(crate) fn budget(
     out: &mut impl Write,
     path: &Path,
     max_cost: Option<f64>,
     steps: usize,
-    svg: Option<PathBuf>,
+    files_out: &FrontFiles,
     time_limit: Option<Duration>,
     json: bool,
 ) -> anyhow::Result<ExitCode> {
     let problem = problem::load(path)?;
-    refuse_overwriting(&problem_inputs(&problem), &[("--svg", svg.as_deref())])?;
+    let inputs = problem_inputs(&problem);
+    refuse_overwriting(&inputs, &[("--svg", files_out.svg.as_deref())])?;
     let table = ExcitationTable::build(&problem);
     let options = plan::Options {
         time_limit: remaining(time_limit),
@@ -128,14 +149,47 @@ pub(crate) fn budget(
         ..Default::default()
     };
     let front = whatif::budget::front(&problem, &table, &options, max_cost, steps);
-    if let Some(path) = svg {
+    let mut files = Outputs::default();
+    if let Some(path) = &files_out.svg {
         let text = report::chart::front_svg(&front, problem.settings.target_rate)
             .map_err(|e| anyhow::anyhow!("drawing the front: {e}"))?;
-        let mut files = Outputs::default();
         let text = report::svg::with_cautions(&text);
-        files.add(&path, text.into_bytes(), "the figure");
-        files.commit()?;
+        files.add(path, text.into_bytes(), "the figure");
     }
+    if let Some(dir) = &files_out.out_dir {
+        let width = front.front.len().to_string().len().max(2);
+        let targets: Vec<PathBuf> = (1..=front.front.len())
+            .map(|k| dir.join(format!("front-{k:0width$}.json")))
+            .collect();
+        let named: Vec<(&'static str, Option<&Path>)> = targets
+            .iter()
+            .map(|t| ("--out-dir", Some(t.as_path())))
+            .collect();
+        refuse_overwriting(&inputs, &named)?;
+        std::fs::create_dir_all(dir).map_err(|e| FlagError {
+            flag: "--out-dir",
+            message: format!("cannot make the folder {}: {e}", dir.display()),
+        })?;
+        for (k, (p, target)) in front.front.iter().zip(&targets).enumerate() {
+            let ids: Vec<exmesh::problem::LinkId> = p
+                .links
+                .iter()
+                .filter_map(|id| problem.link_id(id))
+                .collect();
+            let set = LinkSet::new(ids);
+            let file = FrontPlanFile {
+                network: &problem.settings.name,
+                point: k + 1,
+                cost: p.cost,
+                certified_rate: p.rate,
+                links: exmesh::plan::chosen_links(&problem, &set),
+            };
+            let mut bytes = Vec::new();
+            report::json::write(&file, &mut bytes)?;
+            files.add(target, bytes, "a plan of the front");
+        }
+    }
+    files.commit()?;
     emit(out, json, &front, |o| report::text::front(&front, o)).context("writing the front")?;
     let ok = front.structural_cost.is_some()
         && (max_cost.is_none() || front.best_within_budget.is_some());
