@@ -914,3 +914,78 @@ fn search_figures(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     )?;
     Ok(())
 }
+
+/// Writes the comparison of two link sets side by side.
+///
+/// # Errors
+/// Any I/O error of `out`.
+pub fn comparison(c: &crate::whatif::compare::Comparison, out: &mut impl Write) -> io::Result<()> {
+    use crate::analysis::Verdict;
+    writeln!(out, "Comparison of two link sets for {}", c.network)?;
+    writeln!(out, "  A: {}", c.a.plan_file)?;
+    writeln!(out, "  B: {}", c.b.plan_file)?;
+    writeln!(out)?;
+    writeln!(out, "only in A: {}", names_or_none(&c.only_in_a))?;
+    writeln!(out, "only in B: {}", names_or_none(&c.only_in_b))?;
+    writeln!(out, "in both:   {}", names_or_none(&c.in_both))?;
+    writeln!(out)?;
+    let verdict = |v: Verdict| match v {
+        Verdict::Converges => "converges",
+        Verdict::StructureFails => "FAILS: a source component is not excited",
+        Verdict::GainsFail => "FAILS: gain condition",
+        Verdict::NotCertified => "not certified",
+        Verdict::RateNotChecked => "condition holds (rate not checked)",
+    };
+    let rate = |r: Option<f64>| match (c.rates_checked, r) {
+        (false, _) => "skipped (--skip-rate)".to_string(),
+        (true, None) => "none".to_string(),
+        (true, Some(r)) => num::rate(r),
+    };
+    let components = |s: &crate::whatif::compare::Side| {
+        let bad = s.source_components.iter().filter(|x| !x.excited).count();
+        format!(
+            "{}{}",
+            s.source_components.len(),
+            if bad > 0 {
+                format!(" ({bad} not excited)")
+            } else {
+                String::new()
+            }
+        )
+    };
+    let rows: [(&str, String, String); 7] = [
+        (
+            "links",
+            c.a.links.len().to_string(),
+            c.b.links.len().to_string(),
+        ),
+        (
+            "cost",
+            num::cost(c.a.cost, Round::Nearest),
+            num::cost(c.b.cost, Round::Nearest),
+        ),
+        (
+            "verdict",
+            verdict(c.a.verdict).into(),
+            verdict(c.b.verdict).into(),
+        ),
+        ("certified rate", rate(c.a.rate), rate(c.b.rate)),
+        ("source components", components(&c.a), components(&c.b)),
+        (
+            "critical links",
+            names_or_none(&c.a.critical_links),
+            names_or_none(&c.b.critical_links),
+        ),
+        (
+            "critical units",
+            names_or_none(&c.a.critical_units),
+            names_or_none(&c.b.critical_units),
+        ),
+    ];
+    for (k, a, b) in rows {
+        writeln!(out, "{k}:")?;
+        writeln!(out, "  A: {a}")?;
+        writeln!(out, "  B: {b}")?;
+    }
+    cautions(out)
+}

@@ -5,5 +5,6 @@
 //! here is part of the planning engine.
 
 pub mod budget;
+pub mod compare;
 pub mod retire;
 pub mod stress;

@@ -441,3 +441,52 @@ fn front_points_are_plan_files() {
         assert!(text.stdout.contains("adds "), "{}", text.stdout);
     }
 }
+
+/// `compare` agrees with `check` and `stress` run on each plan alone, and
+/// splits the links into only-A, only-B and both.
+#[test]
+fn compare_agrees_with_check_and_stress() {
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    folder.write(
+        "other.json",
+        r#"{"links": [{"from": "a", "to": "b", "two_way": true}, {"from": "a", "to": "c", "two_way": false}]}"#,
+    );
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &[
+            "compare",
+            "problem.toml",
+            "plan.json",
+            "other.json",
+            "--json",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["only_in_a"], serde_json::json!(["b->c"]));
+    assert_eq!(v["only_in_b"], serde_json::json!(["a->c"]));
+    assert_eq!(v["in_both"], serde_json::json!(["a<->b"]));
+    for (side, file) in [("a", "plan.json"), ("b", "other.json")] {
+        let check = exmesh(dir, &["check", "problem.toml", "--plan", file, "--json"]);
+        let c: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
+        let stress = exmesh(dir, &["stress", "problem.toml", "--plan", file, "--json"]);
+        let s: serde_json::Value = serde_json::from_str(&stress.stdout).unwrap();
+        let got = &v[side];
+        assert_eq!(got["cost"], c["cost"], "{side}");
+        assert_eq!(got["verdict"], c["verdict"], "{side}");
+        assert_eq!(got["rate"], c["certificate"]["rate"], "{side}");
+        assert_eq!(got["source_components"], c["source_components"], "{side}");
+        assert_eq!(got["critical_links"], s["critical_links"], "{side}");
+        assert_eq!(got["critical_units"], s["critical_units"], "{side}");
+    }
+    let text = exmesh(dir, &["compare", "problem.toml", "plan.json", "other.json"]);
+    assert!(text.stdout.contains("only in A: b->c"), "{}", text.stdout);
+    let bad = exmesh(
+        dir,
+        &["compare", "problem.toml", "plan.json", "missing.json"],
+    );
+    assert_eq!(bad.code, 2);
+    assert!(bad.stderr.contains("missing.json"), "{}", bad.stderr);
+}

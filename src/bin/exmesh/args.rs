@@ -92,6 +92,21 @@ pub(crate) enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Two link sets side by side: links only in each, cost, verdict, certified rate, source components, critical links and units.
+    Compare {
+        /// Problem file (TOML).
+        problem: PathBuf,
+        /// The first link set (a plan file).
+        a: PathBuf,
+        /// The second link set (a plan file).
+        b: PathBuf,
+        /// Only the structural checks: skip the certified rates.
+        #[arg(long)]
+        skip_rate: bool,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Every single link failure and unit loss of a plan: does the condition hold, at what rate?
     Stress {
         /// Problem file (TOML).

@@ -196,6 +196,26 @@ pub(crate) fn budget(
     Ok(verdict(ok))
 }
 
+/// `compare`: two link sets side by side.
+pub(crate) fn compare(
+    out: &mut impl Write,
+    path: &Path,
+    plans: [&Path; 2],
+    skip_rate: bool,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let problem = problem::load(path)?;
+    let a = problem::read_link_set(&problem, plans[0])?;
+    let b = problem::read_link_set(&problem, plans[1])?;
+    let table = ExcitationTable::build(&problem);
+    let names = plans.map(|p| p.display().to_string());
+    let result =
+        whatif::compare::compare(&problem, &table, &a, &b, [&names[0], &names[1]], !skip_rate);
+    emit(out, json, &result, |o| report::text::comparison(&result, o))
+        .context("writing the comparison")?;
+    Ok(ExitCode::SUCCESS)
+}
+
 /// `stress`: every single failure of a plan.
 pub(crate) fn stress(
     out: &mut impl Write,

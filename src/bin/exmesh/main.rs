@@ -66,6 +66,13 @@ fn run(command: Command) -> anyhow::Result<ExitCode> {
             time_limit,
             json,
         ),
+        Command::Compare {
+            problem,
+            a,
+            b,
+            skip_rate,
+            json,
+        } => c::compare(out, &problem, [&a, &b], skip_rate, json),
         Command::Stress {
             problem,
             plan,
