@@ -196,6 +196,7 @@ fn bench_link(nodes: &[Node], a: usize, b: usize, d: f64) -> Link {
         cost: (500.0 + 300.0 * d).round(),
         weight: 1.0,
         installed: false,
+        required: false,
         generated: true,
     }
 }

@@ -370,8 +370,14 @@ impl<'a> Instance<'a> {
             .iter()
             .map(|l| PlanLink {
                 arcs: l.arcs().map(|a| (a.from.0, a.to.0)).collect(),
-                cost: if l.installed { 0.0 } else { l.cost },
-                installed: l.installed,
+                // A required link is forced in like an installed one; its
+                // cost is a constant the structural stage adds back.
+                cost: if l.installed || l.required {
+                    0.0
+                } else {
+                    l.cost
+                },
+                installed: l.installed || l.required,
                 weight: l.weight,
             })
             .collect();

@@ -304,7 +304,7 @@ fn prune(
         .ids()
         .iter()
         .copied()
-        .filter(|&l| !problem.link(l).installed)
+        .filter(|&l| !problem.link(l).installed && !problem.link(l).required)
         .collect();
     order.sort_by(|&a, &b| {
         problem

@@ -36,6 +36,9 @@ pub(crate) struct Found<'a> {
     pub status: PlanStatus,
     pub search: bnc::SearchStats,
     pub greedy_cost: f64,
+    /// Cost of the required links (in the cost and the bound, not in the
+    /// instance).
+    pub fixed: f64,
     pub greedy_time: Duration,
     pub search_time: Duration,
     pub deadline: Option<Instant>,
@@ -54,8 +57,10 @@ impl Found<'_> {
     /// stage's time.
     pub fn figures(&self, rate_time: Duration) -> (PlanStats, Timings) {
         let s = &self.search;
+        let mut figures = stats(&self.inst, Some(s), self.greedy_cost);
+        figures.root_lp_bound += self.fixed;
         (
-            stats(&self.inst, Some(s), self.greedy_cost),
+            figures,
             Timings {
                 greedy: self.greedy_time,
                 search: self.search_time,
@@ -157,7 +162,7 @@ pub(crate) fn run<'a>(
     } else {
         greedy
     };
-    let greedy_cost = inst.cost(&greedy);
+    let greedy_cost = inst.cost(&greedy) + required_cost(problem);
     let greedy_time = started.elapsed();
     let neighbourhood = inst.n >= lns::MIN_UNITS && options.survive == Survive::Nothing;
     let limits = bnc::Limits {
@@ -193,8 +198,11 @@ pub(crate) fn run<'a>(
             .max(Duration::from_millis(300))
     });
     let best = heuristics::reverse_delete_until(&inst, &result.best, cleanup);
-    let cost = inst.cost(&best);
-    let lower = result.lower_bound.min(cost);
+    // Required links are forced in at cost 0 in the instance: their costs
+    // are a constant of every plan, added to the cost and the bound.
+    let fixed = required_cost(problem);
+    let cost = inst.cost(&best) + fixed;
+    let lower = (result.lower_bound + fixed).min(cost);
     let gap = if cost > 0.0 {
         ((cost - lower) / cost).max(0.0)
     } else {
@@ -223,10 +231,21 @@ pub(crate) fn run<'a>(
         status,
         search: result.stats,
         greedy_cost,
+        fixed,
         greedy_time,
         search_time,
         deadline,
     }))
+}
+
+/// Total cost of the links marked `required` (in every plan).
+pub(crate) fn required_cost(problem: &Problem) -> f64 {
+    problem
+        .links
+        .iter()
+        .filter(|l| l.required)
+        .map(|l| l.cost)
+        .sum()
 }
 
 fn stats(inst: &Instance, s: Option<&bnc::SearchStats>, greedy_cost: f64) -> PlanStats {
@@ -304,9 +323,9 @@ fn caps_infeasible(
         .collect();
     let remedy = if installed {
         format!(
-            "the installed links alone exceed the in-degree limit of the gain condition \
-             (δ·d_i + γ_d·s_i/2 ≤ 1) at some unit; tightest limits: {}. Lower jump_coupling \
-             or jump_gain, or lighten the installed links' weights",
+            "the installed and required links alone exceed the in-degree limit of the gain \
+             condition (δ·d_i + γ_d·s_i/2 ≤ 1) at some unit; tightest limits: {}. Lower \
+             jump_coupling or jump_gain, lighten these links' weights, or require fewer links",
             names.join(", ")
         )
     } else {

@@ -51,6 +51,8 @@ pub struct ChosenLink {
     pub cost: f64,
     /// Already in place.
     pub installed: bool,
+    /// Marked `required` in the problem (in every plan, at its cost).
+    pub required: bool,
 }
 
 /// A group of units that no candidate set can excite, and what would help.
@@ -248,6 +250,7 @@ pub fn chosen_links(problem: &Problem, set: &LinkSet) -> Vec<ChosenLink> {
                 two_way,
                 cost: if link.installed { 0.0 } else { link.cost },
                 installed: link.installed,
+                required: link.required,
             }
         })
         .collect()

@@ -115,6 +115,8 @@ pub struct Link {
     pub weight: f64,
     /// Already in place.
     pub installed: bool,
+    /// Must be in every plan, at its cost (`required = true`).
+    pub required: bool,
     /// Made by the `[candidates]` rule rather than written out.
     pub generated: bool,
 }
@@ -840,6 +842,7 @@ impl Validator<'_> {
                         cost: fixed + per_km * dist,
                         weight: gains.link_weight,
                         installed: false,
+                        required: false,
                         generated: true,
                     });
                 }
@@ -921,12 +924,20 @@ impl Validator<'_> {
             }
             None => default_id,
         };
+        let required = l.required.as_ref().is_some_and(|r| *r.get_ref());
+        if let (Some(at), true) = (&l.required, l.installed && required) {
+            return Err(self.err(
+                at,
+                "a link cannot be both `installed` (in place, costs 0) and `required` (to be built, at its cost); expected one of them",
+            ));
+        }
         Ok(Link {
             id,
             ends,
             cost,
             weight,
             installed: l.installed,
+            required,
             generated: false,
         })
     }

@@ -59,6 +59,7 @@ pub(super) struct RawLink {
     pub weight: Option<Spanned<f64>>,
     #[serde(default)]
     pub installed: bool,
+    pub required: Option<Spanned<bool>>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -120,6 +120,9 @@ impl Problem {
             if l.installed {
                 let _ = writeln!(out, "installed = true");
             }
+            if l.required {
+                let _ = writeln!(out, "required = true");
+            }
             if l.weight != g.link_weight {
                 let _ = writeln!(out, "weight = {}", float(l.weight));
             }

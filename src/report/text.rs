@@ -764,7 +764,13 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
     let width = ends.iter().map(|e| e.chars().count()).max().unwrap_or(4);
     writeln!(out, "{}:", num::count(p.links.len(), "link", "links"))?;
     for (l, e) in p.links.iter().zip(&ends) {
-        let note = if l.installed { "  (installed)" } else { "" };
+        let note = if l.installed {
+            "  (installed)"
+        } else if l.required {
+            "  (required)"
+        } else {
+            ""
+        };
         writeln!(
             out,
             "  {e:<width$}  {:>10}{note}",

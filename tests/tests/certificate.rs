@@ -59,6 +59,7 @@ pub fn network(
             cost: 1.0,
             weight: 1.0,
             installed: false,
+            required: false,
             generated: false,
         })
         .collect();

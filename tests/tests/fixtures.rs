@@ -227,6 +227,7 @@ pub fn synthetic(
             cost,
             weight: 1.0,
             installed: false,
+            required: false,
             generated: false,
         })
         .collect();

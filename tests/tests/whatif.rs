@@ -381,8 +381,8 @@ fn a_written_problem_loads_back_the_same() {
         assert_eq!(back.links.len(), original.links.len());
         for (a, b) in back.links.iter().zip(&original.links) {
             assert_eq!(
-                (&a.id, a.ends, a.cost, a.weight, a.installed),
-                (&b.id, b.ends, b.cost, b.weight, b.installed),
+                (&a.id, a.ends, a.cost, a.weight, a.installed, a.required),
+                (&b.id, b.ends, b.cost, b.weight, b.installed, b.required),
                 "{demo}"
             );
         }
