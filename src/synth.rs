@@ -280,6 +280,7 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
             log: signal.log(p, &theta, PathBuf::from(format!("{id}.csv"))),
             id,
             position: Some(pos),
+            lat_lon: None,
         });
         classes.push(class);
     }

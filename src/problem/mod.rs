@@ -84,8 +84,61 @@ pub struct Node {
     pub id: String,
     /// Its validated regressor log.
     pub log: Log,
-    /// Position in km, when given.
+    /// Position in km, when given (with `lat_lon`: the projection used for
+    /// drawing, see [`project`]).
     pub position: Option<[f64; 2]>,
+    /// Latitude and longitude in degrees, when given instead of a position.
+    pub lat_lon: Option<[f64; 2]>,
+}
+
+/// Mean Earth radius in km: the IUGG mean radius R₁ = (2a + b)/3 of the
+/// GRS 80 ellipsoid, 6371.0088 km (Moritz, "Geodetic Reference System
+/// 1980", Journal of Geodesy 74, 2000; value and reference from memory).
+pub const EARTH_RADIUS_KM: f64 = 6371.0088;
+
+/// Great-circle distance in km between two `[latitude, longitude]` points
+/// in degrees on a sphere of `radius` km, by the haversine formula
+/// (Sinnott, "Virtues of the Haversine", Sky and Telescope 68(2), 1984;
+/// reference from memory):
+/// with h = sin²(Δφ/2) + cos φ₁ cos φ₂ sin²(Δλ/2), d = 2R·atan2(√h, √(1−h))
+/// (= 2R·asin √h).
+pub fn haversine_km(a: [f64; 2], b: [f64; 2], radius: f64) -> f64 {
+    let (p1, p2) = (a[0].to_radians(), b[0].to_radians());
+    let (dp, dl) = ((b[0] - a[0]).to_radians(), (b[1] - a[1]).to_radians());
+    let h = (dp / 2.0).sin().powi(2) + p1.cos() * p2.cos() * (dl / 2.0).sin().powi(2);
+    // atan2 rather than asin: accurate near antipodes too.
+    let h = h.clamp(0.0, 1.0);
+    2.0 * radius * h.sqrt().atan2((1.0 - h).sqrt())
+}
+
+/// Positions in km for drawing, from `[latitude, longitude]` points: the
+/// equirectangular projection about their mean latitude and longitude
+/// (x east, y north). Distances used for planning are great-circle ones.
+pub fn project(points: &[[f64; 2]]) -> Vec<[f64; 2]> {
+    let n = points.len().max(1) as f64;
+    let lat0 = points.iter().map(|p| p[0]).sum::<f64>() / n;
+    let lon0 = points.iter().map(|p| p[1]).sum::<f64>() / n;
+    points
+        .iter()
+        .map(|p| {
+            [
+                EARTH_RADIUS_KM * (p[1] - lon0).to_radians() * lat0.to_radians().cos(),
+                EARTH_RADIUS_KM * (p[0] - lat0).to_radians(),
+            ]
+        })
+        .collect()
+}
+
+impl Node {
+    /// Distance in km to `other`: great-circle when both have `lat_lon`,
+    /// else straight-line between positions; `None` without positions.
+    pub fn distance_km(&self, other: &Node) -> Option<f64> {
+        match (self.lat_lon, other.lat_lon, self.position, other.position) {
+            (Some(a), Some(b), _, _) => Some(haversine_km(a, b, EARTH_RADIUS_KM)),
+            (_, _, Some(a), Some(b)) => Some((a[0] - b[0]).hypot(a[1] - b[1])),
+            _ => None,
+        }
+    }
 }
 
 /// The ends of a link.
@@ -737,7 +790,50 @@ impl Validator<'_> {
                     }
                 },
             };
-            positions.push(position);
+            let lat_lon = match &node.lat_lon {
+                None => None,
+                Some(at) => match at.get_ref().as_slice() {
+                    &[lat, lon] if lat.abs() <= 90.0 && lon.abs() <= 180.0 => Some([lat, lon]),
+                    _ => {
+                        return Err(self.err(
+                            at,
+                            "lat_lon: expected two numbers [latitude, longitude] in degrees, \
+                             latitude from -90 to 90 and longitude from -180 to 180",
+                        ));
+                    }
+                },
+            };
+            if let (Some(_), Some(at)) = (&node.position, &node.lat_lon) {
+                return Err(self.err(
+                    at,
+                    "a unit has either `position` (km) or `lat_lon` (degrees), not both",
+                ));
+            }
+            positions.push((position, lat_lon));
+        }
+        // One kind of position for the whole network.
+        let geo = positions.iter().filter(|p| p.1.is_some()).count();
+        let flat = positions.iter().filter(|p| p.0.is_some()).count();
+        if geo > 0 && flat > 0 {
+            let odd = raw_nodes
+                .iter()
+                .find(|n| n.position.is_some())
+                .and_then(|n| n.position.as_ref());
+            if let Some(at) = odd {
+                return Err(self.err(
+                    at,
+                    "some units give `lat_lon` and others `position`; expected one kind for the whole network",
+                ));
+            }
+        }
+        if geo > 0 {
+            let points: Vec<[f64; 2]> = positions.iter().filter_map(|p| p.1).collect();
+            let mut projected = project(&points).into_iter();
+            for p in &mut positions {
+                if p.1.is_some() {
+                    p.0 = projected.next();
+                }
+            }
         }
         let base = self.path.parent().unwrap_or(Path::new(""));
         let logs: Vec<Result<Log, InputError>> = raw_nodes
@@ -760,11 +856,12 @@ impl Validator<'_> {
             })
             .collect();
         let mut nodes = Vec::with_capacity(logs.len());
-        for ((node, log), position) in raw_nodes.iter().zip(logs).zip(positions) {
+        for ((node, log), (position, lat_lon)) in raw_nodes.iter().zip(logs).zip(positions) {
             nodes.push(Node {
                 id: node.id.get_ref().clone(),
                 log: log?,
                 position,
+                lat_lon,
             });
         }
 
@@ -820,14 +917,13 @@ impl Validator<'_> {
                 ));
             }
             if nodes.iter().all(|n| n.position.is_none()) {
-                return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` on the [[node]] entries"));
+                return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` (km) or `lat_lon = [latitude, longitude]` (degrees) on the [[node]] entries"));
             }
             for a in 0..nodes.len() {
                 for b in a + 1..nodes.len() {
-                    let (Some(pa), Some(pb)) = (nodes[a].position, nodes[b].position) else {
+                    let Some(dist) = nodes[a].distance_km(&nodes[b]) else {
                         continue;
                     };
-                    let dist = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
                     if dist > range {
                         continue;
                     }
@@ -940,5 +1036,47 @@ impl Validator<'_> {
             required,
             generated: false,
         })
+    }
+}
+
+#[cfg(test)]
+mod geo_tests {
+    use super::*;
+    use std::f64::consts::PI;
+
+    /// Rosetta Code, task "Haversine formula" (a published worked example):
+    /// from (36.12, -86.67) to (33.94, -118.40) the distance is
+    /// 2886.44444283798… km on a sphere of radius 6371.0 km and
+    /// 2887.25995060711… km at 6372.8 km.
+    #[test]
+    fn published_worked_example() {
+        let (a, b) = ([36.12, -86.67], [33.94, -118.40]);
+        assert!((haversine_km(a, b, 6371.0) - 2886.444_442_837_98).abs() < 1e-6);
+        assert!((haversine_km(a, b, 6372.8) - 2887.259_950_607_11).abs() < 1e-6);
+    }
+
+    /// Closed forms on a sphere: a quarter meridian is πR/2, one degree of
+    /// the equator πR/180, antipodes πR, a point to itself 0.
+    #[test]
+    fn closed_forms() {
+        let r = EARTH_RADIUS_KM;
+        assert!((haversine_km([0.0, 0.0], [90.0, 0.0], r) - PI * r / 2.0).abs() < 1e-9);
+        assert!((haversine_km([0.0, 10.0], [0.0, 11.0], r) - PI * r / 180.0).abs() < 1e-9);
+        // Antipodes: h rounds to 1 within 1e-16, so a metre of slack.
+        assert!((haversine_km([10.0, 20.0], [-10.0, -160.0], r) - PI * r).abs() < 1e-3);
+        assert_eq!(haversine_km([45.0, 7.0], [45.0, 7.0], r), 0.0);
+    }
+
+    /// The drawing projection keeps short north–south and east–west
+    /// distances at the mean latitude (within 0.1 % over a few km).
+    #[test]
+    fn projection_keeps_short_distances() {
+        let pts = [[60.0, 10.0], [60.02, 10.0], [60.0, 10.05]];
+        let xy = project(&pts);
+        for (i, j) in [(0, 1), (0, 2)] {
+            let flat = (xy[i][0] - xy[j][0]).hypot(xy[i][1] - xy[j][1]);
+            let sphere = haversine_km(pts[i], pts[j], EARTH_RADIUS_KM);
+            assert!((flat - sphere).abs() < 1e-3 * sphere, "{flat} {sphere}");
+        }
     }
 }

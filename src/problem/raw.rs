@@ -46,6 +46,7 @@ pub(super) struct RawNode {
     pub id: Spanned<String>,
     pub log: Spanned<String>,
     pub position: Option<Spanned<Vec<f64>>>,
+    pub lat_lon: Option<Spanned<Vec<f64>>>,
 }
 
 #[derive(Debug, Deserialize)]

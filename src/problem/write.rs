@@ -95,8 +95,14 @@ impl Problem {
             let _ = writeln!(out, "id = {}", quoted(&v.id));
             let log = relative_to(&v.log.path, folder);
             let _ = writeln!(out, "log = {}", quoted(&log.to_string_lossy()));
-            if let Some([x, y]) = v.position {
-                let _ = writeln!(out, "position = [{}, {}]", float(x), float(y));
+            match (v.lat_lon, v.position) {
+                (Some([lat, lon]), _) => {
+                    let _ = writeln!(out, "lat_lon = [{}, {}]", float(lat), float(lon));
+                }
+                (None, Some([x, y])) => {
+                    let _ = writeln!(out, "position = [{}, {}]", float(x), float(y));
+                }
+                (None, None) => {}
             }
         }
         for l in &self.links {

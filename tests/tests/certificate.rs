@@ -48,6 +48,7 @@ pub fn network(
             id: format!("u{i}"),
             log,
             position: None,
+            lat_lon: None,
         })
         .collect();
     let links = edges

@@ -381,6 +381,57 @@ fn generated_candidates_follow_positions() {
     assert_eq!(v["cost"], 220.0);
 }
 
+/// Positions as latitude/longitude: three units on the equator at
+/// longitudes 0°, 0.01° and 0.02°; one hundredth of a degree of the
+/// equator is πR/18000 = 1.1119… km for R = 6371.0088 km (closed form), so
+/// with a 1.5 km range a–b and b–c are candidates and a–c (2.2239 km) is
+/// not, each costing 100 + 10·1.1119…. Mixed kinds and out-of-range
+/// degrees exit 2 at their line.
+#[test]
+fn candidates_follow_latitude_and_longitude() {
+    let folder = Folder::new();
+    folder.write("logs/a.csv", &constant_log(&[1.0]));
+    folder.write("logs/b.csv", &constant_log(&[0.0]));
+    folder.write("logs/c.csv", &constant_log(&[0.0]));
+    let text = "[network]\nparameters = 1\nwindow = 2.0\n[candidates]\nrange = 1.5\nfixed_cost = 100.0\ncost_per_km = 10.0\n\
+         [[node]]\nid = \"a\"\nlog = \"logs/a.csv\"\nlat_lon = [0.0, 0.0]\n\
+         [[node]]\nid = \"b\"\nlog = \"logs/b.csv\"\nlat_lon = [0.0, 0.01]\n\
+         [[node]]\nid = \"c\"\nlog = \"logs/c.csv\"\nlat_lon = [0.0, 0.02]\n";
+    folder.write("problem.toml", text);
+    let run = exmesh(
+        folder.dir.path(),
+        &["check", "problem.toml", "--all", "--json"],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert_eq!(v["links"], serde_json::json!(["a<->b", "b<->c"]));
+    let km = std::f64::consts::PI * 6371.0088 / 18000.0;
+    let cost = v["cost"].as_f64().unwrap();
+    assert!((cost - 2.0 * (100.0 + 10.0 * km)).abs() < 1e-6, "{cost}");
+    for (from, to, words) in [
+        (
+            "lat_lon = [0.0, 0.02]",
+            "position = [0.0, 2.0]",
+            "one kind for the whole network",
+        ),
+        (
+            "lat_lon = [0.0, 0.02]",
+            "lat_lon = [91.0, 0.02]",
+            "latitude from -90 to 90",
+        ),
+    ] {
+        let line = line_of(text, from);
+        folder.write("problem.toml", &text.replace(from, to));
+        let bad = exmesh(folder.dir.path(), &["check", "problem.toml", "--all"]);
+        assert_eq!(bad.code, 2, "{}", bad.stderr);
+        assert!(
+            bad.stderr.contains(&format!("problem.toml:{line}:")) && bad.stderr.contains(words),
+            "{}",
+            bad.stderr
+        );
+    }
+}
+
 #[test]
 fn both_demos_run() {
     let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));

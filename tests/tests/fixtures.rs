@@ -201,6 +201,7 @@ pub fn synthetic(
         .map(|i| Node {
             id: format!("n{i}"),
             position: None,
+            lat_lon: None,
             log: Log {
                 path: PathBuf::from(format!("n{i}.csv")),
                 p,
