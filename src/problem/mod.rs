@@ -1051,8 +1051,8 @@ mod geo_tests {
     #[test]
     fn published_worked_example() {
         let (a, b) = ([36.12, -86.67], [33.94, -118.40]);
-        assert!((haversine_km(a, b, 6371.0) - 2886.444_442_837_98).abs() < 1e-6);
-        assert!((haversine_km(a, b, 6372.8) - 2887.259_950_607_11).abs() < 1e-6);
+        assert!((haversine_km(a, b, 6371.0) - 2_886.444_442_837_98).abs() < 1e-6);
+        assert!((haversine_km(a, b, 6372.8) - 2_887.259_950_607_11).abs() < 1e-6);
     }
 
     /// Closed forms on a sphere: a quarter meridian is πR/2, one degree of
