@@ -28,9 +28,13 @@ use crate::problem::{LinkSet, Problem};
 use std::time::Instant;
 use structural::Structural;
 pub use types::{
-    ChosenLink, Options, Plan, PlanStats, PlanStatus, RatePlan, Robustness, Shortfall, Survive,
-    Timings, chosen_links,
+    ChosenLink, LinkRole, Options, Plan, PlanStats, PlanStatus, RatePlan, Robustness, Shortfall,
+    Survive, Timings, chosen_links,
 };
+
+/// Plans of at most this many links get a reason per link (one check of
+/// the plan without each link).
+pub const EXPLAIN_LINKS: usize = 400;
 
 /// Plans the cheapest link set for which every source component is excited.
 ///
@@ -84,8 +88,126 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
         let gains = crate::certify::gain_checks(problem, &result.link_set(problem));
         result.gains_ok = Some(gains.iter().all(|g| g.ok));
         result.gains = gains;
+        explain(problem, table, &mut result);
     }
     result
+}
+
+/// Fills each chosen link's `role` and `reason` (see [`link_reasons`]).
+fn explain(problem: &Problem, table: &ExcitationTable, plan: &mut Plan) {
+    if plan.links.len() > EXPLAIN_LINKS {
+        return;
+    }
+    let set = plan.link_set(problem);
+    let why = Why {
+        rate_added: plan
+            .rate
+            .as_ref()
+            .map(|r| r.added_links.clone())
+            .unwrap_or_default(),
+        rate_stage: plan.rate.is_some(),
+        survival: plan.robustness.is_some(),
+    };
+    let reasons = link_reasons(problem, table, &set, &why);
+    for (c, (role, reason)) in plan.links.iter_mut().zip(reasons) {
+        c.role = Some(role);
+        c.reason = Some(reason);
+    }
+}
+
+/// What a plan knows about why it has its links beyond the condition.
+#[derive(Debug, Clone, Default)]
+pub struct Why {
+    /// Ids of the links the rate stage added.
+    pub rate_added: Vec<String>,
+    /// The plan came through a rate stage.
+    pub rate_stage: bool,
+    /// The plan meets a survival requirement.
+    pub survival: bool,
+}
+
+/// Why `set` has each of its links (in the set's order): installed or
+/// required links say so; otherwise the set without the link is checked,
+/// and the source component it would leave unexcited is named with its
+/// level and weakest direction; a link the condition does not need is there
+/// for the target rate or for survival, as `why` says.
+///
+/// # Complexity
+/// One structural check per link (in parallel).
+pub fn link_reasons(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &LinkSet,
+    why: &Why,
+) -> Vec<(LinkRole, String)> {
+    use crate::report::number as num;
+    use rayon::prelude::*;
+    let ids: Vec<crate::problem::LinkId> = set.ids().to_vec();
+    let mu = table.min_excitation();
+    ids.par_iter()
+        .map(|&l| {
+            let link = problem.link(l);
+            if link.installed {
+                return (LinkRole::Installed, "in place already (costs 0)".to_string());
+            }
+            if link.required {
+                return (
+                    LinkRole::Required,
+                    "marked required in the problem file".to_string(),
+                );
+            }
+            let rest = LinkSet::new(ids.iter().copied().filter(|&k| k != l).collect());
+            let check = analysis::check(problem, table, &rest);
+            let broken: Vec<&analysis::SourceComponent> = check
+                .source_components
+                .iter()
+                .filter(|c| !c.excited)
+                .collect();
+            if let Some(c) = broken.first() {
+                let more = if broken.len() > 1 {
+                    format!(" (and {} more such groups)", broken.len() - 1)
+                } else {
+                    String::new()
+                };
+                return (
+                    LinkRole::Structure,
+                    format!(
+                        "without it {} would be a source component that is not excited: level {} < {} along [{}]{more}",
+                        c.nodes.join(", "),
+                        num::level_vs(c.excitation, mu),
+                        num::level(mu),
+                        c.weakest_direction
+                            .iter()
+                            .map(|x| num::fixed(*x, 3, num::Round::Nearest))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                );
+            }
+            if why.rate_added.contains(&link.id) {
+                return (
+                    LinkRole::Rate,
+                    "for the target rate: the condition holds without it".to_string(),
+                );
+            }
+            if why.survival {
+                return (
+                    LinkRole::Survival,
+                    "for survival: the condition holds without it, but not after every single failure".to_string(),
+                );
+            }
+            if why.rate_stage {
+                return (
+                    LinkRole::Rate,
+                    "for the target rate (a plan at a raised required excitation): the condition holds without it".to_string(),
+                );
+            }
+            (
+                LinkRole::Structure,
+                "the condition holds without it (not needed for the structure)".to_string(),
+            )
+        })
+        .collect()
 }
 
 /// Share of the time limit for the robust plan when `--survive` asks for

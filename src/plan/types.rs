@@ -53,6 +53,30 @@ pub struct ChosenLink {
     pub installed: bool,
     /// Marked `required` in the problem (in every plan, at its cost).
     pub required: bool,
+    /// Why the plan has this link (plans of at most
+    /// [`super::EXPLAIN_LINKS`] links; absent elsewhere).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub role: Option<LinkRole>,
+    /// The reason in words (with `role`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
+}
+
+/// Why a plan has a link.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LinkRole {
+    /// Already in place (free).
+    Installed,
+    /// Marked `required` in the problem.
+    Required,
+    /// Without it some source component is not excited.
+    Structure,
+    /// Added by the rate stage: the condition holds without it, the target
+    /// rate needs it.
+    Rate,
+    /// The condition holds without it, the survival requirement needs it.
+    Survival,
 }
 
 /// A group of units that no candidate set can excite, and what would help.
@@ -251,6 +275,8 @@ pub fn chosen_links(problem: &Problem, set: &LinkSet) -> Vec<ChosenLink> {
                 cost: if link.installed { 0.0 } else { link.cost },
                 installed: link.installed,
                 required: link.required,
+                role: None,
+                reason: None,
             }
         })
         .collect()

@@ -25,6 +25,9 @@ pub struct ReportInput<'a> {
     pub facts: PlanFacts,
     /// The command and the plan file.
     pub provenance: Provenance,
+    /// Why the set has each link, in the set's order (empty strings for
+    /// sets larger than [`crate::plan::EXPLAIN_LINKS`]).
+    pub reasons: Vec<String>,
     /// The map (SVG).
     pub map_svg: String,
     /// The simulation and its figure, when it could run.
@@ -118,6 +121,22 @@ pub fn assemble(
         check: &check,
         facts,
         provenance,
+        reasons: if set.ids().len() <= crate::plan::EXPLAIN_LINKS {
+            crate::plan::link_reasons(
+                problem,
+                table,
+                set,
+                &crate::plan::Why {
+                    rate_stage: problem.settings.target_rate.is_some(),
+                    ..Default::default()
+                },
+            )
+            .into_iter()
+            .map(|(_, r)| r)
+            .collect()
+        } else {
+            vec![String::new(); set.ids().len()]
+        },
         map_svg: super::map::svg(&scene),
         simulation,
         front,
@@ -307,9 +326,9 @@ fn links(h: &mut String, r: &ReportInput) {
     let p = r.problem;
     let _ = writeln!(
         h,
-        "<h2>Chosen links</h2>\n<table>\n<tr><th>link</th><th>from</th><th>to</th><th>kind</th><th>cost</th><th>state</th></tr>"
+        "<h2>Chosen links</h2>\n<table>\n<tr><th>link</th><th>from</th><th>to</th><th>kind</th><th>cost</th><th>state</th><th>why</th></tr>"
     );
-    for &l in r.set.ids() {
+    for (&l, why) in r.set.ids().iter().zip(&r.reasons) {
         let link = p.link(l);
         let (a, b, kind) = match link.ends {
             crate::problem::Ends::TwoWay(a, b) => (a, b, "two-way"),
@@ -317,12 +336,13 @@ fn links(h: &mut String, r: &ReportInput) {
         };
         let _ = writeln!(
             h,
-            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{kind}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+            "<tr><td>{}</td><td>{}</td><td>{}</td><td>{kind}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td></tr>",
             escape(&link.id),
             escape(p.node_name(a)),
             escape(p.node_name(b)),
             num::cost(if link.installed { 0.0 } else { link.cost }, Round::Nearest),
-            if link.installed { "installed" } else { "new" }
+            if link.installed { "installed" } else { "new" },
+            escape(why)
         );
     }
     let _ = writeln!(*h, "</table>");

@@ -776,6 +776,12 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             "  {e:<width$}  {:>10}{note}",
             num::cost(l.cost, Round::Nearest)
         )?;
+        if let Some(why) = &l.reason
+            && !l.installed
+            && !l.required
+        {
+            writeln!(out, "      why: {why}")?;
+        }
     }
     writeln!(out)?;
     for (k, sc) in p.source_components.iter().enumerate() {

@@ -269,3 +269,69 @@ fn the_log_that_shortens_the_horizon_is_named() {
         text.stdout
     );
 }
+
+/// Why each link: on the demo's plan every link has a role; for each
+/// `structure` link, `check` of the plan without it (an independent run of
+/// the binary) finds the source component the reason names not excited.
+#[test]
+fn every_link_says_why() {
+    let run = exmesh(root(), &["plan", PLATEAU, "--json"]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let links = v["links"].as_array().unwrap();
+    let folder = Folder::new();
+    let mut structural = 0;
+    for l in links {
+        let role = l["role"].as_str().expect("role");
+        let reason = l["reason"].as_str().expect("reason");
+        match role {
+            "installed" => assert_eq!(l["installed"], true),
+            "structure" => {
+                structural += 1;
+                let rest: Vec<&serde_json::Value> =
+                    links.iter().filter(|k| k["id"] != l["id"]).collect();
+                let file = folder.write(
+                    "without.json",
+                    &serde_json::json!({ "links": rest }).to_string(),
+                );
+                let check = exmesh(
+                    root(),
+                    &[
+                        "check",
+                        PLATEAU,
+                        "--plan",
+                        file.to_str().unwrap(),
+                        "--json",
+                        "--skip-rate",
+                    ],
+                );
+                let c: serde_json::Value = serde_json::from_str(&check.stdout).unwrap();
+                let bad: Vec<String> = c["source_components"]
+                    .as_array()
+                    .unwrap()
+                    .iter()
+                    .filter(|s| s["excited"] == false)
+                    .map(|s| {
+                        s["nodes"]
+                            .as_array()
+                            .unwrap()
+                            .iter()
+                            .map(|n| n.as_str().unwrap())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    })
+                    .collect();
+                assert!(!bad.is_empty(), "{}: not needed?", l["id"]);
+                assert!(
+                    reason.contains(&format!("without it {} would be", bad[0])),
+                    "{}: {reason} vs {bad:?}",
+                    l["id"]
+                );
+            }
+            other => assert!(["rate", "required", "survival"].contains(&other), "{other}"),
+        }
+    }
+    assert!(structural > 0);
+    let text = exmesh(root(), &["plan", PLATEAU]);
+    assert!(text.stdout.contains("why: without it"), "{}", text.stdout);
+}
