@@ -118,7 +118,10 @@ pub(crate) fn run<'a>(
         let shortfalls = if plain.is_empty() {
             failure_shortfalls(problem, table, &inst.failures(&all, false))
         } else {
-            plain.iter().map(|c| shortfall(problem, table, c)).collect()
+            plain
+                .iter()
+                .map(|c| shortfall(problem, table, c, &plain))
+                .collect()
         };
         let check = analysis::check(problem, table, &problem.all_links());
         return Structural::Done(Box::new(infeasible(
@@ -282,7 +285,7 @@ fn failure_shortfalls(
             continue;
         }
         seen.push(set);
-        let mut s = shortfall(problem, table, set);
+        let mut s = shortfall(problem, table, set, &[]);
         s.remedy = match *failure {
             Failure::Link(k) => format!(
                 "if link {} fails, no other candidate link enters this group: add a second candidate link into it",
@@ -389,7 +392,14 @@ fn infeasible(
     }
 }
 
-fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfall {
+/// `groups`: every group that even all candidates leave unexcited (a link
+/// from one of them helps only when the two together are excited).
+fn shortfall(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &[u32],
+    groups: &[Vec<u32>],
+) -> Shortfall {
     let nodes: Vec<crate::problem::NodeId> =
         set.iter().map(|&v| crate::problem::NodeId(v)).collect();
     let level = table.level(&nodes);
@@ -397,35 +407,80 @@ fn shortfall(problem: &Problem, table: &ExcitationTable, set: &[u32]) -> Shortfa
         .iter()
         .map(|&v| problem.node_name(v).to_string())
         .collect();
-    // The nearest unit outside the group, when positions are known.
-    let nearest = nodes
+    let mu = table.min_excitation();
+    let dir: Vec<String> = level
+        .direction
         .iter()
-        .filter_map(|&v| problem.nodes[v.index()].position.map(|p| (v, p)))
-        .flat_map(|(_, p)| {
-            problem
-                .nodes
+        .map(|x| crate::report::number::fixed(*x, 3, crate::report::number::Round::Nearest))
+        .collect();
+    let dir = format!("[{}]", dir.join(", "));
+    // Units whose link into the group fixes it: a unit outside every
+    // unexcited group (its sources are excited, so the group stops being a
+    // source), or a unit of another unexcited group when the two together
+    // are excited (a two-way link merges them). Nearest first when
+    // positions are known.
+    let all: Vec<crate::problem::NodeId> = (0..problem.n() as u32)
+        .map(crate::problem::NodeId)
+        .collect();
+    let anywhere = table.level(&all).value >= mu;
+    let group_of = |k: u32| groups.iter().find(|g| g.contains(&k));
+    let mut carriers: Vec<(f64, bool, usize)> = (0..problem.n())
+        .filter(|k| !set.contains(&(*k as u32)))
+        .filter_map(|k| {
+            let merge = match group_of(k as u32) {
+                None => false,
+                Some(other) => {
+                    let mut joined = nodes.clone();
+                    joined.extend(other.iter().map(|&v| crate::problem::NodeId(v)));
+                    if table.level(&joined).value < mu {
+                        return None;
+                    }
+                    true
+                }
+            };
+            let d = nodes
                 .iter()
-                .enumerate()
-                .filter(|(k, n)| !set.contains(&(*k as u32)) && n.position.is_some())
-                .map(move |(k, n)| {
-                    let q = n.position.unwrap_or_default();
-                    ((p[0] - q[0]).hypot(p[1] - q[1]), k)
-                })
+                .filter_map(|&v| problem.nodes[v.index()].distance_km(&problem.nodes[k]))
+                .min_by(f64::total_cmp)
+                .unwrap_or(f64::INFINITY);
+            Some((d, merge, k))
         })
-        .min_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-    let link_hint = match nearest {
-        Some((d, k)) => format!(
-            "add a candidate link into it, e.g. from {} ({d:.2} km away)",
-            problem.nodes[k].id
-        ),
-        None => "add a candidate link into it from a unit outside it".to_string(),
+        .collect();
+    carriers.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+    let remedy = if !anywhere {
+        format!(
+            "no unit in the network excites the direction {dir} enough (all units pooled stay below μ_req), so no link can help: record logs that excite it, or lower min_excitation"
+        )
+    } else if carriers.is_empty() {
+        format!(
+            "no other unit can supply the direction {dir} this group lacks (the other units are in groups that lack it too); give its units more excitation along it"
+        )
+    } else {
+        let names: Vec<String> = carriers
+            .iter()
+            .take(3)
+            .map(|&(d, merge, k)| {
+                let how = if merge { ", two-way" } else { "" };
+                if d.is_finite() {
+                    format!(
+                        "{} ({} km away{how})",
+                        problem.nodes[k].id,
+                        crate::report::number::sig(d, 3, crate::report::number::Round::Nearest)
+                    )
+                } else if merge {
+                    format!("{} (two-way)", problem.nodes[k].id)
+                } else {
+                    problem.nodes[k].id.clone()
+                }
+            })
+            .collect();
+        format!(
+            "no candidate link enters this group: add one from a unit that can supply the direction {dir} it lacks, e.g. from {}, or give its units more excitation along it",
+            names.join(" or ")
+        )
     };
-    let dir: Vec<String> = level.direction.iter().map(|x| format!("{x:+.3}")).collect();
     Shortfall {
-        remedy: format!(
-            "no candidate link enters this group: {link_hint}, or give its units more excitation along [{}]",
-            dir.join(", ")
-        ),
+        remedy,
         nodes: names,
         excitation: level.value,
         weakest_direction: level.direction,

@@ -652,3 +652,55 @@ fn required_links_are_in_the_plan_at_their_cost() {
         bad.stderr
     );
 }
+
+/// Remedies that can work: c and d excite nothing and no candidate enters
+/// them; d is c's nearest unit but lacks the same directions, so the remedy
+/// for c names b (in the excited group a<->b) and not d; when no unit
+/// excites a direction at all, the remedy says so first (reasoning by hand
+/// from the condition; common practice).
+#[test]
+fn infeasible_remedies_name_units_that_can_help() {
+    use super::fixtures::constant_log;
+    let folder = Folder::new();
+    folder.write("logs/a.csv", &constant_log(&[1.0, 0.0]));
+    folder.write("logs/b.csv", &constant_log(&[0.0, 1.0]));
+    folder.write("logs/c.csv", &constant_log(&[0.0, 0.0]));
+    folder.write("logs/d.csv", &constant_log(&[0.0, 0.0]));
+    let head = "[network]\nparameters = 2\nwindow = 4.0\nstride = 1.0\nmin_excitation = 0.5\n";
+    let node = |id: &str, x: f64| {
+        format!("[[node]]\nid = \"{id}\"\nlog = \"logs/{id}.csv\"\nposition = [{x}, 0.0]\n")
+    };
+    let problem = format!(
+        "{head}{}{}{}{}[[link]]\nbetween = [\"a\", \"b\"]\ncost = 1.0\n",
+        node("a", 0.0),
+        node("b", 1.0),
+        node("c", 5.0),
+        node("d", 5.5)
+    );
+    folder.write("problem.toml", &problem);
+    let run = exmesh(folder.dir.path(), &["plan", "problem.toml", "--json"]);
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let shortfalls = v["shortfalls"].as_array().unwrap();
+    let for_c = shortfalls
+        .iter()
+        .find(|s| s["nodes"] == serde_json::json!(["c"]))
+        .expect("c is short");
+    let remedy = for_c["remedy"].as_str().unwrap();
+    assert!(remedy.contains("from b (4 km away)"), "{remedy}");
+    assert!(!remedy.contains("from d"), "{remedy}");
+
+    // Only a and c: nobody excites e2.
+    let problem = format!("{head}{}{}", node("a", 0.0), node("c", 5.0));
+    folder.write("problem.toml", &problem);
+    let run = exmesh(folder.dir.path(), &["plan", "problem.toml", "--json"]);
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    for s in v["shortfalls"].as_array().unwrap() {
+        let remedy = s["remedy"].as_str().unwrap();
+        assert!(
+            remedy.starts_with("no unit in the network excites"),
+            "{remedy}"
+        );
+    }
+}
