@@ -82,7 +82,42 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
                 (Some(a), Some(b)) => Some(a - b),
                 _ => None,
             },
+            target_kept: None,
+            worst_failure: None,
+            worst_failure_rate: None,
         });
+        // With a target: the certified rate after each single failure of
+        // the kind survived (when the time limit leaves room).
+        let in_time = options.time_limit.is_none_or(|d| started.elapsed() < d);
+        if let (Some(t), Some(_), true) = (problem.settings.target_rate, result.cost, in_time) {
+            let set = result.link_set(problem);
+            let s = crate::whatif::stress::stress(
+                problem,
+                table,
+                &set,
+                true,
+                &crate::progress::Sink::silent(),
+            );
+            let kind = match options.survive {
+                Survive::Unit => crate::whatif::stress::FailureKind::Unit,
+                _ => crate::whatif::stress::FailureKind::Link,
+            };
+            let worst = s
+                .scenarios
+                .iter()
+                .filter(|sc| sc.kind == kind)
+                .min_by(|a, b| {
+                    a.rate
+                        .unwrap_or(0.0)
+                        .total_cmp(&b.rate.unwrap_or(0.0))
+                        .then(a.id.cmp(&b.id))
+                });
+            if let Some(r) = result.robustness.as_mut() {
+                r.target_kept = Some(worst.is_none_or(|w| w.rate.is_some_and(|x| x >= t)));
+                r.worst_failure = worst.map(|w| w.id.clone());
+                r.worst_failure_rate = worst.and_then(|w| w.rate);
+            }
+        }
     }
     if result.cost.is_some() {
         let gains = crate::certify::gain_checks(problem, &result.link_set(problem));

@@ -106,6 +106,16 @@ pub struct Robustness {
     pub plain_status: PlanStatus,
     /// This plan's cost minus the plain plan's.
     pub extra_cost: Option<f64>,
+    /// With `target_rate`: whether the certified rate stays at or above
+    /// the target after every single failure the plan survives (null
+    /// without a target, without a plan, or when the time limit left no
+    /// time to certify the failures).
+    pub target_kept: Option<bool>,
+    /// With `target_rate`: the failure with the lowest certified rate
+    /// (a link or unit id) and that rate (null when certified none).
+    pub worst_failure: Option<String>,
+    /// See `worst_failure`.
+    pub worst_failure_rate: Option<f64>,
 }
 
 /// Search figures (deterministic: no timings).

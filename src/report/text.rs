@@ -558,6 +558,22 @@ pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Re
     )?;
     writeln!(out, "critical links: {}", names_or_none(&s.critical_links))?;
     writeln!(out, "critical units: {}", names_or_none(&s.critical_units))?;
+    if let Some(t) = s.target_rate {
+        if s.rates_checked {
+            writeln!(
+                out,
+                "below the target rate {} after: {}",
+                num::rate_nearest(t),
+                names_or_none(&s.below_target)
+            )?;
+        } else {
+            writeln!(
+                out,
+                "target rate {}: not compared (--skip-rate)",
+                num::rate_nearest(t)
+            )?;
+        }
+    }
     writeln!(out)?;
     writeln!(
         out,
@@ -574,9 +590,14 @@ pub fn stress(s: &crate::whatif::stress::Stress, out: &mut impl Write) -> io::Re
             (true, None) => "-".to_string(),
             (true, Some(r)) => num::sig(r, 4, Round::Down),
         };
+        let mark = if sc.below_target == Some(true) && sc.condition_holds {
+            " BELOW TARGET"
+        } else {
+            ""
+        };
         writeln!(
             out,
-            "{kind:<6} {:<28} {:<10} {rate:>14}  {}",
+            "{kind:<6} {:<28} {:<10} {rate:>14}{mark}  {}",
             sc.id,
             if sc.condition_holds { "holds" } else { "FAILS" },
             sc.units_left_unexcited.join(", ")
@@ -746,6 +767,28 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
                 num::cost(extra, Round::Nearest)
             )?,
             _ => writeln!(out, "survives {what}")?,
+        }
+        if let (Some(kept), Some(t)) = (r.target_kept, p.rate.as_ref().map(|x| x.target)) {
+            if kept {
+                writeln!(
+                    out,
+                    "the certified rate stays at or above the target {} after any such failure (worst: {} after {})",
+                    num::rate_nearest(t),
+                    r.worst_failure_rate.map_or("-".to_string(), num::rate),
+                    r.worst_failure.as_deref().unwrap_or("-")
+                )?;
+            } else {
+                writeln!(
+                    out,
+                    "the target rate {} is NOT kept after every such failure: after {} the certified rate is {}{} — exmesh does not plan for the rate after failures; add links and check with `exmesh stress`",
+                    num::rate_nearest(t),
+                    r.worst_failure.as_deref().unwrap_or("-"),
+                    r.worst_failure_rate.map_or("none".to_string(), num::rate),
+                    r.worst_failure_rate
+                        .map(|x| format!(", {} below the target", num::sig(t - x, 3, Round::Up)))
+                        .unwrap_or_default()
+                )?;
+            }
         }
     }
     writeln!(out)?;

@@ -33,6 +33,9 @@ pub struct Scenario {
     pub units_left_unexcited: Vec<String>,
     /// Certified rate after the failure (null when not certified or skipped).
     pub rate: Option<f64>,
+    /// With `target_rate` set and rates checked: the certified rate after
+    /// the failure is below the target (or none is certified); else null.
+    pub below_target: Option<bool>,
 }
 
 /// All single failures of a plan.
@@ -54,6 +57,11 @@ pub struct Stress {
     pub critical_links: Vec<String>,
     /// Units whose loss breaks the condition, worst first.
     pub critical_units: Vec<String>,
+    /// The problem's `target_rate` (null when none).
+    pub target_rate: Option<f64>,
+    /// With a target: the failures (links and units) after which the
+    /// certified rate is below it, worst first (empty with `--skip-rate`).
+    pub below_target: Vec<String>,
 }
 
 fn unexcited(c: &analysis::Check) -> Vec<String> {
@@ -104,6 +112,7 @@ pub fn stress(
                 condition_holds: c.condition_holds,
                 units_left_unexcited: unexcited(&c),
                 rate,
+                below_target: None,
             }
         })
         .collect();
@@ -140,11 +149,18 @@ pub fn stress(
                 condition_holds: c.condition_holds,
                 units_left_unexcited: unexcited(&c),
                 rate,
+                below_target: None,
             })
         })
         .collect();
     scenarios.extend(units);
     progress.done();
+    let target = problem.settings.target_rate;
+    if let (Some(t), true) = (target, rates) {
+        for s in &mut scenarios {
+            s.below_target = Some(s.rate.is_none_or(|r| r < t));
+        }
+    }
     scenarios.sort_by(|a, b| {
         a.condition_holds
             .cmp(&b.condition_holds)
@@ -170,6 +186,12 @@ pub fn stress(
         rates_checked: rates,
         critical_links: critical(FailureKind::Link),
         critical_units: critical(FailureKind::Unit),
+        target_rate: target,
+        below_target: scenarios
+            .iter()
+            .filter(|s| s.below_target == Some(true))
+            .map(|s| s.id.clone())
+            .collect(),
         scenarios,
     }
 }

@@ -196,3 +196,57 @@ proptest! {
         }
     }
 }
+
+/// `--survive link` with a target rate says whether the certified rate
+/// stays at the target after every single link failure: the worst failure
+/// and its rate are those `stress` finds on the same plan (an independent
+/// run), and `target_kept` agrees with them. `stress` marks the failures
+/// below the target.
+#[test]
+fn survival_with_a_target_reports_the_rate_after_failures() {
+    use super::fixtures::{Folder, exmesh, small_problem, small_problem_with_target};
+    let folder = Folder::new();
+    small_problem(&folder);
+    let text = small_problem_with_target("0.05")
+        + "\n[[link]]\nbetween = [\"a\", \"b\"]\nid = \"a-b-spare\"\ncost = 5.0\n";
+    folder.write("problem.toml", &text);
+    let dir = folder.dir.path();
+    let run = exmesh(
+        dir,
+        &[
+            "plan",
+            "problem.toml",
+            "--survive",
+            "link",
+            "--json",
+            "--out",
+            "plan.json",
+        ],
+    );
+    assert!(run.code <= 1, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    assert!(!v["cost"].is_null(), "a robust plan exists: {v}");
+    let r = &v["robustness"];
+    let stress = exmesh(
+        dir,
+        &["stress", "problem.toml", "--plan", "plan.json", "--json"],
+    );
+    let s: serde_json::Value = serde_json::from_str(&stress.stdout).unwrap();
+    let links: Vec<&serde_json::Value> = s["scenarios"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|x| x["kind"] == "link")
+        .collect();
+    let worst = links
+        .iter()
+        .map(|x| x["rate"].as_f64().unwrap_or(0.0))
+        .fold(f64::INFINITY, f64::min);
+    assert_eq!(r["worst_failure_rate"].as_f64().unwrap_or(0.0), worst);
+    assert_eq!(r["target_kept"], serde_json::json!(worst >= 0.05));
+    for x in &links {
+        let below = x["rate"].as_f64().is_none_or(|q| q < 0.05);
+        assert_eq!(x["below_target"], serde_json::json!(below));
+    }
+    assert_eq!(s["target_rate"], 0.05);
+}
