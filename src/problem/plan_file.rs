@@ -1,5 +1,6 @@
 //! Reader for plan files: JSON with a `links` list of `{from, to, two_way}`
-//! objects (other keys, such as those `plan` writes, are allowed).
+//! objects or link ids (other keys, such as those `plan` writes, are
+//! allowed).
 
 use super::{Ends, LinkId, LinkSet, NodeId, Problem};
 use crate::error::{InputError, LineIndex, read_text};
@@ -98,16 +99,49 @@ fn parse_plan_file(
         .map(|(k, n)| (n.id.as_str(), NodeId(k as u32)))
         .collect();
     let candidates = Candidates::new(problem);
+    let by_id: HashMap<&str, LinkId> = problem
+        .links
+        .iter()
+        .enumerate()
+        .map(|(k, l)| (l.id.as_str(), LinkId(k as u32)))
+        .collect();
     let mut seen: HashMap<LinkId, usize> = HashMap::with_capacity(raw.links.len());
     let mut ids = Vec::with_capacity(raw.links.len());
     for entry in raw.links {
         let offset = entry.get().as_ptr() as usize - text.as_ptr() as usize;
         let line = lines.line(offset);
+        // A bare string names a candidate by its id (as `budget`, `retire`
+        // and `check` print them).
+        if let Ok(name) = serde_json::from_str::<String>(entry.get()) {
+            let id = by_id.get(name.as_str()).copied().ok_or_else(|| {
+                InputError::at(
+                    path,
+                    line,
+                    format!(
+                        "unknown link id {name:?}; expected the id of a candidate link in {} or a link object {{\"from\", \"to\", \"two_way\"}}",
+                        problem.path.display()
+                    ),
+                )
+            })?;
+            if let Some(first) = seen.insert(id, line) {
+                return Err(InputError::at(
+                    path,
+                    line,
+                    format!(
+                        "link {name} is listed twice (also on line {first}); expected each link once"
+                    ),
+                ));
+            }
+            ids.push(id);
+            continue;
+        }
         let link: RawPlanLink = serde_json::from_str(entry.get()).map_err(|e| {
             InputError::at(
                 path,
                 line,
-                format!("expected a link object {{\"from\", \"to\", \"two_way\"}}: {e}"),
+                format!(
+                    "expected a link id or a link object {{\"from\", \"to\", \"two_way\"}}: {e}"
+                ),
             )
         })?;
         let unit = |name: &str| {

@@ -621,3 +621,45 @@ fn jump_gain_above_two_is_rejected() {
         "a number from 0 to 2",
     );
 }
+
+/// Plan files may list links by id, as `budget`, `retire` and `check`
+/// print them: the same link set as the objects; an unknown or repeated
+/// id exits 2 at its line.
+#[test]
+fn plan_files_accept_link_ids() {
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    folder.write("ids.json", "{\"links\": [\n\"a<->b\",\n\"b->c\"\n]}");
+    let dir = folder.dir.path();
+    let by_object = exmesh(
+        dir,
+        &["check", "problem.toml", "--plan", "plan.json", "--json"],
+    );
+    let by_id = exmesh(
+        dir,
+        &["check", "problem.toml", "--plan", "ids.json", "--json"],
+    );
+    assert_eq!(by_id.code, 0, "{}", by_id.stderr);
+    assert_eq!(by_object.stdout, by_id.stdout);
+    for (text, line, words) in [
+        (
+            "{\"links\": [\n\"a<->b\",\n\"x->y\"\n]}",
+            3,
+            "unknown link id \"x->y\"",
+        ),
+        (
+            "{\"links\": [\n\"a<->b\",\n\"a<->b\"\n]}",
+            3,
+            "listed twice (also on line 2)",
+        ),
+    ] {
+        folder.write("bad.json", text);
+        let run = exmesh(dir, &["check", "problem.toml", "--plan", "bad.json"]);
+        assert_eq!(run.code, 2, "{}", run.stderr);
+        assert!(
+            run.stderr.contains(&format!("bad.json:{line}:")) && run.stderr.contains(words),
+            "{}",
+            run.stderr
+        );
+    }
+}
