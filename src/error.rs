@@ -162,3 +162,69 @@ mod tests {
         assert_eq!(e.to_string(), "p.toml:4: expected a number");
     }
 }
+
+/// A reader's message in the words of the file format: the names of the
+/// program's internal types and Rust number types that serde puts into its
+/// messages ("expected struct RawNode", "expected f64") become what the
+/// file should hold.
+pub fn plain_words(message: &str) -> String {
+    let mut out = message.to_string();
+    // The plan reader's top-level struct also says how many fields it has.
+    while let Some(i) = out.find("struct RawPlan with ") {
+        let rest = &out[i + "struct RawPlan with ".len()..];
+        let end = rest
+            .find(" element")
+            .map(|k| {
+                let after = &rest[k + " element".len()..];
+                k + " element".len() + usize::from(after.starts_with('s'))
+            })
+            .unwrap_or(0);
+        out.replace_range(
+            i..i + "struct RawPlan with ".len() + end,
+            "a JSON object with a `links` list",
+        );
+    }
+    for (from, to) in [
+        (
+            "struct RawPlanLink",
+            "a link object {from, to, two_way} or a link id",
+        ),
+        ("struct RawPlan", "a JSON object with a `links` list"),
+        ("struct RawProblem", "a problem file of TOML tables"),
+        ("struct RawNetwork", "the table [network]"),
+        ("struct RawEstimator", "the table [estimator]"),
+        ("struct RawNode", "a [[node]] table"),
+        ("struct RawLink", "a [[link]] table"),
+        ("struct RawCandidates", "the table [candidates]"),
+        ("expected f64", "expected a number"),
+        ("expected f32", "expected a number"),
+        ("expected usize", "expected a whole number"),
+        ("expected u64", "expected a whole number"),
+        ("expected u32", "expected a whole number"),
+        ("expected i64", "expected a whole number"),
+    ] {
+        out = out.replace(from, to);
+    }
+    out
+}
+
+#[cfg(test)]
+mod plain_tests {
+    #[test]
+    fn internal_names_become_file_words() {
+        assert_eq!(
+            super::plain_words("invalid type: integer `3`, expected struct RawNetwork"),
+            "invalid type: integer `3`, expected the table [network]"
+        );
+        assert_eq!(
+            super::plain_words(
+                "invalid length 0, expected struct RawPlan with 5 elements at line 1"
+            ),
+            "invalid length 0, expected a JSON object with a `links` list at line 1"
+        );
+        assert_eq!(
+            super::plain_words("invalid type: string \"a\", expected f64"),
+            "invalid type: string \"a\", expected a number"
+        );
+    }
+}

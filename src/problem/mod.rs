@@ -475,7 +475,10 @@ fn toml_error(path: &Path, text: &str, lines: &LineIndex, e: &toml::de::Error) -
     InputError::at(
         path,
         line,
-        format!("malformed problem file: {}", e.message().trim()),
+        format!(
+            "malformed problem file: {}",
+            crate::error::plain_words(e.message().trim())
+        ),
     )
 }
 

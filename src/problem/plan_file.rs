@@ -81,7 +81,7 @@ fn parse_plan_file(
     let json_err = |e: serde_json::Error, what: &str| InputError {
         file: path.to_path_buf(),
         line: (e.line() > 0).then_some(e.line()),
-        message: format!("{what}: {e}"),
+        message: format!("{what}: {}", crate::error::plain_words(&e.to_string())),
     };
     let raw: RawPlan = serde_json::from_str(text)
         .map_err(|e| json_err(e, "expected a JSON object with a `links` list"))?;
@@ -140,7 +140,8 @@ fn parse_plan_file(
                 path,
                 line,
                 format!(
-                    "expected a link id or a link object {{\"from\", \"to\", \"two_way\"}}: {e}"
+                    "expected a link id or a link object {{\"from\", \"to\", \"two_way\"}}: {}",
+                    crate::error::plain_words(&e.to_string())
                 ),
             )
         })?;

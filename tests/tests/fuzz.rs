@@ -299,6 +299,20 @@ fn judge(tally: &mut Tally, run: &CappedRun, what: &str, outputs_ok: bool) {
         let names_file = ["problem.toml", "logs/", "plan.json", "--", "error: "]
             .iter()
             .any(|f| message.contains(f));
+        // Messages speak the file format, not the program's types.
+        for internal in [
+            "struct Raw",
+            "expected f64",
+            "expected usize",
+            "expected u32",
+        ] {
+            if message.contains(internal) {
+                tally.failures.push(format!(
+                    "{what}: internal name `{internal}` in: {}",
+                    run.stderr
+                ));
+            }
+        }
         if !run.stdout.is_empty() || !names_file {
             tally.failures.push(format!(
                 "{what}: exit 2 without the file named: {}",
