@@ -55,6 +55,7 @@ pub mod report;
 pub mod rng;
 pub mod signal;
 pub mod simulate;
+pub mod suggest;
 pub mod synth;
 pub mod topology;
 pub mod whatif;

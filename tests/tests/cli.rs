@@ -663,3 +663,135 @@ fn plan_files_accept_link_ids() {
         );
     }
 }
+
+/// `init` on a folder of logs: one unit per log (file stem), p from the
+/// columns, a range that connects the units (1.5 × the longest link of a
+/// minimum spanning tree, recomputed here by brute force over all spanning
+/// trees' bottleneck: the smallest r whose r-graph is connected), and a
+/// file the other commands load. Bad starts exit 2 naming the flag or file.
+#[test]
+fn init_writes_a_problem_that_loads() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let folder = Folder::new();
+    let dir = folder.dir.path();
+    std::fs::create_dir_all(dir.join("logs")).unwrap();
+    let units = [
+        ("mast-north", 0.0, 3.0),
+        ("mast-cairn", 1.1, 2.6),
+        ("mast-fold", 2.0, 3.1),
+        ("mast-weir", 0.4, 1.6),
+    ];
+    let mut csv = String::from("id,x_km,y_km\n");
+    for (id, x, y) in units {
+        std::fs::copy(
+            root.join(format!("problems/plateau-masts/logs/{id}.csv")),
+            dir.join(format!("logs/{id}.csv")),
+        )
+        .unwrap();
+        csv.push_str(&format!("{id},{x},{y}\n"));
+    }
+    folder.write("units.csv", &csv);
+    let run = exmesh(
+        dir,
+        &[
+            "init",
+            ".",
+            "--logs",
+            "logs/*.csv",
+            "--positions",
+            "units.csv",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert!(run.stdout.contains("it loads"), "{}", run.stdout);
+    let text = std::fs::read_to_string(dir.join("problem.toml")).unwrap();
+    let ex = exmesh(dir, &["excitation", "problem.toml", "--json"]);
+    assert_eq!(ex.code, 0, "{}", ex.stderr);
+    let v: serde_json::Value = serde_json::from_str(&ex.stdout).unwrap();
+    assert_eq!(v["parameters"], 3);
+    let mut ids: Vec<&str> = v["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|u| u["id"].as_str().unwrap())
+        .collect();
+    ids.sort_unstable();
+    let mut want: Vec<&str> = units.iter().map(|u| u.0).collect();
+    want.sort_unstable();
+    assert_eq!(ids, want);
+    // The bottleneck distance: the smallest pairwise distance r at which
+    // the r-graph is connected (equals the longest MST link).
+    let d = |a: (&str, f64, f64), b: (&str, f64, f64)| (a.1 - b.1).hypot(a.2 - b.2);
+    let mut cands: Vec<f64> = Vec::new();
+    for a in units {
+        for b in units {
+            cands.push(d(a, b));
+        }
+    }
+    cands.sort_by(f64::total_cmp);
+    let connected = |r: f64| {
+        let mut seen = vec![false; units.len()];
+        let mut stack = vec![0];
+        seen[0] = true;
+        while let Some(u) = stack.pop() {
+            for v in 0..units.len() {
+                if !seen[v] && d(units[u], units[v]) <= r {
+                    seen[v] = true;
+                    stack.push(v);
+                }
+            }
+        }
+        seen.iter().all(|&s| s)
+    };
+    let bottleneck = cands.into_iter().find(|&r| connected(r)).unwrap();
+    let range: f64 = text
+        .lines()
+        .find_map(|l| l.strip_prefix("range = "))
+        .unwrap()
+        .parse()
+        .unwrap();
+    assert!(
+        (range - 1.5 * bottleneck).abs() < 1e-3,
+        "{range} vs {bottleneck}"
+    );
+
+    // Never overwrites; no match; mixed p; a unit without a position.
+    let again = exmesh(dir, &["init", ".", "--logs", "logs/*.csv"]);
+    assert_eq!(again.code, 2);
+    assert!(again.stderr.contains("--out"), "{}", again.stderr);
+    let none = exmesh(
+        dir,
+        &["init", ".", "--logs", "logs/*.txt", "--out", "b.toml"],
+    );
+    assert_eq!(none.code, 2);
+    assert!(none.stderr.contains("--logs"), "{}", none.stderr);
+    folder.write("logs/odd.csv", "t,j,psi1\n0,0,1\n1,0,1\n");
+    let mixed = exmesh(
+        dir,
+        &["init", ".", "--logs", "logs/*.csv", "--out", "c.toml"],
+    );
+    assert_eq!(mixed.code, 2);
+    assert!(mixed.stderr.contains("odd.csv:1:"), "{}", mixed.stderr);
+    std::fs::remove_file(dir.join("logs/odd.csv")).unwrap();
+    folder.write("units.csv", "id,x_km,y_km\nmast-north,0,3\n");
+    let missing = exmesh(
+        dir,
+        &[
+            "init",
+            ".",
+            "--logs",
+            "logs/*.csv",
+            "--positions",
+            "units.csv",
+            "--out",
+            "d.toml",
+        ],
+    );
+    assert_eq!(missing.code, 2);
+    assert!(
+        missing.stderr.contains("no position for unit"),
+        "{}",
+        missing.stderr
+    );
+    assert!(!dir.join("d.toml").exists());
+}

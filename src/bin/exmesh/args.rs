@@ -92,6 +92,20 @@ pub(crate) enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Start a problem: a commented problem file from a folder of logs, with a window, min_excitation and candidate range suggested from the data.
+    Init {
+        /// The folder (the problem file is written there).
+        dir: PathBuf,
+        /// The logs, relative to DIR; `*` and `?` in the file name (e.g. 'logs/*.csv'). Each file is a unit named by its file stem.
+        #[arg(long, value_name = "PATTERN")]
+        logs: String,
+        /// Positions, relative to DIR: CSV `id,x_km,y_km` or `id,lat,lon`; candidates by range when given.
+        #[arg(long, value_name = "FILE.csv")]
+        positions: Option<PathBuf>,
+        /// Name of the problem file in DIR (never overwritten).
+        #[arg(long, value_name = "NAME", default_value = "problem.toml")]
+        out: PathBuf,
+    },
     /// Two link sets side by side: links only in each, cost, verdict, certified rate, source components, critical links and units.
     Compare {
         /// Problem file (TOML).

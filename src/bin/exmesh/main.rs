@@ -13,6 +13,7 @@
 
 mod args;
 mod commands;
+mod init;
 mod output;
 
 use anyhow::Context;
@@ -66,6 +67,12 @@ fn run(command: Command) -> anyhow::Result<ExitCode> {
             time_limit,
             json,
         ),
+        Command::Init {
+            dir,
+            logs,
+            positions,
+            out: name,
+        } => init::init(out, &dir, &logs, positions.as_deref(), &name),
         Command::Compare {
             problem,
             a,
