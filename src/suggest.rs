@@ -232,6 +232,7 @@ mod tests {
             log: log.clone(),
             position: Some([x, 0.0]),
             lat_lon: None,
+            max_links: None,
         };
         let nodes = vec![node(0.0), node(1.0), node(2.0), node(5.0)];
         assert_eq!(spanning_range(&nodes), Some(3.0));

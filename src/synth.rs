@@ -281,6 +281,7 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
             id,
             position: Some(pos),
             lat_lon: None,
+            max_links: None,
         });
         classes.push(class);
     }

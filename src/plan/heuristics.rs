@@ -46,9 +46,9 @@ pub(crate) fn reverse_delete_until(
     chosen
 }
 
-/// Drops chosen links at units over their in-degree cap, the links with
-/// the smallest `y` first (then dearer, then larger index), until every
-/// cap holds. Installed links stay.
+/// Drops chosen links at units over their in-degree cap or port limit, the
+/// links with the smallest `y` first (then dearer, then larger index), until
+/// every cap and limit holds. Installed links stay.
 fn within_caps(inst: &Instance, chosen: &mut [bool], y: &[f64]) {
     if inst.fits(chosen) {
         return;
@@ -65,11 +65,7 @@ fn within_caps(inst: &Instance, chosen: &mut [bool], y: &[f64]) {
         if inst.fits(chosen) {
             return;
         }
-        if inst.links[k]
-            .arcs
-            .iter()
-            .any(|&(_, t)| inst.over_cap(chosen, t))
-        {
+        if inst.at_a_limit(chosen, k) {
             chosen[k] = false;
         }
     }

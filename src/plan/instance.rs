@@ -25,6 +25,11 @@ pub(crate) struct PlanLink {
 }
 
 impl PlanLink {
+    /// The two units the link joins (a radio port at each).
+    pub fn ends(&self) -> [u32; 2] {
+        [self.arcs[0].0, self.arcs[0].1]
+    }
+
     /// What the link adds to unit `to`'s weighted in-degree.
     pub fn weight_into(&self, to: u32) -> f64 {
         self.weight * self.arcs.iter().filter(|a| a.1 == to).count() as f64
@@ -331,6 +336,11 @@ pub(crate) struct Instance<'a> {
     /// Largest weighted in-degree per unit (the jump gain condition), when
     /// some cap can bind.
     pub caps: Option<Vec<f64>>,
+    /// Most links per unit (radio ports, `max_links`), when some limit can
+    /// bind; a unit without a limit has infinity.
+    pub ports: Option<Vec<f64>>,
+    /// For each unit, the links that touch it (either end).
+    pub touching: Vec<Vec<usize>>,
 }
 
 /// A weighted in-degree within its cap (with a relative tolerance for the
@@ -390,13 +400,45 @@ impl<'a> Instance<'a> {
             }
         }
         let binding = caps.iter().zip(&room).any(|(c, r)| *r > *c);
-        Self::from_links(n, links, table).with_caps(binding.then_some(caps))
+        let ports = port_limits(problem);
+        Self::from_links(n, links, table)
+            .with_caps(binding.then_some(caps))
+            .with_ports(ports)
     }
 
     /// The instance with per-unit weighted in-degree caps (`None`: none).
     pub fn with_caps(mut self, caps: Option<Vec<f64>>) -> Self {
         self.caps = caps;
         self
+    }
+
+    /// The instance with per-unit port limits (`None`: none).
+    pub fn with_ports(mut self, ports: Option<Vec<f64>>) -> Self {
+        self.ports = ports;
+        self
+    }
+
+    /// Chosen links touching unit `v`, plus `extra` when given.
+    fn ports_used(&self, chosen: &[bool], v: u32, extra: Option<usize>) -> f64 {
+        self.touching[v as usize]
+            .iter()
+            .filter(|&&j| chosen[j] || Some(j) == extra)
+            .count() as f64
+    }
+
+    /// Unit `v` uses more links than its ports allow under `chosen`.
+    pub fn over_ports(&self, chosen: &[bool], v: u32) -> bool {
+        self.ports
+            .as_ref()
+            .is_some_and(|p| self.ports_used(chosen, v, None) > p[v as usize])
+    }
+
+    /// Link `k` breaks a cap or a port limit at one of its ends under
+    /// `chosen` (dropping it helps).
+    pub fn at_a_limit(&self, chosen: &[bool], k: usize) -> bool {
+        let l = &self.links[k];
+        l.arcs.iter().any(|&(_, t)| self.over_cap(chosen, t))
+            || l.ends().iter().any(|&v| self.over_ports(chosen, v))
     }
 
     /// Weighted in-degree of every unit under `chosen`.
@@ -413,13 +455,18 @@ impl<'a> Instance<'a> {
     /// Every unit's weighted in-degree is within its cap (the jump gain
     /// condition, docs/theory.md §6).
     pub fn fits(&self, chosen: &[bool]) -> bool {
+        let ports_ok = self.ports.as_ref().is_none_or(|p| {
+            (0..self.n as u32).all(|v| self.ports_used(chosen, v, None) <= p[v as usize])
+        });
         let Some(caps) = &self.caps else {
-            return true;
+            return ports_ok;
         };
-        self.in_degrees(chosen)
-            .iter()
-            .zip(caps)
-            .all(|(&d, &c)| within(d, c))
+        ports_ok
+            && self
+                .in_degrees(chosen)
+                .iter()
+                .zip(caps)
+                .all(|(&d, &c)| within(d, c))
     }
 
     /// Weighted in-degree of unit `to` under `chosen` plus link `extra`.
@@ -434,6 +481,14 @@ impl<'a> Instance<'a> {
     /// Adding link `k` to `chosen` keeps the caps of its listeners (only
     /// they change).
     pub fn fits_with(&self, chosen: &[bool], k: usize) -> bool {
+        if let Some(p) = &self.ports
+            && self.links[k]
+                .ends()
+                .iter()
+                .any(|&v| self.ports_used(chosen, v, Some(k)) > p[v as usize])
+        {
+            return false;
+        }
         let Some(caps) = &self.caps else {
             return true;
         };
@@ -457,10 +512,16 @@ impl<'a> Instance<'a> {
     /// An instance on the same units and excitation with other links.
     pub fn with_oracle(n: usize, links: Vec<PlanLink>, oracle: Rc<Oracle<'a>>) -> Self {
         let mut heads = vec![Vec::new(); n];
+        let mut touching = vec![Vec::new(); n];
         for (k, l) in links.iter().enumerate() {
             for &(_, to) in &l.arcs {
                 if heads[to as usize].last() != Some(&k) {
                     heads[to as usize].push(k);
+                }
+            }
+            for v in l.ends() {
+                if touching[v as usize].last() != Some(&k) {
+                    touching[v as usize].push(k);
                 }
             }
         }
@@ -476,6 +537,8 @@ impl<'a> Instance<'a> {
             survive: Survive::Nothing,
             packings: RefCell::new(HashMap::default()),
             caps: None,
+            ports: None,
+            touching,
         }
     }
 
@@ -746,4 +809,28 @@ impl<'a> Instance<'a> {
             rhs: rhs as u32,
         })
     }
+}
+
+/// Per-unit port limits (`max_links`) as numbers, infinity where none;
+/// `None` when no unit has a limit its candidates could exceed.
+pub(crate) fn port_limits(problem: &Problem) -> Option<Vec<f64>> {
+    let mut count = vec![0usize; problem.n()];
+    for l in &problem.links {
+        let (a, b) = match l.ends {
+            crate::problem::Ends::TwoWay(a, b) => (a, b),
+            crate::problem::Ends::OneWay { from, to } => (from, to),
+        };
+        count[a.index()] += 1;
+        count[b.index()] += 1;
+    }
+    let limits: Vec<f64> = problem
+        .nodes
+        .iter()
+        .map(|n| n.max_links.map_or(f64::INFINITY, f64::from))
+        .collect();
+    limits
+        .iter()
+        .zip(&count)
+        .any(|(&m, &c)| (c as f64) > m)
+        .then_some(limits)
 }

@@ -139,8 +139,9 @@ fn reoptimise(
             });
         }
     }
-    let sub =
-        Instance::with_oracle(inst.n, links, inst.oracle.clone()).with_caps(inst.caps.clone());
+    let sub = Instance::with_oracle(inst.n, links, inst.oracle.clone())
+        .with_caps(inst.caps.clone())
+        .with_ports(inst.ports.clone());
     let start: Vec<bool> = map.iter().map(|&k| current[k]).collect();
     let before = sub.cost(&start);
     let limits = Limits {

@@ -234,7 +234,7 @@ pub fn link_reasons(
             if why.rate_stage {
                 return (
                     LinkRole::Rate,
-                    "for the target rate (a plan at a raised required excitation): the condition holds without it".to_string(),
+                    "kept for the target rate: the condition holds without it, and the rate stage found the target needs it".to_string(),
                 );
             }
             (

@@ -100,12 +100,36 @@ fn keep_caps(problem: &Problem, set: &LinkSet) -> bool {
     within_caps(problem, &crate::certify::degree_caps(problem), set)
 }
 
-/// Every unit's weighted in-degree under `set` is within `caps`.
+/// Every unit's weighted in-degree under `set` is within `caps`, and every
+/// unit with a port limit (`max_links`) takes part in at most that many
+/// links.
 pub(crate) fn within_caps(problem: &Problem, caps: &[f64], set: &LinkSet) -> bool {
-    crate::certify::in_degrees(problem, set)
+    within_ports(problem, set)
+        && crate::certify::in_degrees(problem, set)
+            .iter()
+            .zip(caps)
+            .all(|(&d, &c)| super::instance::within(d, c))
+}
+
+/// Every unit takes part in at most `max_links` links of `set`.
+pub(crate) fn within_ports(problem: &Problem, set: &LinkSet) -> bool {
+    if problem.nodes.iter().all(|n| n.max_links.is_none()) {
+        return true;
+    }
+    let mut used = vec![0u32; problem.n()];
+    for &l in set.ids() {
+        let (a, b) = match problem.link(l).ends {
+            crate::problem::Ends::TwoWay(a, b) => (a, b),
+            crate::problem::Ends::OneWay { from, to } => (from, to),
+        };
+        used[a.index()] += 1;
+        used[b.index()] += 1;
+    }
+    problem
+        .nodes
         .iter()
-        .zip(caps)
-        .all(|(&d, &c)| super::instance::within(d, c))
+        .zip(&used)
+        .all(|(n, &u)| n.max_links.is_none_or(|m| u <= m))
 }
 
 pub(crate) fn rate_of(c: &Certificate) -> f64 {

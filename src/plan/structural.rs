@@ -312,6 +312,35 @@ fn caps_infeasible(
     installed: bool,
 ) -> Plan {
     let caps = inst.caps.clone().unwrap_or_default();
+    // Units whose port limit (max_links) is below their candidate links.
+    let ports: Vec<(f64, usize, usize)> = inst.ports.as_ref().map_or(Vec::new(), |p| {
+        let mut v: Vec<(f64, usize, usize)> = p
+            .iter()
+            .enumerate()
+            .filter(|&(i, &m)| (inst.touching[i].len() as f64) > m)
+            .map(|(i, &m)| (m, inst.touching[i].len(), i))
+            .collect();
+        v.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.2.cmp(&b.2)));
+        v.truncate(5);
+        v
+    });
+    let port_names: Vec<String> = ports
+        .iter()
+        .map(|&(m, k, i)| {
+            format!(
+                "{} (max_links = {m}, {k} candidate links)",
+                problem.nodes[i].id
+            )
+        })
+        .collect();
+    let port_part = if port_names.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "; radio-port limits that bind: {} (raise max_links or offer other links)",
+            port_names.join(", ")
+        )
+    };
     let mut tight: Vec<(f64, usize)> = caps
         .iter()
         .enumerate()
@@ -324,31 +353,41 @@ fn caps_infeasible(
         .iter()
         .map(|&(c, i)| format!("{} (in-degree ≤ {c:.3})", problem.nodes[i].id))
         .collect();
+    let names = if names.is_empty() {
+        "none bind".to_string()
+    } else {
+        names.join(", ")
+    };
     let remedy = if installed {
         format!(
-            "the installed and required links alone exceed the in-degree limit of the gain \
-             condition (δ·d_i + γ_d·s_i/2 ≤ 1) at some unit; tightest limits: {}. Lower \
-             jump_coupling or jump_gain, lighten these links' weights, or require fewer links",
-            names.join(", ")
+            "the installed and required links alone exceed a unit's limits: the in-degree \
+             limit of the gain condition (δ·d_i + γ_d·s_i/2 ≤ 1; tightest: {names}) or its \
+             radio ports{port_part}. Lower jump_coupling or jump_gain, lighten these links' \
+             weights, or require fewer links"
         )
     } else {
         format!(
             "no link set both excites every source component and keeps every unit within \
-             the in-degree limit of the gain condition (δ·d_i + γ_d·s_i/2 ≤ 1); tightest \
-             limits: {}. Lower jump_coupling or jump_gain, use lighter link weights, or add \
-             candidate links that spread the listening",
-            names.join(", ")
+             its limits: the in-degree limit of the gain condition (δ·d_i + γ_d·s_i/2 ≤ 1; \
+             tightest: {names}){port_part}. Lower jump_coupling or jump_gain, use lighter \
+             link weights, or add candidate links that spread the listening"
         )
     };
-    let named: Vec<crate::problem::NodeId> = tight
+    let mut named: Vec<crate::problem::NodeId> = tight
         .iter()
         .map(|&(_, i)| crate::problem::NodeId(i as u32))
         .collect();
+    for &(_, _, i) in &ports {
+        let v = crate::problem::NodeId(i as u32);
+        if !named.contains(&v) {
+            named.push(v);
+        }
+    }
     let level = table.level(&named);
     let shortfall = Shortfall {
-        nodes: tight
+        nodes: named
             .iter()
-            .map(|&(_, i)| problem.nodes[i].id.clone())
+            .map(|&v| problem.nodes[v.index()].id.clone())
             .collect(),
         excitation: level.value,
         weakest_direction: level.direction,

@@ -89,6 +89,8 @@ pub struct Node {
     pub position: Option<[f64; 2]>,
     /// Latitude and longitude in degrees, when given instead of a position.
     pub lat_lon: Option<[f64; 2]>,
+    /// Most links the unit may take part in (radio ports), when limited.
+    pub max_links: Option<u32>,
 }
 
 /// Mean Earth radius in km: the IUGG mean radius R₁ = (2a + b)/3 of the
@@ -860,11 +862,24 @@ impl Validator<'_> {
             .collect();
         let mut nodes = Vec::with_capacity(logs.len());
         for ((node, log), (position, lat_lon)) in raw_nodes.iter().zip(logs).zip(positions) {
+            let max_links = match &node.max_links {
+                None => None,
+                Some(m) => match u32::try_from(*m.get_ref()) {
+                    Ok(v) if v <= 1_000_000 => Some(v),
+                    _ => {
+                        return Err(self.err(
+                            m,
+                            "max_links: expected a whole number of links from 0 to 1000000",
+                        ));
+                    }
+                },
+            };
             nodes.push(Node {
                 id: node.id.get_ref().clone(),
                 log: log?,
                 position,
                 lat_lon,
+                max_links,
             });
         }
 

@@ -47,6 +47,7 @@ pub(super) struct RawNode {
     pub log: Spanned<String>,
     pub position: Option<Spanned<Vec<f64>>>,
     pub lat_lon: Option<Spanned<Vec<f64>>>,
+    pub max_links: Option<Spanned<i64>>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -104,6 +104,9 @@ impl Problem {
                 }
                 (None, None) => {}
             }
+            if let Some(m) = v.max_links {
+                let _ = writeln!(out, "max_links = {m}");
+            }
         }
         for l in &self.links {
             let _ = writeln!(out, "\n[[link]]");

@@ -49,6 +49,7 @@ pub fn network(
             log,
             position: None,
             lat_lon: None,
+            max_links: None,
         })
         .collect();
     let links = edges

@@ -202,6 +202,7 @@ pub fn synthetic(
             id: format!("n{i}"),
             position: None,
             lat_lon: None,
+            max_links: None,
             log: Log {
                 path: PathBuf::from(format!("n{i}.csv")),
                 p,

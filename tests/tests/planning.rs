@@ -237,6 +237,46 @@ proptest! {
         }
     }
 
+    /// Radio ports (each unit limited to 1–3 links with probability 1/2):
+    /// the plan keeps every limit and costs what brute force over the link
+    /// subsets within the limits costs (or both are infeasible).
+    #[test]
+    fn plan_with_port_limits_matches_brute_force(
+        (n, p, edges, gram) in instance_strategy(),
+        limits in prop::collection::vec(prop::option::weighted(0.5, 1u32..=3), 7),
+    ) {
+        let (mut problem, table) = synthetic(n, p, &edges, 2, gram, 0.05);
+        for (v, &m) in problem.nodes.iter_mut().zip(&limits) {
+            v.max_links = m;
+        }
+        let ends = |k: usize| match problem.links[k].ends {
+            exmesh::problem::Ends::TwoWay(a, b) => (a.index(), b.index()),
+            exmesh::problem::Ends::OneWay { from, to } => (from.index(), to.index()),
+        };
+        let within = |chosen: &[usize]| {
+            let mut used = vec![0u32; n];
+            for &k in chosen {
+                let (a, b) = ends(k);
+                used[a] += 1;
+                used[b] += 1;
+            }
+            problem.nodes.iter().zip(&used).all(|(v, &u)| v.max_links.is_none_or(|m| u <= m))
+        };
+        let got = plan(&problem, &table);
+        let want = cheapest(&problem, |chosen| within(chosen) && holds(&problem, &table, chosen));
+        match want {
+            None => prop_assert_eq!(got.status, PlanStatus::Infeasible),
+            Some(best) => {
+                prop_assert_eq!(got.status, PlanStatus::Optimal);
+                let cost = got.cost.unwrap();
+                prop_assert!((cost - best).abs() < 1e-9, "plan {} vs brute force {}", cost, best);
+                let chosen = chosen_indices(&problem, &got);
+                prop_assert!(within(&chosen), "port limit broken");
+                prop_assert!(holds(&problem, &table, &chosen));
+            }
+        }
+    }
+
     /// One excited unit, two-way links: the plan costs what petgraph's
     /// Kruskal minimum spanning tree costs on random connected graphs.
     #[test]
@@ -703,4 +743,80 @@ fn infeasible_remedies_name_units_that_can_help() {
             "{remedy}"
         );
     }
+}
+
+/// Radio ports through the binary: with `max_links = 2` on the demo's
+/// mast-summit, `plan`, `budget` and `retire` never give it more than two
+/// links; with `max_links = 0` on the small problem's c (which needs a
+/// link) the plan is infeasible and the remedy names c's limit.
+#[test]
+fn port_limits_hold_everywhere() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let folder = Folder::new();
+    let dir = folder.dir.path();
+    std::fs::create_dir_all(dir.join("logs")).unwrap();
+    for e in std::fs::read_dir(root.join("problems/plateau-masts/logs")).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), dir.join("logs").join(e.file_name())).unwrap();
+    }
+    let text = std::fs::read_to_string(root.join("problems/plateau-masts/problem.toml")).unwrap();
+    let limited = text.replace(
+        "id = \"mast-summit\"\nlog = \"logs/mast-summit.csv\"\n",
+        "id = \"mast-summit\"\nlog = \"logs/mast-summit.csv\"\nmax_links = 2\n",
+    );
+    assert_ne!(limited, text);
+    folder.write("problem.toml", &limited);
+    let touching = |links: &serde_json::Value| {
+        links
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|l| {
+                let s = |k: &str| l[k].as_str().map(str::to_string).unwrap_or_default();
+                let id = l.as_str().map(str::to_string).unwrap_or_else(|| s("id"));
+                id.contains("mast-summit")
+            })
+            .count()
+    };
+    let plan = exmesh(dir, &["plan", "problem.toml", "--json"]);
+    assert_eq!(plan.code, 0, "{}", plan.stderr);
+    let v: serde_json::Value = serde_json::from_str(&plan.stdout).unwrap();
+    assert!(touching(&v["links"]) <= 2, "{}", v["links"]);
+    let budget = exmesh(
+        dir,
+        &[
+            "budget",
+            "problem.toml",
+            "--json",
+            "--steps",
+            "2",
+            "--time-limit",
+            "20",
+        ],
+    );
+    let b: serde_json::Value = serde_json::from_str(&budget.stdout).unwrap();
+    for p in b["front"].as_array().unwrap() {
+        assert!(touching(&p["links"]) <= 2, "{}", p["links"]);
+    }
+    let retire = exmesh(
+        dir,
+        &["retire", "problem.toml", "--node", "mast-fold", "--json"],
+    );
+    let r: serde_json::Value = serde_json::from_str(&retire.stdout).unwrap();
+    assert!(touching(&r["plan"]["links"]) <= 2, "{}", r["plan"]["links"]);
+
+    let small = Folder::new();
+    small_problem(&small);
+    let text = std::fs::read_to_string(small.path("problem.toml")).unwrap();
+    let zero = text.replace(
+        "id = \"c\"\nlog = \"logs/c.csv\"\n",
+        "id = \"c\"\nlog = \"logs/c.csv\"\nmax_links = 0\n",
+    );
+    assert_ne!(zero, text);
+    small.write("problem.toml", &zero);
+    let run = exmesh(small.dir.path(), &["plan", "problem.toml", "--json"]);
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    let v: serde_json::Value = serde_json::from_str(&run.stdout).unwrap();
+    let remedy = v["shortfalls"][0]["remedy"].as_str().unwrap();
+    assert!(remedy.contains("c (max_links = 0"), "{remedy}");
 }

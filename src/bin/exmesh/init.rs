@@ -176,6 +176,7 @@ pub(crate) fn init(
             log,
             position: None,
             lat_lon: None,
+            max_links: None,
         });
     }
     let p = p.unwrap_or(1);

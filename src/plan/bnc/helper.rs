@@ -139,13 +139,16 @@ impl Helper {
     ) -> Helper {
         let oracle = inst.oracle.fresh();
         let (n, links, caps) = (inst.n, inst.links.clone(), inst.caps.clone());
+        let ports = inst.ports.clone();
         let (to, jobs) = mpsc::channel::<Job>();
         let (done, from) = mpsc::channel();
         let stop = Arc::new(AtomicBool::new(false));
         let flag = stop.clone();
         let sink = progress.clone();
         scope.spawn(move || {
-            let sub = Instance::with_oracle(n, links, Rc::new(oracle)).with_caps(caps);
+            let sub = Instance::with_oracle(n, links, Rc::new(oracle))
+                .with_caps(caps)
+                .with_ports(ports);
             for job in jobs {
                 let result = serve(&sub, job, limits, improve, &flag, &sink);
                 if done.send(result).is_err() {

@@ -243,6 +243,16 @@ pub(super) fn build_lp(
             }
         }
     }
+    // Port limits: Σ y_k over the links touching unit i ≤ its limit.
+    if let Some(ports) = &inst.ports {
+        for (i, &limit) in ports.iter().enumerate() {
+            if (inst.touching[i].len() as f64) > limit {
+                let expr: Vec<(Col, f64)> =
+                    inst.touching[i].iter().map(|&k| (vars[k], 1.0)).collect();
+                problem.row(&expr, Sense::Le, limit.max(0.0));
+            }
+        }
+    }
     let mut has = vec![false; pool.rows.len()];
     for &i in rows {
         let i = i as usize;
