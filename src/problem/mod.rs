@@ -912,27 +912,65 @@ impl Validator<'_> {
         }
         if let Some(c) = &raw.candidates {
             let cand = c.get_ref();
-            let range = self.number(
+            // The rule's classes: the three keys of [candidates] (one class
+            // without a name) or its [[candidates.class]] tables.
+            let mut classes: Vec<(Option<String>, f64, f64, f64)> = Vec::new();
+            let range_text = format!(
+                "a positive distance in km, at most {:e}",
+                limits::MAX_DISTANCE
+            );
+            let mut class = |name: Option<String>,
+                             range: &Spanned<f64>,
+                             fixed: &Spanned<f64>,
+                             per_km: &Spanned<f64>|
+             -> Result<(), InputError> {
+                let r = self.number(range, "range", distance, &range_text)?;
+                let f = self.number(fixed, "fixed_cost", cost, &cost_text)?;
+                let k = self.number(per_km, "cost_per_km", cost, &cost_text)?;
+                if f + k * r > limits::MAX_COST {
+                    return Err(self.err(
+                        per_km,
+                        format!(
+                            "fixed_cost + cost_per_km · range = {:e}; expected a link cost of at \
+                             most {:e}",
+                            f + k * r,
+                            limits::MAX_COST
+                        ),
+                    ));
+                }
+                classes.push((name, r, f, k));
+                Ok(())
+            };
+            match (
                 &cand.range,
-                "range",
-                distance,
-                &format!(
-                    "a positive distance in km, at most {:e}",
-                    limits::MAX_DISTANCE
-                ),
-            )?;
-            let fixed = self.number(&cand.fixed_cost, "fixed_cost", cost, &cost_text)?;
-            let per_km = self.number(&cand.cost_per_km, "cost_per_km", cost, &cost_text)?;
-            if fixed + per_km * range > limits::MAX_COST {
-                return Err(self.err(
-                    &cand.cost_per_km,
-                    format!(
-                        "fixed_cost + cost_per_km · range = {:e}; expected a link cost of at \
-                         most {:e}",
-                        fixed + per_km * range,
-                        limits::MAX_COST
-                    ),
-                ));
+                &cand.fixed_cost,
+                &cand.cost_per_km,
+                cand.class.is_empty(),
+            ) {
+                (Some(r), Some(f), Some(k), true) => class(None, r, f, k)?,
+                (None, None, None, false) => {
+                    let mut names: HashMap<String, usize> = HashMap::new();
+                    for cl in &cand.class {
+                        let c = cl.get_ref();
+                        let name = c.name.get_ref().clone();
+                        self.id(&c.name, "class")?;
+                        if let Some(line) =
+                            names.insert(name.clone(), self.lines.line(c.name.span().start))
+                        {
+                            return Err(self.err(
+                                &c.name,
+                                format!("duplicate class name \"{name}\" (also on line {line}); expected each [[candidates.class]] name once"),
+                            ));
+                        }
+                        class(Some(name), &c.range, &c.fixed_cost, &c.cost_per_km)?;
+                    }
+                }
+                _ => {
+                    return Err(self.err(
+                        c,
+                        "[candidates]: expected either `range`, `fixed_cost` and `cost_per_km`, or one or more [[candidates.class]] tables (each with `name`, `range`, `fixed_cost`, `cost_per_km`), not both",
+                    ));
+                }
             }
             if nodes.iter().all(|n| n.position.is_none()) {
                 return Err(self.err(c, "[candidates] needs unit positions; expected `position = [x, y]` (km) or `lat_lon = [latitude, longitude]` (degrees) on the [[node]] entries"));
@@ -942,23 +980,32 @@ impl Validator<'_> {
                     let Some(dist) = nodes[a].distance_km(&nodes[b]) else {
                         continue;
                     };
-                    if dist > range {
-                        continue;
-                    }
-                    let id = format!("{}<->{}", nodes[a].id, nodes[b].id);
+                    let pair = format!("{}<->{}", nodes[a].id, nodes[b].id);
                     let reverse = format!("{}<->{}", nodes[b].id, nodes[a].id);
-                    if ids.contains_key(&id) || ids.contains_key(&reverse) {
+                    if ids.contains_key(&pair) || ids.contains_key(&reverse) {
                         continue;
                     }
-                    links.push(Link {
-                        id,
-                        ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
-                        cost: fixed + per_km * dist,
-                        weight: gains.link_weight,
-                        installed: false,
-                        required: false,
-                        generated: true,
-                    });
+                    for (name, range, fixed, per_km) in &classes {
+                        if dist > *range {
+                            continue;
+                        }
+                        let id = match name {
+                            None => pair.clone(),
+                            Some(n) => format!("{pair}:{n}"),
+                        };
+                        if ids.contains_key(&id) {
+                            continue;
+                        }
+                        links.push(Link {
+                            id,
+                            ends: Ends::TwoWay(NodeId(a as u32), NodeId(b as u32)),
+                            cost: fixed + per_km * dist,
+                            weight: gains.link_weight,
+                            installed: false,
+                            required: false,
+                            generated: true,
+                        });
+                    }
                 }
             }
         }

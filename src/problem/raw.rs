@@ -67,6 +67,17 @@ pub(super) struct RawLink {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(super) struct RawCandidates {
+    pub range: Option<Spanned<f64>>,
+    pub fixed_cost: Option<Spanned<f64>>,
+    pub cost_per_km: Option<Spanned<f64>>,
+    #[serde(default)]
+    pub class: Vec<Spanned<RawClass>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawClass {
+    pub name: Spanned<String>,
     pub range: Spanned<f64>,
     pub fixed_cost: Spanned<f64>,
     pub cost_per_km: Spanned<f64>,

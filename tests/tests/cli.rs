@@ -795,3 +795,49 @@ fn init_writes_a_problem_that_loads() {
     );
     assert!(!dir.join("d.toml").exists());
 }
+
+/// Two radio classes from one `[candidates]` rule: class `short` (range
+/// 1.2 km, 100 + 10/km) and `long` (range 3 km, 500 + 1/km) on units at
+/// 0, 1 and 2.5 km: a–b gets both classes (110 and 501), b–c (1.5 km) and
+/// a–c (2.5 km) only `long` (501.5, 502.5); with a excited alone the
+/// cheapest plan is a–b short + b–c long = 611.5 (hand computation). A rule
+/// with both the plain keys and classes exits 2 at its line.
+#[test]
+fn candidate_classes_offer_two_radios_per_pair() {
+    let folder = Folder::new();
+    folder.write("logs/a.csv", &constant_log(&[1.0]));
+    folder.write("logs/b.csv", &constant_log(&[0.0]));
+    folder.write("logs/c.csv", &constant_log(&[0.0]));
+    let text = "[network]\nparameters = 1\nwindow = 2.0\nmin_excitation = 0.5\n\
+         [[node]]\nid = \"a\"\nlog = \"logs/a.csv\"\nposition = [0.0, 0.0]\n\
+         [[node]]\nid = \"b\"\nlog = \"logs/b.csv\"\nposition = [1.0, 0.0]\n\
+         [[node]]\nid = \"c\"\nlog = \"logs/c.csv\"\nposition = [2.5, 0.0]\n\
+         [candidates]\n\
+         [[candidates.class]]\nname = \"short\"\nrange = 1.2\nfixed_cost = 100.0\ncost_per_km = 10.0\n\
+         [[candidates.class]]\nname = \"long\"\nrange = 3.0\nfixed_cost = 500.0\ncost_per_km = 1.0\n";
+    folder.write("problem.toml", text);
+    let dir = folder.dir.path();
+    let all = exmesh(
+        dir,
+        &["check", "problem.toml", "--all", "--json", "--skip-rate"],
+    );
+    assert!(all.code <= 1, "{}", all.stderr);
+    let v: serde_json::Value = serde_json::from_str(&all.stdout).unwrap();
+    assert_eq!(
+        v["links"],
+        serde_json::json!(["a<->b:short", "a<->b:long", "a<->c:long", "b<->c:long"])
+    );
+    let plan = exmesh(dir, &["plan", "problem.toml", "--json"]);
+    assert_eq!(plan.code, 0, "{}", plan.stderr);
+    let p: serde_json::Value = serde_json::from_str(&plan.stdout).unwrap();
+    assert!(
+        (p["cost"].as_f64().unwrap() - 611.5).abs() < 1e-9,
+        "{}",
+        p["cost"]
+    );
+    let both = text.replace("[candidates]\n", "[candidates]\nrange = 1.0\n");
+    folder.write("problem.toml", &both);
+    let bad = exmesh(dir, &["check", "problem.toml", "--all"]);
+    assert_eq!(bad.code, 2, "{}", bad.stderr);
+    assert!(bad.stderr.contains("not both"), "{}", bad.stderr);
+}
