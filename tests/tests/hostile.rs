@@ -639,3 +639,81 @@ fn oversized_excitation_tables_are_rejected_at_load() {
         "numbers for the excitation table",
     );
 }
+
+/// Bad input for the keys and flags of the field engineer's workflow: each
+/// exits 2 naming the file and line (or the flag) and writes nothing.
+#[test]
+fn new_keys_and_flags_refuse_bad_input() {
+    use super::fixtures::{Folder, exmesh, small_problem_with_plan};
+    let folder = Folder::new();
+    small_problem_with_plan(&folder);
+    let dir = folder.dir.path();
+    let text = std::fs::read_to_string(folder.path("problem.toml")).unwrap();
+    let line_of = |t: &str, needle: &str| t.lines().position(|l| l.contains(needle)).unwrap() + 1;
+    for (extra, words) in [
+        ("max_links = -1\n", "max_links: expected a whole number"),
+        ("max_links = 1.5\n", "malformed problem file"),
+    ] {
+        let bad = text.replace(
+            "id = \"c\"\nlog = \"logs/c.csv\"\n",
+            &format!("id = \"c\"\nlog = \"logs/c.csv\"\n{extra}"),
+        );
+        folder.write("bad.toml", &bad);
+        let run = exmesh(dir, &["plan", "bad.toml"]);
+        assert_eq!(run.code, 2, "{extra}: {}", run.stderr);
+        let line = line_of(&bad, extra.trim());
+        assert!(
+            run.stderr.contains(&format!("bad.toml:{line}:")) && run.stderr.contains(words),
+            "{extra}: {}",
+            run.stderr
+        );
+    }
+    // A class name used twice.
+    let classes = "[network]\nparameters = 2\nwindow = 4.0\n\
+        [[node]]\nid = \"a\"\nlog = \"logs/a.csv\"\nposition = [0.0, 0.0]\n\
+        [[node]]\nid = \"b\"\nlog = \"logs/b.csv\"\nposition = [1.0, 0.0]\n\
+        [candidates]\n\
+        [[candidates.class]]\nname = \"x\"\nrange = 2.0\nfixed_cost = 1.0\ncost_per_km = 1.0\n\
+        [[candidates.class]]\nname = \"x\"\nrange = 3.0\nfixed_cost = 1.0\ncost_per_km = 1.0\n";
+    folder.write("classes.toml", classes);
+    let run = exmesh(dir, &["check", "classes.toml", "--all"]);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    let second = classes.match_indices("name = \"x\"").nth(1).unwrap().0;
+    let line = classes[..second].lines().count() + 1;
+    assert!(
+        run.stderr.contains(&format!("classes.toml:{line}:"))
+            && run.stderr.contains("duplicate class name"),
+        "{}",
+        run.stderr
+    );
+    // --write-problem onto the problem itself; --out-dir onto a file.
+    let run = exmesh(
+        dir,
+        &[
+            "retire",
+            "problem.toml",
+            "--node",
+            "c",
+            "--write-problem",
+            "problem.toml",
+        ],
+    );
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    assert!(run.stderr.contains("--write-problem"), "{}", run.stderr);
+    assert_eq!(
+        std::fs::read_to_string(folder.path("problem.toml")).unwrap(),
+        text
+    );
+    folder.write("taken", "a file");
+    let run = exmesh(dir, &["budget", "problem.toml", "--out-dir", "taken"]);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    assert!(run.stderr.contains("--out-dir"), "{}", run.stderr);
+    // compare with a plan naming an unknown unit: the file and line.
+    folder.write(
+        "odd.json",
+        "{\"links\": [\n{\"from\": \"a\", \"to\": \"zz\", \"two_way\": false}\n]}",
+    );
+    let run = exmesh(dir, &["compare", "problem.toml", "plan.json", "odd.json"]);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    assert!(run.stderr.contains("odd.json:2:"), "{}", run.stderr);
+}
