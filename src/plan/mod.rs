@@ -52,16 +52,29 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
     let robust = options.survive != Survive::Nothing;
     // With a survival requirement the robust plan gets ROBUST_SHARE of the
     // time limit and the plain plan it is compared with the rest.
+    // With a target rate, the rate after failures gets RATE_AFTER_SHARE
+    // of the limit, taken from the robust plan's share.
+    let share = if problem.settings.target_rate.is_some() {
+        ROBUST_SHARE - RATE_AFTER_SHARE
+    } else {
+        ROBUST_SHARE
+    };
     let first = Options {
         time_limit: options
             .time_limit
-            .map(|d| if robust { d.mul_f64(ROBUST_SHARE) } else { d }),
+            .map(|d| if robust { d.mul_f64(share) } else { d }),
         ..options.clone()
     };
     let mut result = plan_once(problem, table, &first);
     if robust {
+        let reserve = if problem.settings.target_rate.is_some() {
+            RATE_AFTER_SHARE
+        } else {
+            0.0
+        };
         let left = options.time_limit.map(|d| {
-            d.saturating_sub(started.elapsed())
+            d.mul_f64(1.0 - reserve)
+                .saturating_sub(started.elapsed())
                 .max(std::time::Duration::from_millis(1))
         });
         let plain = plan_once(
@@ -85,38 +98,15 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
             target_kept: None,
             worst_failure: None,
             worst_failure_rate: None,
+            added_for_rate: Vec::new(),
         });
         // With a target: the certified rate after each single failure of
-        // the kind survived (when the time limit leaves room).
-        let in_time = options.time_limit.is_none_or(|d| started.elapsed() < d);
+        // the kind survived, with links added where it falls short (when
+        // the time limit leaves room).
+        let deadline = options.time_limit.map(|d| started + d);
+        let in_time = deadline.is_none_or(|d| Instant::now() < d);
         if let (Some(t), Some(_), true) = (problem.settings.target_rate, result.cost, in_time) {
-            let set = result.link_set(problem);
-            let s = crate::whatif::stress::stress(
-                problem,
-                table,
-                &set,
-                true,
-                &crate::progress::Sink::silent(),
-            );
-            let kind = match options.survive {
-                Survive::Unit => crate::whatif::stress::FailureKind::Unit,
-                _ => crate::whatif::stress::FailureKind::Link,
-            };
-            let worst = s
-                .scenarios
-                .iter()
-                .filter(|sc| sc.kind == kind)
-                .min_by(|a, b| {
-                    a.rate
-                        .unwrap_or(0.0)
-                        .total_cmp(&b.rate.unwrap_or(0.0))
-                        .then(a.id.cmp(&b.id))
-                });
-            if let Some(r) = result.robustness.as_mut() {
-                r.target_kept = Some(worst.is_none_or(|w| w.rate.is_some_and(|x| x >= t)));
-                r.worst_failure = worst.map(|w| w.id.clone());
-                r.worst_failure_rate = worst.and_then(|w| w.rate);
-            }
+            keep_rate_after_failures(problem, table, &mut result, t, options.survive, deadline);
         }
     }
     if result.cost.is_some() {
@@ -126,6 +116,153 @@ pub fn plan(problem: &Problem, table: &ExcitationTable, options: &Options) -> Pl
         explain(problem, table, &mut result);
     }
     result
+}
+
+/// Most rounds of additions for the rate after failures.
+const RATE_REPAIR_ROUNDS: usize = 6;
+
+/// The single failures of `kind` whose certified rate is below `target`,
+/// worst first, with their rates.
+/// `None` when the deadline left some failure uncertified.
+fn failures_below(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &LinkSet,
+    kind: crate::whatif::stress::FailureKind,
+    deadline: Option<Instant>,
+) -> Option<Vec<(String, Option<f64>)>> {
+    let (s, late) = crate::whatif::stress::stress_until(
+        problem,
+        table,
+        set,
+        true,
+        &crate::progress::Sink::silent(),
+        deadline,
+    );
+    if late {
+        return None;
+    }
+    let mut v: Vec<(String, Option<f64>)> = s
+        .scenarios
+        .iter()
+        .filter(|sc| sc.kind == kind)
+        .map(|sc| (sc.id.clone(), sc.rate))
+        .collect();
+    v.sort_by(|a, b| {
+        a.1.unwrap_or(0.0)
+            .total_cmp(&b.1.unwrap_or(0.0))
+            .then(a.0.cmp(&b.0))
+    });
+    Some(v)
+}
+
+/// Certifies every single failure of the kind the plan survives; while
+/// the worst one (a link failing) falls below `target`, runs the rate
+/// stage on the plan without that link and adds what it adds (the
+/// condition after any failure still holds: adding links keeps it; the
+/// in-degree caps and port limits are checked). Records in `robustness`
+/// whether the target is kept, the worst failure and its rate; when links
+/// were added, the plan's links, cost, gap, status and rate certificate
+/// are those of the larger set.
+fn keep_rate_after_failures(
+    problem: &Problem,
+    table: &ExcitationTable,
+    result: &mut Plan,
+    target: f64,
+    survive: Survive,
+    deadline: Option<Instant>,
+) {
+    use crate::whatif::stress::FailureKind;
+    let kind = match survive {
+        Survive::Unit => FailureKind::Unit,
+        _ => FailureKind::Link,
+    };
+    let mut set = result.link_set(problem);
+    let mut added: Vec<crate::problem::LinkId> = Vec::new();
+    let mut below = failures_below(problem, table, &set, kind, deadline);
+    for _ in 0..RATE_REPAIR_ROUNDS {
+        let Some((id, rate)) = below.as_ref().and_then(|b| b.first().cloned()) else {
+            break;
+        };
+        if rate.is_some_and(|r| r >= target) || kind == FailureKind::Unit {
+            break;
+        }
+        if deadline.is_some_and(|d| Instant::now() >= d) {
+            break;
+        }
+        let Some(l) = problem.link_id(&id) else { break };
+        let without = LinkSet::new(set.ids().iter().copied().filter(|&k| k != l).collect());
+        let r = rate::meet_target(
+            problem,
+            table,
+            &without,
+            target,
+            deadline,
+            &|_| true,
+            &crate::progress::Sink::silent(),
+        );
+        let extra: Vec<crate::problem::LinkId> = r
+            .set
+            .ids()
+            .iter()
+            .copied()
+            .filter(|k| !set.ids().contains(k))
+            .collect();
+        if !r.met || extra.is_empty() {
+            break;
+        }
+        let mut bigger: Vec<crate::problem::LinkId> = set.ids().to_vec();
+        bigger.extend(&extra);
+        let bigger = LinkSet::new(bigger);
+        if !rate::within_caps(problem, &crate::certify::degree_caps(problem), &bigger) {
+            break;
+        }
+        set = bigger;
+        added.extend(extra);
+        below = failures_below(problem, table, &set, kind, deadline);
+    }
+    // Unknown when the deadline left some failure uncertified.
+    let worst = below.as_ref().map(|b| b.first().cloned());
+    if !added.is_empty() {
+        let cost = problem.cost(&set);
+        let lower = result.lower_bound.unwrap_or(0.0);
+        result.links = chosen_links(problem, &set);
+        result.cost = Some(cost);
+        result.gap = Some(if cost > 0.0 {
+            ((cost - lower) / cost).max(0.0)
+        } else {
+            0.0
+        });
+        if result.status == PlanStatus::Optimal {
+            result.status = PlanStatus::Feasible;
+        }
+        if let Some(rp) = result.rate.as_mut() {
+            let cert = crate::certify::certify(problem, table, &set);
+            rp.certified = cert.rate;
+            rp.met = cert.rate.is_some_and(|x| x >= target);
+            rp.certificate = cert;
+            rp.added_links
+                .extend(added.iter().map(|&k| problem.link(k).id.clone()));
+            rp.set = set.clone();
+        }
+        let check = analysis::check(problem, table, &set);
+        result.source_components = check.source_components;
+    }
+    if let Some(r) = result.robustness.as_mut() {
+        if !added.is_empty() {
+            r.extra_cost = r.plain_cost.zip(result.cost).map(|(p, c)| c - p);
+        }
+        if let Some(worst) = worst {
+            r.target_kept = Some(
+                worst
+                    .as_ref()
+                    .is_none_or(|w| w.1.is_some_and(|x| x >= target)),
+            );
+            r.worst_failure = worst.as_ref().map(|w| w.0.clone());
+            r.worst_failure_rate = worst.and_then(|w| w.1);
+        }
+        r.added_for_rate = added.iter().map(|&k| problem.link(k).id.clone()).collect();
+    }
 }
 
 /// Fills each chosen link's `role` and `reason` (see [`link_reasons`]).
@@ -248,6 +385,10 @@ pub fn link_reasons(
 /// Share of the time limit for the robust plan when `--survive` asks for
 /// one (the plain plan it is compared with gets the rest).
 const ROBUST_SHARE: f64 = 0.7;
+
+/// Share of the time limit kept for certifying (and restoring) the rate
+/// after single failures when `--survive` meets a target rate.
+const RATE_AFTER_SHARE: f64 = 0.3;
 
 /// One planning run: the structural stage, then the rate stage when the
 /// problem sets `target_rate`.

@@ -116,6 +116,9 @@ pub struct Robustness {
     pub worst_failure: Option<String>,
     /// See `worst_failure`.
     pub worst_failure_rate: Option<f64>,
+    /// Links added so that the target rate holds after single link
+    /// failures (ids; also in the rate stage's `added_links`).
+    pub added_for_rate: Vec<String>,
 }
 
 /// Search figures (deterministic: no timings).

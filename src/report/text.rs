@@ -768,6 +768,20 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             )?,
             _ => writeln!(out, "survives {what}")?,
         }
+        if !r.added_for_rate.is_empty() {
+            writeln!(
+                out,
+                "added so that the target rate holds after a single link failure: {}",
+                r.added_for_rate.join(", ")
+            )?;
+        }
+        if let (None, Some(t)) = (r.target_kept, p.rate.as_ref().map(|x| x.target)) {
+            writeln!(
+                out,
+                "the time limit left no time to certify the rate after every single failure: whether the target {} holds after one is not known; run `exmesh stress` on the plan",
+                num::rate_nearest(t)
+            )?;
+        }
         if let (Some(kept), Some(t)) = (r.target_kept, p.rate.as_ref().map(|x| x.target)) {
             if kept {
                 writeln!(
@@ -780,7 +794,7 @@ pub fn plan(p: &Plan, out: &mut impl Write) -> io::Result<()> {
             } else {
                 writeln!(
                     out,
-                    "the target rate {} is NOT kept after every such failure: after {} the certified rate is {}{} — exmesh does not plan for the rate after failures; add links and check with `exmesh stress`",
+                    "the target rate {} is NOT kept after every such failure: after {} the certified rate is {}{} — no addition found restores it (unit losses are not repaired); add links and check them with `exmesh stress`",
                     num::rate_nearest(t),
                     r.worst_failure.as_deref().unwrap_or("-"),
                     r.worst_failure_rate.map_or("none".to_string(), num::rate),

@@ -85,6 +85,20 @@ pub fn stress(
     rates: bool,
     progress: &Sink,
 ) -> Stress {
+    stress_until(problem, table, set, rates, progress, None).0
+}
+
+/// Like [`stress`], certifying no scenario after `deadline` (its rate is
+/// then null); returns whether the deadline left some unchecked.
+pub fn stress_until(
+    problem: &Problem,
+    table: &ExcitationTable,
+    set: &LinkSet,
+    rates: bool,
+    progress: &Sink,
+    deadline: Option<std::time::Instant>,
+) -> (Stress, bool) {
+    let late = std::sync::atomic::AtomicBool::new(false);
     let total = set.ids().len() + problem.n();
     let done = AtomicUsize::new(0);
     let tick = || {
@@ -93,6 +107,10 @@ pub fn stress(
     };
     let base = analysis::check(problem, table, set);
     let rate_of = |p: &Problem, t: &ExcitationTable, s: &LinkSet, holds: bool| -> Option<f64> {
+        if rates && holds && deadline.is_some_and(|d| std::time::Instant::now() >= d) {
+            late.store(true, Ordering::Relaxed);
+            return None;
+        }
         (rates && holds)
             .then(|| certify(p, t, s))
             .and_then(|c: Certificate| c.rate)
@@ -179,7 +197,7 @@ pub fn stress(
             .map(|s| s.id.clone())
             .collect()
     };
-    Stress {
+    let stress = Stress {
         network: problem.settings.name.clone(),
         baseline_holds: base.condition_holds,
         baseline_rate,
@@ -193,5 +211,6 @@ pub fn stress(
             .map(|s| s.id.clone())
             .collect(),
         scenarios,
-    }
+    };
+    (stress, late.load(Ordering::Relaxed))
 }

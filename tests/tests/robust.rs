@@ -249,4 +249,7 @@ fn survival_with_a_target_reports_the_rate_after_failures() {
         assert_eq!(x["below_target"], serde_json::json!(below));
     }
     assert_eq!(s["target_rate"], 0.05);
+    // Links added for the rate never break survival: no single link
+    // failure breaks the condition.
+    assert_eq!(s["critical_links"], serde_json::json!([]));
 }
