@@ -132,6 +132,46 @@ pub(crate) fn within_ports(problem: &Problem, set: &LinkSet) -> bool {
         .all(|(n, &u)| n.max_links.is_none_or(|m| u <= m))
 }
 
+/// Certificates and raised-excitation plans already computed, shared by
+/// the rate stages of one command (`budget` runs one per rate it reaches;
+/// they certify many of the same link sets and re-plan at the same raised
+/// excitations). A certificate depends only on the link set, so a hit
+/// gives the same numbers.
+#[derive(Default)]
+pub struct Memo {
+    certs: std::sync::Mutex<std::collections::HashMap<Vec<LinkId>, Certificate>>,
+    raised: std::sync::Mutex<std::collections::HashMap<usize, Option<LinkSet>>>,
+}
+
+impl Memo {
+    /// The certificate of `set`, computed once.
+    pub(crate) fn certify(
+        &self,
+        problem: &Problem,
+        table: &ExcitationTable,
+        schedule: &Schedule,
+        set: &LinkSet,
+        progress: &Sink,
+    ) -> Certificate {
+        let key = set.ids().to_vec();
+        let known = self
+            .certs
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
+            .get(&key)
+            .cloned();
+        if let Some(c) = known {
+            return c;
+        }
+        let c = certify_with(problem, table, schedule, set, progress);
+        self.certs
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
+            .insert(key, c.clone());
+        c
+    }
+}
+
 pub(crate) fn rate_of(c: &Certificate) -> f64 {
     c.rate.unwrap_or(0.0)
 }
@@ -156,7 +196,35 @@ pub fn meet_target(
     keep: &dyn Fn(&LinkSet) -> bool,
     progress: &Sink,
 ) -> RatePlan {
+    meet_target_with(
+        problem,
+        table,
+        start,
+        target,
+        deadline,
+        keep,
+        progress,
+        &Memo::default(),
+    )
+}
+
+/// [`meet_target`] with certificates and raised-excitation plans shared
+/// through `memo`.
+#[allow(clippy::too_many_arguments)]
+pub fn meet_target_with(
+    problem: &Problem,
+    table: &ExcitationTable,
+    start: &LinkSet,
+    target: f64,
+    deadline: Option<Instant>,
+    keep: &dyn Fn(&LinkSet) -> bool,
+    progress: &Sink,
+    memo: &Memo,
+) -> RatePlan {
     let schedule = Schedule::new(problem);
+    let certify_with = |p: &Problem, t: &ExcitationTable, s: &Schedule, set: &LinkSet, g: &Sink| {
+        memo.certify(p, t, s, set, g)
+    };
     let structural_cost = problem.cost(start);
     let mut set = start.clone();
     let mut cert = certify_with(problem, table, &schedule, &set, progress);
@@ -223,7 +291,9 @@ pub fn meet_target(
         }
     }
     if rate_of(&cert) >= target {
-        let (s2, c2, late_now) = prune(problem, table, &schedule, set, cert, target, keep, &late);
+        let (s2, c2, late_now) = prune(
+            problem, table, &schedule, set, cert, target, keep, &late, memo,
+        );
         timed_out |= late_now;
         set = s2;
         cert = c2;
@@ -247,18 +317,35 @@ pub fn meet_target(
                 break;
             }
             let mu = base * (top / base).powf(step as f64 / (RAISE_STEPS + 1) as f64);
-            let stronger = table.with_min_excitation(mu);
-            let options = Options {
-                time_limit: deadline.map(|d| d.saturating_duration_since(Instant::now())),
-                node_limit: Some(RAISE_NODES),
-                ..Options::default()
+            let known = memo
+                .raised
+                .lock()
+                .unwrap_or_else(std::sync::PoisonError::into_inner)
+                .get(&step)
+                .cloned();
+            let planned = match known {
+                Some(p) => p,
+                None => {
+                    let stronger = table.with_min_excitation(mu);
+                    let options = Options {
+                        time_limit: deadline.map(|d| d.saturating_duration_since(Instant::now())),
+                        node_limit: Some(RAISE_NODES),
+                        ..Options::default()
+                    };
+                    // The structural stage alone (it never looks at the target).
+                    let p = match structural::run(problem, &stronger, &options) {
+                        Structural::Done(p) if p.status == PlanStatus::Infeasible => None,
+                        Structural::Done(p) => Some(p.link_set(problem)),
+                        Structural::Found(found) => Some(found.set),
+                    };
+                    memo.raised
+                        .lock()
+                        .unwrap_or_else(std::sync::PoisonError::into_inner)
+                        .insert(step, p.clone());
+                    p
+                }
             };
-            // The structural stage alone (it never looks at the target).
-            let candidate = match structural::run(problem, &stronger, &options) {
-                Structural::Done(p) if p.status == PlanStatus::Infeasible => break,
-                Structural::Done(p) => p.link_set(problem),
-                Structural::Found(found) => found.set,
-            };
+            let Some(candidate) = planned else { break };
             if !keep(&candidate) {
                 continue;
             }
@@ -266,8 +353,9 @@ pub fn meet_target(
             if rate_of(&c) < target {
                 continue;
             }
-            let (s2, c2, late_now) =
-                prune(problem, table, &schedule, candidate, c, target, keep, &late);
+            let (s2, c2, late_now) = prune(
+                problem, table, &schedule, candidate, c, target, keep, &late, memo,
+            );
             timed_out |= late_now;
             if rate_of(&cert) < target || problem.cost(&s2) < problem.cost(&set) - 1e-9 {
                 added = s2
@@ -323,6 +411,7 @@ fn prune(
     target: f64,
     keep: &dyn Fn(&LinkSet) -> bool,
     late: &dyn Fn() -> bool,
+    memo: &Memo,
 ) -> (LinkSet, Certificate, bool) {
     let mut order: Vec<LinkId> = set
         .ids()
@@ -345,7 +434,7 @@ fn prune(
         if !keep(&trial) {
             continue;
         }
-        let c = certify_with(problem, table, schedule, &trial, &Sink::silent());
+        let c = memo.certify(problem, table, schedule, &trial, &Sink::silent());
         if rate_of(&c) >= target {
             set = trial;
             cert = c;

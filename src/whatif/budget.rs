@@ -2,10 +2,9 @@
 //! links are added one at a time by estimated certified-rate gain per cost;
 //! every set is certified and the non-dominated ones form the front.
 
-use crate::certify::certify_with;
 use crate::certify::propagate::Schedule;
 use crate::excitation::ExcitationTable;
-use crate::plan::rate::{best_addition, meet_target, rate_of, with};
+use crate::plan::rate::{best_addition, meet_target_with, rate_of, with};
 use crate::plan::{Options, PlanStatus, plan};
 use crate::problem::{LinkId, LinkSet, Problem};
 use crate::progress::Sink;
@@ -126,7 +125,10 @@ pub fn front(
     let ids: Vec<String> = base.links.iter().map(|c| c.id.clone()).collect();
     let mut set = LinkSet::new(set_of(problem, &ids));
     let schedule = Schedule::new(problem);
-    let mut cert = certify_with(problem, table, &schedule, &set, &options.progress);
+    // One memo for the whole sweep: the chain's sets and the rate stages'
+    // certificates and raised-excitation plans are computed once each.
+    let memo = crate::plan::rate::Memo::default();
+    let mut cert = memo.certify(problem, table, &schedule, &set, &options.progress);
     out.certified_sets += 1;
     let point = |set: &LinkSet, rate: Option<f64>| FrontPoint {
         cost: problem.cost(set),
@@ -151,7 +153,7 @@ pub fn front(
             break;
         };
         let trial = with(&set, l);
-        let full = certify_with(problem, table, &schedule, &trial, &options.progress);
+        let full = memo.certify(problem, table, &schedule, &trial, &options.progress);
         out.certified_sets += 1;
         if rate_of(&full) > rate_of(&cert) {
             set = trial;
@@ -186,7 +188,7 @@ pub fn front(
         let swept: Vec<FrontPoint> = targets
             .par_iter()
             .map(|&t| {
-                let r = meet_target(
+                let r = meet_target_with(
                     problem,
                     table,
                     &start,
@@ -194,6 +196,7 @@ pub fn front(
                     deadline,
                     &|_| true,
                     &Sink::silent(),
+                    &memo,
                 );
                 point(&r.set, r.certified)
             })
