@@ -814,15 +814,7 @@ impl<'a> Instance<'a> {
 /// Per-unit port limits (`max_links`) as numbers, infinity where none;
 /// `None` when no unit has a limit its candidates could exceed.
 pub(crate) fn port_limits(problem: &Problem) -> Option<Vec<f64>> {
-    let mut count = vec![0usize; problem.n()];
-    for l in &problem.links {
-        let (a, b) = match l.ends {
-            crate::problem::Ends::TwoWay(a, b) => (a, b),
-            crate::problem::Ends::OneWay { from, to } => (from, to),
-        };
-        count[a.index()] += 1;
-        count[b.index()] += 1;
-    }
+    let count = problem.links_per_unit((0..problem.links.len() as u32).map(crate::problem::LinkId));
     let limits: Vec<f64> = problem
         .nodes
         .iter()
@@ -831,6 +823,6 @@ pub(crate) fn port_limits(problem: &Problem) -> Option<Vec<f64>> {
     limits
         .iter()
         .zip(&count)
-        .any(|(&m, &c)| (c as f64) > m)
+        .any(|(&m, &c)| f64::from(c) > m)
         .then_some(limits)
 }

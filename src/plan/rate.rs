@@ -116,15 +116,7 @@ pub(crate) fn within_ports(problem: &Problem, set: &LinkSet) -> bool {
     if problem.nodes.iter().all(|n| n.max_links.is_none()) {
         return true;
     }
-    let mut used = vec![0u32; problem.n()];
-    for &l in set.ids() {
-        let (a, b) = match problem.link(l).ends {
-            crate::problem::Ends::TwoWay(a, b) => (a, b),
-            crate::problem::Ends::OneWay { from, to } => (from, to),
-        };
-        used[a.index()] += 1;
-        used[b.index()] += 1;
-    }
+    let used = problem.links_per_unit(set.ids().iter().copied());
     problem
         .nodes
         .iter()
@@ -222,12 +214,9 @@ pub fn meet_target_with(
     memo: &Memo,
 ) -> RatePlan {
     let schedule = Schedule::new(problem);
-    let certify_with = |p: &Problem, t: &ExcitationTable, s: &Schedule, set: &LinkSet, g: &Sink| {
-        memo.certify(p, t, s, set, g)
-    };
     let structural_cost = problem.cost(start);
     let mut set = start.clone();
-    let mut cert = certify_with(problem, table, &schedule, &set, progress);
+    let mut cert = memo.certify(problem, table, &schedule, &set, progress);
     let mut added: Vec<LinkId> = Vec::new();
     let mut rejected: Vec<LinkId> = Vec::new();
     let late = || deadline.is_some_and(|d| Instant::now() >= d);
@@ -242,7 +231,7 @@ pub fn meet_target_with(
         };
         let current = rate_of(&cert);
         let trial = with(&set, l);
-        let full = certify_with(problem, table, &schedule, &trial, progress);
+        let full = memo.certify(problem, table, &schedule, &trial, progress);
         if rate_of(&full) > current {
             set = trial;
             cert = full;
@@ -270,7 +259,7 @@ pub fn meet_target_with(
     if rate_of(&cert) < target && !timed_out {
         // The greedy stalled: is the target reachable at all?
         let all = problem.all_links();
-        let everything = certify_with(problem, table, &schedule, &all, progress);
+        let everything = memo.certify(problem, table, &schedule, &all, progress);
         // All candidates at once can break an in-degree cap: then they are
         // neither a start nor a reachable rate.
         let fits = keep_caps(problem, &all);
@@ -349,7 +338,7 @@ pub fn meet_target_with(
             if !keep(&candidate) {
                 continue;
             }
-            let c = certify_with(problem, table, &schedule, &candidate, progress);
+            let c = memo.certify(problem, table, &schedule, &candidate, progress);
             if rate_of(&c) < target {
                 continue;
             }

@@ -4,7 +4,7 @@
 mod plan_file;
 mod raw;
 mod write;
-pub use write::relative_to;
+pub use write::{quoted as toml_string, relative_to};
 
 pub use plan_file::{PlanFacts, read_link_set, read_plan_file};
 
@@ -155,6 +155,17 @@ pub enum Ends {
         /// The listening end.
         to: NodeId,
     },
+}
+
+impl Ends {
+    /// The two units the link joins: (first end, second end) of a two-way
+    /// link, (talker, listener) of a one-way link.
+    pub fn units(self) -> (NodeId, NodeId) {
+        match self {
+            Ends::TwoWay(a, b) => (a, b),
+            Ends::OneWay { from, to } => (from, to),
+        }
+    }
 }
 
 /// A candidate link.
@@ -337,10 +348,7 @@ impl Problem {
         let mut links = Vec::new();
         let mut origin = Vec::new();
         for (k, link) in self.links.iter().enumerate() {
-            let (a, b) = match link.ends {
-                Ends::TwoWay(a, b) => (a, b),
-                Ends::OneWay { from, to } => (from, to),
-            };
+            let (a, b) = link.ends.units();
             if !keep[a.index()] || !keep[b.index()] || failed.contains(&LinkId(k as u32)) {
                 continue;
             }
@@ -358,6 +366,18 @@ impl Problem {
         }
         let problem = Problem::from_parts(self.path.clone(), self.settings.clone(), nodes, links)?;
         Some((problem, origin))
+    }
+
+    /// How many of `links` each unit takes part in (a link counts once at
+    /// each of its two ends): the radio ports they use.
+    pub fn links_per_unit(&self, links: impl IntoIterator<Item = LinkId>) -> Vec<u32> {
+        let mut used = vec![0u32; self.n()];
+        for l in links {
+            let (a, b) = self.link(l).ends.units();
+            used[a.index()] += 1;
+            used[b.index()] += 1;
+        }
+        used
     }
 
     /// Number of units.

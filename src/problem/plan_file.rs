@@ -106,6 +106,17 @@ fn parse_plan_file(
         .map(|(k, l)| (l.id.as_str(), LinkId(k as u32)))
         .collect();
     let mut seen: HashMap<LinkId, usize> = HashMap::with_capacity(raw.links.len());
+    // A link may be listed once; a repeat names both lines.
+    let once = |seen: &mut HashMap<LinkId, usize>, id: LinkId, line: usize, what: &str| match seen
+        .insert(id, line)
+    {
+        Some(first) => Err(InputError::at(
+            path,
+            line,
+            format!("{what} is listed twice (also on line {first}); expected each link once"),
+        )),
+        None => Ok(()),
+    };
     let mut ids = Vec::with_capacity(raw.links.len());
     for entry in raw.links {
         let offset = entry.get().as_ptr() as usize - text.as_ptr() as usize;
@@ -123,15 +134,7 @@ fn parse_plan_file(
                     ),
                 )
             })?;
-            if let Some(first) = seen.insert(id, line) {
-                return Err(InputError::at(
-                    path,
-                    line,
-                    format!(
-                        "link {name} is listed twice (also on line {first}); expected each link once"
-                    ),
-                ));
-            }
+            once(&mut seen, id, line, &format!("link {name}"))?;
             ids.push(id);
             continue;
         }
@@ -170,17 +173,12 @@ fn parse_plan_file(
                     problem.path.display()
                 ))
             })?;
-        if let Some(first) = seen.insert(id, line) {
-            return Err(InputError::at(
-                path,
-                line,
-                format!(
-                    "{kind} link {} {arrow} {} is listed twice (also on line {first}); expected \
-                     each link once",
-                    link.from, link.to
-                ),
-            ));
-        }
+        once(
+            &mut seen,
+            id,
+            line,
+            &format!("{kind} link {} {arrow} {}", link.from, link.to),
+        )?;
         ids.push(id);
     }
     Ok((LinkSet::new(ids), facts))

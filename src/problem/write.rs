@@ -9,7 +9,7 @@ use std::fmt::Write as _;
 use std::path::{Component, Path, PathBuf};
 
 /// A TOML string literal (basic string, escaped).
-fn quoted(s: &str) -> String {
+pub fn quoted(s: &str) -> String {
     toml::Value::String(s.to_string()).to_string()
 }
 

@@ -27,6 +27,10 @@ pub struct Retirement {
     pub added_cost: Option<f64>,
     /// The new plan (on the remaining units).
     pub plan: Plan,
+    /// The problem the new plan is for: remaining units and links, the
+    /// links in place before marked installed (`retire --write-problem`).
+    #[serde(skip)]
+    pub reduced: Problem,
 }
 
 /// Why units cannot be retired.
@@ -139,5 +143,6 @@ pub fn retire_with(
         removed_with_units,
         added_cost,
         plan,
+        reduced,
     })
 }

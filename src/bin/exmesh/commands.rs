@@ -408,16 +408,7 @@ pub(crate) fn retire(
     let mut files = Outputs::default();
     files.plan_file(what.plan_out.as_deref(), &result.plan)?;
     if let Some(target) = &what.problem_out {
-        let mut before: Vec<exmesh::problem::LinkId> = in_place.ids().to_vec();
-        before.extend(problem.installed_links().ids());
-        let (reduced, _) = problem
-            .without(&units, &failed, &LinkSet::new(before))
-            .ok_or_else(|| {
-                exmesh::InputError::whole(
-                    &problem.path,
-                    "the remaining units' logs do not overlap for a whole window",
-                )
-            })?;
+        let reduced = &result.reduced;
         let mut header = vec![format!(
             "Written by `{}` from {}.",
             command_line(),

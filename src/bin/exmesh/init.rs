@@ -4,7 +4,7 @@
 use crate::output::{FlagError, Outputs};
 use anyhow::Context;
 use exmesh::error::{InputError, read_text};
-use exmesh::problem::{self, Node};
+use exmesh::problem::{self, Node, toml_string as quoted};
 use exmesh::signal::parse_log;
 use exmesh::suggest::{Suggestion, regressor_columns, suggest};
 use std::fmt::Write as _;
@@ -118,11 +118,6 @@ fn positions(path: &Path) -> Result<(Positions, bool), InputError> {
         }
     }
     Ok((out, geo))
-}
-
-/// A TOML string literal.
-fn quoted(s: &str) -> String {
-    toml::Value::String(s.to_string()).to_string()
 }
 
 /// `exmesh init DIR --logs PATTERN [--positions FILE] [--out NAME]`.
