@@ -47,6 +47,7 @@ pub mod analysis;
 pub mod certify;
 pub mod error;
 pub mod excitation;
+pub mod family;
 pub mod limits;
 pub mod plan;
 pub mod problem;

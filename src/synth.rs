@@ -187,6 +187,74 @@ pub enum Class {
     Full,
 }
 
+/// Excitation classes as cumulative shares: a draw below `[0]` is rank 1,
+/// below `[1]` rank 2, below `[2]` full rank, the rest none.
+pub type Mix = [f64; 3];
+
+/// The benchmark's mix: 30 % rank 1, 40 % rank 2, 10 % full rank, 20 %
+/// none.
+pub const STANDARD_MIX: Mix = [0.3, 0.7, 0.8];
+
+/// One benchmark unit's class and signal over 0–200 s sampled every `dt`:
+/// rank-1 units flow or jump along one direction, rank-2 units flow, flow
+/// and jump, or jump along two, full-rank units flow along every axis;
+/// jumps come at the `shared` instants plus a few of their own.
+pub fn unit_signal(
+    rng: &mut Rng,
+    mix: Mix,
+    p: usize,
+    dt: f64,
+    shared: &[f64],
+) -> (Class, UnitSignal) {
+    let draw = rng.uniform();
+    let class = match draw {
+        x if x < mix[0] => Class::Rank1,
+        x if x < mix[1] => Class::Rank2,
+        x if x < mix[2] => Class::Full,
+        _ => Class::None,
+    };
+    let style = rng.below(3);
+    let (flow, jump, own) = match class {
+        Class::None => (vec![], vec![], 0),
+        Class::Rank1 => {
+            let u = rng.unit_vector(p);
+            if style == 0 {
+                (vec![], vec![u], 3)
+            } else {
+                (vec![u], vec![], 0)
+            }
+        }
+        Class::Rank2 => {
+            let (u, v) = (rng.unit_vector(p), rng.unit_vector(p));
+            match style {
+                0 => (vec![u, v], vec![], 0),
+                1 => (vec![u], vec![v], 4),
+                _ => (vec![], vec![u, v], 6),
+            }
+        }
+        Class::Full => ((0..p).map(|r| basis(p, r)).collect(), vec![], 0),
+    };
+    let mut pattern = Pattern::random(flow, jump, rng);
+    if class == Class::None {
+        pattern.amplitude = 0.0;
+    }
+    let jumps = if pattern.jump.is_empty() {
+        vec![]
+    } else {
+        jump_times(rng, shared, own, 0.0, 200.0)
+    };
+    (
+        class,
+        UnitSignal {
+            pattern,
+            dt,
+            start: 0.0,
+            end: 200.0,
+            jumps,
+        },
+    )
+}
+
 /// A two-way benchmark candidate between units a and b, d km apart, at
 /// cost 500 + 300·d rounded to a whole number.
 fn bench_link(nodes: &[Node], a: usize, b: usize, d: f64) -> Link {
@@ -231,50 +299,7 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
     let mut classes = Vec::with_capacity(n);
     for k in 0..n {
         let pos = [rng.range(0.0, side), rng.range(0.0, side)];
-        let draw = rng.uniform();
-        let class = match draw {
-            x if x < 0.3 => Class::Rank1,
-            x if x < 0.7 => Class::Rank2,
-            x if x < 0.8 => Class::Full,
-            _ => Class::None,
-        };
-        let style = rng.below(3);
-        let (flow, jump, own) = match class {
-            Class::None => (vec![], vec![], 0),
-            Class::Rank1 => {
-                let u = rng.unit_vector(p);
-                if style == 0 {
-                    (vec![], vec![u], 3)
-                } else {
-                    (vec![u], vec![], 0)
-                }
-            }
-            Class::Rank2 => {
-                let (u, v) = (rng.unit_vector(p), rng.unit_vector(p));
-                match style {
-                    0 => (vec![u, v], vec![], 0),
-                    1 => (vec![u], vec![v], 4),
-                    _ => (vec![], vec![u, v], 6),
-                }
-            }
-            Class::Full => ((0..p).map(|r| basis(p, r)).collect(), vec![], 0),
-        };
-        let mut pattern = Pattern::random(flow, jump, &mut rng);
-        if class == Class::None {
-            pattern.amplitude = 0.0;
-        }
-        let jumps = if pattern.jump.is_empty() {
-            vec![]
-        } else {
-            jump_times(&mut rng, &shared, own, 0.0, 200.0)
-        };
-        let signal = UnitSignal {
-            pattern,
-            dt,
-            start: 0.0,
-            end: 200.0,
-            jumps,
-        };
+        let (class, signal) = unit_signal(&mut rng, STANDARD_MIX, p, dt, &shared);
         let id = format!("u{k:03}");
         nodes.push(Node {
             log: signal.log(p, &theta, PathBuf::from(format!("{id}.csv"))),

@@ -25,6 +25,7 @@ mod gains;
 mod lanczos;
 pub mod propagate;
 mod schedule;
+mod transitions;
 mod trials;
 
 pub use estimate::window_log_norm;
@@ -362,16 +363,31 @@ fn certify_block(
             problem.settings.window * MULTIPLES[0] as f64
         )
     });
+    // Small blocks: the transition matrices between window ends, once,
+    // when products of them are cheaper than propagating every window.
+    let dense = {
+        let groups: Vec<(f64, Vec<Window>)> = MULTIPLES
+            .iter()
+            .filter(|&&m| fits(problem, m))
+            .map(|&m| {
+                let windows = certificate_windows(problem, m);
+                (trials::chain_length(problem, m, &windows), windows)
+            })
+            .collect();
+        transitions::Transitions::build(system, problem.domain.h0, problem.domain.h1, &groups)
+    };
+    let dense = dense.as_ref();
     // On blocks too large for exact norms, T_c is chosen from Lanczos
-    // estimates (cheap), and only the chosen trial's windows are bounded.
-    let mode = if system.dim() > ESTIMATE_FIRST {
+    // estimates (cheap), and only the chosen trial's windows are bounded
+    // (with segment products every window's bound is cheap).
+    let mode = if system.dim() > ESTIMATE_FIRST && dense.is_none() {
         Mode::Estimate
     } else {
         Mode::Bound
     };
     let first = Trial::new(problem, MULTIPLES[0], None, seed).map(|mut t| {
         t.mode = mode;
-        t.evaluate(system, None, lazy, f64::INFINITY);
+        t.evaluate(system, dense, None, lazy, f64::INFINITY);
         t
     });
     let horizon_start = first
@@ -382,7 +398,7 @@ fn certify_block(
     let ((trials, best, windows_time), (log_h, horizon_time)) = rayon::join(
         || {
             let t1 = std::time::Instant::now();
-            let (trials, best) = longer_trials(problem, system, first, lazy, progress, seed);
+            let (trials, best) = longer_trials(problem, system, dense, first, lazy, progress, seed);
             (trials, best, first_time + t1.elapsed())
         },
         || {
@@ -392,6 +408,9 @@ fn certify_block(
                 end: problem.domain.h1,
                 jumps_through_end: true,
             };
+            if let Some(log) = dense.and_then(transitions::Transitions::horizon_estimate) {
+                return (log, t0.elapsed());
+            }
             let mut steps = Vec::new();
             system.schedule().steps(&w, &mut steps);
             let start = horizon_start
@@ -419,7 +438,7 @@ fn certify_block(
         right: Vec::new(),
         left: Vec::new(),
         log_horizon: log_h,
-        passes: trials.iter().map(Trial::passes).sum::<usize>(),
+        passes: trials.iter().map(Trial::passes).sum::<usize>() + dense.map_or(0, |t| t.passes),
         tests: trials.iter().map(Trial::tests).sum::<usize>(),
         exact: true,
         reason: None,
@@ -442,7 +461,7 @@ fn certify_block(
         let mut t = Trial::new(problem, multiple, None, seed ^ 0xB0_0B)
             .expect("the estimated trial has windows");
         t.accept_floor = estimate.lower();
-        t.evaluate(system, Some(estimate), false, f64::INFINITY);
+        t.evaluate(system, dense, Some(estimate), false, f64::INFINITY);
         block.passes += t.passes();
         block.tests += t.tests();
         block.exact = block.exact && t.tests() == 0;

@@ -2,6 +2,7 @@
 //! the trials that bound their norms and chain them over the horizon
 //! (docs/theory.md §6).
 
+use super::transitions::Transitions;
 use super::*;
 
 /// Bounds for every window, in parallel over fixed chunks. The first
@@ -10,6 +11,7 @@ use super::*;
 /// `seeds[k]`. A window whose bound falls to `accept` (ln) stops early.
 pub(super) fn window_norms(
     system: &ErrorSystem,
+    dense: Option<&Transitions>,
     windows: &[Window],
     seeds: &[u64],
     accept: f64,
@@ -33,6 +35,7 @@ pub(super) fn window_norms(
                 .map(|(w, &seed)| {
                     system.schedule().steps(w, &mut steps);
                     let b = match mode {
+                        Mode::Bound if let Some(b) = dense.and_then(|t| t.norm(w)) => b,
                         Mode::Bound => {
                             bound::window_bound(system, &steps, &x, seed, accept, &mut work)
                         }
@@ -246,6 +249,7 @@ impl Trial {
     pub(super) fn evaluate(
         &mut self,
         system: &ErrorSystem,
+        dense: Option<&Transitions>,
         prev: Option<&Trial>,
         sample: bool,
         stop_above: f64,
@@ -291,6 +295,7 @@ impl Trial {
             };
             for (k, r) in todo.into_iter().zip(window_norms(
                 system,
+                dense,
                 &batch,
                 &seeds,
                 best.max(self.accept_floor),
@@ -365,6 +370,7 @@ pub(super) fn fits(problem: &Problem, multiple: usize) -> bool {
 pub(super) fn longer_trials(
     problem: &Problem,
     system: &ErrorSystem,
+    dense: Option<&Transitions>,
     first: Option<Trial>,
     lazy: bool,
     progress: &Sink,
@@ -391,7 +397,7 @@ pub(super) fn longer_trials(
             break;
         };
         t.mode = trials[0].mode;
-        t.evaluate(system, trials.last(), false, f64::INFINITY);
+        t.evaluate(system, dense, trials.last(), false, f64::INFINITY);
         if first_pending {
             first_pending = false;
             let first = &mut trials[0];
@@ -401,7 +407,7 @@ pub(super) fn longer_trials(
             // no rate (the first trial then has none either).
             let above = t.rate().map_or(0.0, |r| -r * first.length / 1.01);
             if first.lower() <= above {
-                first.evaluate(system, None, false, above);
+                first.evaluate(system, dense, None, false, above);
             }
             if first.complete() && first.rate().is_some() {
                 best = Some(0);
@@ -422,7 +428,7 @@ pub(super) fn longer_trials(
         }
     }
     if first_pending {
-        trials[0].evaluate(system, None, false, f64::INFINITY);
+        trials[0].evaluate(system, dense, None, false, f64::INFINITY);
         if trials[0].rate().is_some() {
             best = Some(0);
         }
