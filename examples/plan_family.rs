@@ -36,6 +36,9 @@ fn one(n: usize, k: usize, limit: f64, mu: f64) {
     let t = Instant::now();
     let plan = plan::plan(&problem, &table, &options);
     let wall = t.elapsed().as_secs_f64();
+    if plan.cost.is_none() {
+        eprintln!("infeasible: {:?}", plan.shortfalls);
+    }
     // Independent check of the plan: every source component excited.
     let ok = plan
         .cost

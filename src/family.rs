@@ -260,6 +260,9 @@ pub fn problem(n: usize, k: usize, mu_fraction: f64) -> Problem {
         classes.push(class);
     }
     let pairs = candidate_pairs(&pos, m.degree);
+    // At most one installed link per unit: installed links are kept, and
+    // more could break a unit's in-degree limit of the gain condition.
+    let mut has_installed = vec![false; n];
     let links: Vec<Link> = pairs
         .iter()
         .map(|&(d, a, b)| {
@@ -270,7 +273,11 @@ pub fn problem(n: usize, k: usize, mu_fraction: f64) -> Problem {
             }
             .round();
             let one_way = rng.uniform() < m.one_way;
-            let installed = rng.uniform() < m.installed;
+            let installed = rng.uniform() < m.installed && !has_installed[a] && !has_installed[b];
+            if installed {
+                has_installed[a] = true;
+                has_installed[b] = true;
+            }
             let (na, nb) = (NodeId(a as u32), NodeId(b as u32));
             let (ends, id) = if one_way && rng.below(2) == 0 {
                 (
@@ -397,6 +404,16 @@ mod tests {
                 table.sources_excited(&problem, &problem.all_links()),
                 "member {k}"
             );
+            let plan = crate::plan::plan(
+                &problem,
+                &table,
+                &crate::plan::Options {
+                    node_limit: Some(0),
+                    progress: crate::progress::Sink::silent(),
+                    ..Default::default()
+                },
+            );
+            assert!(plan.cost.is_some(), "member {k}: {:?}", plan.shortfalls);
             let degree = 2.0 * problem.links.len() as f64 / 30.0;
             assert!(degree >= m.degree - 0.1, "member {k}: degree {degree}");
             let one_way = problem
