@@ -45,7 +45,12 @@ impl Sense {
 pub(crate) type NewRow = (Vec<(Col, f64)>, Sense, f64);
 
 /// A minimisation LP being built.
-pub(crate) struct Lp(Problem);
+pub(crate) struct Lp(
+    Problem,
+    /// The model as written, for `EXMESH_LP_DUMP` (feature `lp-compare`).
+    #[cfg(feature = "lp-compare")]
+    dump::Model,
+);
 
 /// The result of a solve or of an edit of a solved LP.
 pub(crate) enum Outcome {
@@ -79,17 +84,29 @@ impl Outcome {
 impl Lp {
     /// An empty minimisation.
     pub fn minimise() -> Self {
-        Lp(Problem::new(OptimizationDirection::Minimize))
+        Lp(
+            Problem::new(OptimizationDirection::Minimize),
+            #[cfg(feature = "lp-compare")]
+            dump::Model::default(),
+        )
     }
 
     /// Adds a column with objective coefficient `cost` and bounds `lo..=hi`
     /// (`hi` may be infinite).
     pub fn column(&mut self, cost: f64, lo: f64, hi: f64) -> Col {
+        #[cfg(feature = "lp-compare")]
+        self.1.columns.push((cost, lo, hi));
         Col(self.0.add_var(cost, (lo, hi)))
     }
 
     /// Adds a row.
     pub fn row(&mut self, terms: &[(Col, f64)], sense: Sense, rhs: f64) {
+        #[cfg(feature = "lp-compare")]
+        self.1.rows.push((
+            terms.iter().map(|&(c, a)| (c.0.idx(), a)).collect(),
+            sense,
+            rhs,
+        ));
         let expr: LinearExpr = terms.iter().map(|&(c, a)| (c.0, a)).collect();
         self.0.add_constraint(expr, sense.op(), rhs);
     }
@@ -102,10 +119,21 @@ impl Lp {
     /// Solves from scratch, or from `basis` when it fits (a cold solve
     /// otherwise).
     pub fn solve(&self, basis: Option<&Basis>) -> Outcome {
-        Outcome::of(match basis {
+        #[cfg(feature = "lp-compare")]
+        let started = Instant::now();
+        let out = Outcome::of(match basis {
             Some(b) => self.0.solve_warm(&b.0),
             None => self.0.solve(),
-        })
+        });
+        #[cfg(feature = "lp-compare")]
+        if basis.is_none() {
+            let objective = match &out {
+                Outcome::Solved(s) => Some(s.objective()),
+                _ => None,
+            };
+            self.1.keep_if_largest(started.elapsed(), objective);
+        }
+        out
     }
 }
 
@@ -200,5 +228,69 @@ impl Clock {
         self.time += t.elapsed();
         self.solves += solves;
         out
+    }
+}
+
+/// The largest LP solved cold in a run, written for the backend
+/// comparison (`cargo run --release --features lp-compare --example
+/// lp_backends`) when `EXMESH_LP_DUMP` names a file.
+#[cfg(feature = "lp-compare")]
+pub mod dump {
+    use super::Sense;
+    use std::fmt::Write as _;
+    use std::sync::Mutex;
+    use std::time::Duration;
+
+    /// Columns (cost, lower, upper) and rows (terms, sense, rhs).
+    #[derive(Default, Clone)]
+    pub struct Model {
+        /// (cost, lower, upper) per column.
+        pub columns: Vec<(f64, f64, f64)>,
+        /// (terms, sense, rhs) per row.
+        pub rows: Vec<(Vec<(usize, f64)>, Sense, f64)>,
+    }
+
+    static LARGEST: Mutex<usize> = Mutex::new(0);
+
+    impl Model {
+        /// Writes the model (with the vendored solver's time and
+        /// objective) when it is the largest solved cold so far.
+        pub(super) fn keep_if_largest(&self, took: Duration, objective: Option<f64>) {
+            let Ok(path) = std::env::var("EXMESH_LP_DUMP") else {
+                return;
+            };
+            let size: usize =
+                self.columns.len() + self.rows.iter().map(|r| r.0.len()).sum::<usize>();
+            let mut largest = LARGEST.lock().unwrap_or_else(|e| e.into_inner());
+            if size <= *largest {
+                return;
+            }
+            *largest = size;
+            let mut text = String::new();
+            let _ = writeln!(
+                text,
+                "lp {} {} {} {:?}",
+                self.columns.len(),
+                self.rows.len(),
+                took.as_secs_f64(),
+                objective.unwrap_or(f64::NAN)
+            );
+            for (c, lo, hi) in &self.columns {
+                let _ = writeln!(text, "c {c:?} {lo:?} {hi:?}");
+            }
+            for (terms, sense, rhs) in &self.rows {
+                let s = match sense {
+                    Sense::Ge => "ge",
+                    Sense::Le => "le",
+                    Sense::Eq => "eq",
+                };
+                let _ = write!(text, "r {s} {rhs:?} {}", terms.len());
+                for (j, a) in terms {
+                    let _ = write!(text, " {j} {a:?}");
+                }
+                text.push('\n');
+            }
+            let _ = std::fs::write(&path, text);
+        }
     }
 }

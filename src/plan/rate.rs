@@ -164,6 +164,46 @@ impl Memo {
     }
 }
 
+/// A deadline that also refuses steps expected to overrun it: a step (a
+/// certificate, a screening, a raised plan) starts only while the longest
+/// step so far still fits before the deadline, so a command with a time
+/// limit ends within about one step's rounding of it.
+pub(crate) struct Clock {
+    at: Option<Instant>,
+    longest: std::sync::Mutex<std::time::Duration>,
+}
+
+impl Clock {
+    pub(crate) fn new(at: Option<Instant>) -> Clock {
+        Clock {
+            at,
+            longest: std::sync::Mutex::new(std::time::Duration::ZERO),
+        }
+    }
+
+    /// The next step would end past the deadline.
+    pub(crate) fn late(&self) -> bool {
+        let longest = *self
+            .longest
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner);
+        self.at.is_some_and(|d| Instant::now() + longest >= d)
+    }
+
+    /// Runs one step and records its duration.
+    pub(crate) fn step<T>(&self, f: impl FnOnce() -> T) -> T {
+        let t0 = Instant::now();
+        let r = f();
+        let took = t0.elapsed();
+        let mut longest = self
+            .longest
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner);
+        *longest = (*longest).max(took);
+        r
+    }
+}
+
 pub(crate) fn rate_of(c: &Certificate) -> f64 {
     c.rate.unwrap_or(0.0)
 }
@@ -216,22 +256,26 @@ pub fn meet_target_with(
     let schedule = Schedule::new(problem);
     let structural_cost = problem.cost(start);
     let mut set = start.clone();
-    let mut cert = memo.certify(problem, table, &schedule, &set, progress);
+    let clock = Clock::new(deadline);
+    let mut cert = clock.step(|| memo.certify(problem, table, &schedule, &set, progress));
     let mut added: Vec<LinkId> = Vec::new();
     let mut rejected: Vec<LinkId> = Vec::new();
-    let late = || deadline.is_some_and(|d| Instant::now() >= d);
+    let late = || clock.late();
     let mut timed_out = false;
     while rate_of(&cert) < target {
         if late() {
             timed_out = true;
             break;
         }
-        let Some(l) = best_addition(problem, &schedule, &set, &cert, &rejected, None) else {
+        let Some((l, full)) = clock.step(|| {
+            let l = best_addition(problem, &schedule, &set, &cert, &rejected, None)?;
+            let trial = with(&set, l);
+            Some((l, memo.certify(problem, table, &schedule, &trial, progress)))
+        }) else {
             break;
         };
         let current = rate_of(&cert);
         let trial = with(&set, l);
-        let full = memo.certify(problem, table, &schedule, &trial, progress);
         if rate_of(&full) > current {
             set = trial;
             cert = full;
@@ -256,10 +300,13 @@ pub fn meet_target_with(
         progress.done();
     }
     let mut best_reachable = None;
+    if rate_of(&cert) < target && !timed_out && late() {
+        timed_out = true;
+    }
     if rate_of(&cert) < target && !timed_out {
         // The greedy stalled: is the target reachable at all?
         let all = problem.all_links();
-        let everything = memo.certify(problem, table, &schedule, &all, progress);
+        let everything = clock.step(|| memo.certify(problem, table, &schedule, &all, progress));
         // All candidates at once can break an in-degree cap: then they are
         // neither a start nor a reachable rate.
         let fits = keep_caps(problem, &all);
@@ -281,7 +328,7 @@ pub fn meet_target_with(
     }
     if rate_of(&cert) >= target {
         let (s2, c2, late_now) = prune(
-            problem, table, &schedule, set, cert, target, keep, &late, memo,
+            problem, table, &schedule, set, cert, target, keep, &clock, memo,
         );
         timed_out |= late_now;
         set = s2;
@@ -314,7 +361,7 @@ pub fn meet_target_with(
                 .cloned();
             let planned = match known {
                 Some(p) => p,
-                None => {
+                None => clock.step(|| {
                     let stronger = table.with_min_excitation(mu);
                     let options = Options {
                         time_limit: deadline.map(|d| d.saturating_duration_since(Instant::now())),
@@ -332,18 +379,22 @@ pub fn meet_target_with(
                         .unwrap_or_else(std::sync::PoisonError::into_inner)
                         .insert(step, p.clone());
                     p
-                }
+                }),
             };
             let Some(candidate) = planned else { break };
             if !keep(&candidate) {
                 continue;
             }
-            let c = memo.certify(problem, table, &schedule, &candidate, progress);
+            if late() {
+                timed_out = true;
+                break;
+            }
+            let c = clock.step(|| memo.certify(problem, table, &schedule, &candidate, progress));
             if rate_of(&c) < target {
                 continue;
             }
             let (s2, c2, late_now) = prune(
-                problem, table, &schedule, candidate, c, target, keep, &late, memo,
+                problem, table, &schedule, candidate, c, target, keep, &clock, memo,
             );
             timed_out |= late_now;
             if rate_of(&cert) < target || problem.cost(&s2) < problem.cost(&set) - 1e-9 {
@@ -399,7 +450,7 @@ fn prune(
     mut cert: Certificate,
     target: f64,
     keep: &dyn Fn(&LinkSet) -> bool,
-    late: &dyn Fn() -> bool,
+    clock: &Clock,
     memo: &Memo,
 ) -> (LinkSet, Certificate, bool) {
     let mut order: Vec<LinkId> = set
@@ -416,14 +467,14 @@ fn prune(
             .then(a.cmp(&b))
     });
     for l in order {
-        if late() {
+        if clock.late() {
             return (set, cert, true);
         }
         let trial = without(&set, l);
         if !keep(&trial) {
             continue;
         }
-        let c = memo.certify(problem, table, schedule, &trial, &Sink::silent());
+        let c = clock.step(|| memo.certify(problem, table, schedule, &trial, &Sink::silent()));
         if rate_of(&c) >= target {
             set = trial;
             cert = c;

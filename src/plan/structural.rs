@@ -41,7 +41,6 @@ pub(crate) struct Found<'a> {
     pub fixed: f64,
     pub greedy_time: Duration,
     pub search_time: Duration,
-    pub deadline: Option<Instant>,
 }
 
 impl Found<'_> {
@@ -237,7 +236,6 @@ pub(crate) fn run<'a>(
         fixed,
         greedy_time,
         search_time,
-        deadline,
     }))
 }
 

@@ -4,7 +4,7 @@
 
 use crate::certify::propagate::Schedule;
 use crate::excitation::ExcitationTable;
-use crate::plan::rate::{best_addition, meet_target_with, rate_of, with};
+use crate::plan::rate::{Clock, best_addition, meet_target_with, rate_of, with};
 use crate::plan::{Options, PlanStatus, plan};
 use crate::problem::{LinkId, LinkSet, Problem};
 use crate::progress::Sink;
@@ -128,7 +128,8 @@ pub fn front(
     // One memo for the whole sweep: the chain's sets and the rate stages'
     // certificates and raised-excitation plans are computed once each.
     let memo = crate::plan::rate::Memo::default();
-    let mut cert = memo.certify(problem, table, &schedule, &set, &options.progress);
+    let clock = Clock::new(deadline);
+    let mut cert = clock.step(|| memo.certify(problem, table, &schedule, &set, &options.progress));
     out.certified_sets += 1;
     let point = |set: &LinkSet, rate: Option<f64>| FrontPoint {
         cost: problem.cost(set),
@@ -144,16 +145,22 @@ pub fn front(
     let progress = &options.progress;
     let mut step = 0;
     while step < steps && max_cost.is_none_or(|b| base_cost <= b) {
-        if deadline.is_some_and(|d| Instant::now() >= d) {
+        if clock.late() {
             out.timed_out = true;
             break;
         }
         let left = max_cost.map(|b| b - problem.cost(&set));
-        let Some(l) = best_addition(problem, &schedule, &set, &cert, &rejected, left) else {
+        let Some((l, full)) = clock.step(|| {
+            let l = best_addition(problem, &schedule, &set, &cert, &rejected, left)?;
+            let trial = with(&set, l);
+            Some((
+                l,
+                memo.certify(problem, table, &schedule, &trial, &options.progress),
+            ))
+        }) else {
             break;
         };
         let trial = with(&set, l);
-        let full = memo.certify(problem, table, &schedule, &trial, &options.progress);
         out.certified_sets += 1;
         if rate_of(&full) > rate_of(&cert) {
             set = trial;
@@ -185,7 +192,7 @@ pub fn front(
     if !out.timed_out {
         let start = LinkSet::new(set_of(problem, &visited[0].links));
         let targets: Vec<f64> = visited.iter().skip(1).filter_map(|p| p.rate).collect();
-        let swept: Vec<FrontPoint> = targets
+        let swept: Vec<(FrontPoint, bool)> = targets
             .par_iter()
             .map(|&t| {
                 let r = meet_target_with(
@@ -198,11 +205,12 @@ pub fn front(
                     &Sink::silent(),
                     &memo,
                 );
-                point(&r.set, r.certified)
+                (point(&r.set, r.certified), r.timed_out)
             })
             .collect();
         out.certified_sets += swept.len();
-        visited.extend(swept);
+        out.timed_out |= swept.iter().any(|s| s.1);
+        visited.extend(swept.into_iter().map(|s| s.0));
     }
     out.front = non_dominated(visited);
     if let Some(b) = max_cost {
