@@ -820,3 +820,126 @@ fn port_limits_hold_everywhere() {
     let remedy = v["shortfalls"][0]["remedy"].as_str().unwrap();
     assert!(remedy.contains("c (max_links = 0"), "{remedy}");
 }
+
+/// Brute force over the non-installed links (installed ones always in,
+/// at cost 0) with every unit's in-degree within the gain condition's cap.
+fn brute_force_with_installed(problem: &Problem, table: &ExcitationTable) -> Option<f64> {
+    let caps = exmesh::certify::degree_caps(problem);
+    let installed: Vec<usize> = (0..problem.links.len())
+        .filter(|&k| problem.links[k].installed)
+        .collect();
+    let free: Vec<usize> = (0..problem.links.len())
+        .filter(|&k| !problem.links[k].installed)
+        .collect();
+    let mut best: Option<f64> = None;
+    for mask in 0u32..(1 << free.len()) {
+        let mut chosen = installed.clone();
+        chosen.extend(
+            (0..free.len())
+                .filter(|&i| mask & (1 << i) != 0)
+                .map(|i| free[i]),
+        );
+        let cost: f64 = (0..free.len())
+            .filter(|&i| mask & (1 << i) != 0)
+            .map(|i| problem.links[free[i]].cost)
+            .sum();
+        if best.is_some_and(|b| cost >= b) {
+            continue;
+        }
+        let set = LinkSet::new(chosen.iter().map(|&k| LinkId(k as u32)).collect());
+        let degrees = exmesh::certify::in_degrees(problem, &set);
+        if degrees.iter().zip(&caps).all(|(&d, &c)| d <= c + 1e-9) && holds(problem, table, &chosen)
+        {
+            best = Some(cost);
+        }
+    }
+    best
+}
+
+/// The benchmark family's twelve designs at 5 units (every layout, degree,
+/// one-way share, p, mix, cost model, installed links) against brute force
+/// over every link subset (invented benchmark data; the reference is the
+/// exhaustive search).
+#[test]
+fn family_members_match_brute_force() {
+    let mut feasible = 0;
+    for k in 0..12 {
+        let problem = exmesh::family::problem(5, k, 0.03);
+        assert!(problem.links.len() <= 10, "member {k}");
+        let table = ExcitationTable::build(&problem);
+        let got = plan(&problem, &table);
+        match brute_force_with_installed(&problem, &table) {
+            None => assert_eq!(got.status, PlanStatus::Infeasible, "member {k}"),
+            Some(best) => {
+                assert_eq!(got.status, PlanStatus::Optimal, "member {k}");
+                let cost = got.cost.unwrap();
+                assert!(
+                    (cost - best).abs() < 1e-6,
+                    "member {k}: plan {cost} vs brute force {best}"
+                );
+                feasible += 1;
+            }
+        }
+    }
+    assert!(feasible >= 8, "only {feasible} feasible members");
+}
+
+/// Time limits on generated networks (family members of 40 units, tiny to
+/// moderate limits, with and without a target rate): whatever the limit
+/// stops, the answer is valid by an independent check — the chosen links
+/// excite every source component, the cost is theirs, the bound is below
+/// it and the gap agrees; a met target is certified. Validity only, no
+/// timing.
+#[test]
+fn family_plans_are_valid_under_time_limits() {
+    for (k, limit, target) in [
+        (0usize, 0.02, None),
+        (4, 0.3, None),
+        (7, 1.0, Some(0.02)),
+        (9, 0.2, Some(0.05)),
+    ] {
+        let base = exmesh::family::problem(40, k, 0.03);
+        let mut settings = base.settings.clone();
+        settings.target_rate = target;
+        let problem =
+            Problem::from_parts(base.path.clone(), settings, base.nodes, base.links).unwrap();
+        let table = ExcitationTable::build(&problem);
+        let options = Options {
+            time_limit: Some(std::time::Duration::from_secs_f64(limit)),
+            progress: exmesh::progress::Sink::silent(),
+            ..Default::default()
+        };
+        let p = plan::plan(&problem, &table, &options);
+        let Some(cost) = p.cost else {
+            assert!(
+                matches!(p.status, PlanStatus::TimeLimit | PlanStatus::Infeasible),
+                "member {k}: {:?}",
+                p.status
+            );
+            continue;
+        };
+        let chosen = chosen_indices(&problem, &p);
+        assert!(holds(&problem, &table, &chosen), "member {k}");
+        let direct: f64 = chosen
+            .iter()
+            .filter(|&&c| !problem.links[c].installed)
+            .map(|&c| problem.links[c].cost)
+            .sum();
+        assert!(
+            (direct - cost).abs() < 1e-6,
+            "member {k}: {direct} vs {cost}"
+        );
+        let lower = p.lower_bound.unwrap();
+        assert!(lower <= cost + 1e-9, "member {k}");
+        let gap = p.gap.unwrap();
+        assert!(
+            (gap - (cost - lower) / cost).abs() < 1e-9,
+            "member {k}: gap {gap}"
+        );
+        if let Some(r) = &p.rate
+            && r.met
+        {
+            assert!(r.certified.unwrap() >= r.target, "member {k}");
+        }
+    }
+}
