@@ -8,9 +8,8 @@
 //! with its own seed, so every twelve members cover each level at least
 //! three times. Invented data for benchmarks, never a reference.
 
-use crate::problem::{Ends, Gains, Link, Node, NodeId, Problem, Settings};
-use crate::signal::WindowKind;
-use crate::synth::{Class, Mix, Rng, STANDARD_MIX, unit_signal};
+use crate::problem::{Ends, Link, Node, NodeId, Problem};
+use crate::synth::{Mix, Rng, STANDARD_MIX, join, unit_signal, with_required_excitation};
 use std::path::PathBuf;
 
 /// Where the units stand.
@@ -170,20 +169,6 @@ fn pairs_within(pos: &[[f64; 2]], r: f64) -> Vec<(f64, usize, usize)> {
     out
 }
 
-fn find(piece: &mut [usize], v: usize) -> usize {
-    let mut r = v;
-    while piece[r] != r {
-        r = piece[r];
-    }
-    let mut x = v;
-    while piece[x] != r {
-        let next = piece[x];
-        piece[x] = r;
-        x = next;
-    }
-    r
-}
-
 /// The candidate pairs: the `degree·n/2` closest pairs, then the shortest
 /// pairs joining the pieces left (Kruskal over growing radii), so that the
 /// two-way candidates alone connect every unit.
@@ -210,18 +195,14 @@ fn candidate_pairs(pos: &[[f64; 2]], degree: f64) -> Vec<(f64, usize, usize)> {
     let mut piece: Vec<usize> = (0..n).collect();
     let mut pieces = n;
     for &(_, a, b) in &near {
-        let (ra, rb) = (find(&mut piece, a), find(&mut piece, b));
-        if ra != rb {
-            piece[ra.max(rb)] = ra.min(rb);
+        if join(&mut piece, a, b) {
             pieces -= 1;
         }
     }
     while pieces > 1 {
         r *= 1.5;
         for (d, a, b) in pairs_within(pos, r) {
-            let (ra, rb) = (find(&mut piece, a), find(&mut piece, b));
-            if ra != rb {
-                piece[ra.max(rb)] = ra.min(rb);
+            if join(&mut piece, a, b) {
                 pieces -= 1;
                 near.push((d, a, b));
             }
@@ -309,36 +290,18 @@ pub fn problem(n: usize, k: usize, mu_fraction: f64) -> Problem {
     // The pieces of the two-way candidates: a one-way link on a joining
     // pair would leave a unit that only talks as a source of its own.
     let links = join_two_way(links, &pos, &nodes);
-    let mut settings = Settings {
-        name: format!("family n={n} member={k} ({})", describe(k)),
-        parameters: p,
-        window: 20.0,
-        window_kind: WindowKind::Time,
-        stride: None,
-        min_excitation: None,
-        target_rate: None,
-        gains: Gains::default(),
-    };
-    let probe = Problem::from_parts(
-        PathBuf::from("family.toml"),
-        settings.clone(),
-        nodes.clone(),
-        vec![],
+    with_required_excitation(
+        format!("family n={n} member={k} ({})", describe(k)),
+        "family.toml",
+        p,
+        (nodes, &classes, links),
+        mu_fraction,
+        // No full-rank unit: a quarter of the pooled level of all units.
+        |table| {
+            let all: Vec<NodeId> = (0..n as u32).map(NodeId).collect();
+            table.level(&all).value / 4.0
+        },
     )
-    .expect("family logs overlap");
-    let table = crate::ExcitationTable::build(&probe);
-    let mut full: Vec<f64> = (0..n)
-        .filter(|&j| classes[j] == Class::Full)
-        .map(|j| table.level(&[NodeId(j as u32)]).value)
-        .collect();
-    full.sort_by(f64::total_cmp);
-    let reference = full.get(full.len() / 2).copied().unwrap_or_else(|| {
-        let all: Vec<NodeId> = (0..n as u32).map(NodeId).collect();
-        table.level(&all).value / 4.0
-    });
-    settings.min_excitation = Some(mu_fraction * reference);
-    Problem::from_parts(PathBuf::from("family.toml"), settings, nodes, links)
-        .expect("family logs overlap")
 }
 
 /// Turns one-way links back into two-way ones (cheapest first) until the
@@ -348,15 +311,6 @@ fn join_two_way(mut links: Vec<Link>, pos: &[[f64; 2]], nodes: &[Node]) -> Vec<L
     let n = pos.len();
     let mut piece: Vec<usize> = (0..n).collect();
     let mut pieces = n;
-    let join = |piece: &mut Vec<usize>, a: usize, b: usize| {
-        let (ra, rb) = (find(piece, a), find(piece, b));
-        if ra != rb {
-            piece[ra.max(rb)] = ra.min(rb);
-            true
-        } else {
-            false
-        }
-    };
     for l in &links {
         if let Ends::TwoWay(a, b) = l.ends
             && join(&mut piece, a.index(), b.index())

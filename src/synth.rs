@@ -326,21 +326,12 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
     // until the candidate graph is connected.
     loop {
         let mut piece: Vec<usize> = (0..n).collect();
-        fn find(piece: &mut [usize], v: usize) -> usize {
-            let mut r = v;
-            while piece[r] != r {
-                r = piece[r];
-            }
-            piece[v] = r;
-            r
-        }
         for l in &links {
             if let Ends::TwoWay(a, b) = l.ends {
-                let (ra, rb) = (find(&mut piece, a.index()), find(&mut piece, b.index()));
-                piece[ra.max(rb)] = ra.min(rb);
+                join(&mut piece, a.index(), b.index());
             }
         }
-        let roots: Vec<usize> = (0..n).map(|v| find(&mut piece, v)).collect();
+        let roots: Vec<usize> = (0..n).map(|v| root(&mut piece, v)).collect();
         if roots.iter().all(|&r| r == roots[0]) {
             break;
         }
@@ -357,8 +348,55 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
         let (d, a, b) = best.expect("two pieces have a closest pair");
         links.push(bench_link(&nodes, a, b, d));
     }
+    with_required_excitation(
+        format!("benchmark n={n} seed={seed}"),
+        "bench.toml",
+        p,
+        (nodes, &classes, links),
+        mu_fraction,
+        |_| 1.0,
+    )
+}
+
+/// Root of v's piece in a union–find forest (paths compressed on the way).
+pub(crate) fn root(piece: &mut [usize], v: usize) -> usize {
+    let mut r = v;
+    while piece[r] != r {
+        r = piece[r];
+    }
+    let mut x = v;
+    while piece[x] != r {
+        let next = piece[x];
+        piece[x] = r;
+        x = next;
+    }
+    r
+}
+
+/// Joins the pieces of a and b (the smaller root stays the root); true when
+/// they were apart.
+pub(crate) fn join(piece: &mut [usize], a: usize, b: usize) -> bool {
+    let (ra, rb) = (root(piece, a), root(piece, b));
+    piece[ra.max(rb)] = ra.min(rb);
+    ra != rb
+}
+
+/// A synthetic problem (20 s time windows, default gains) with μ_req set
+/// to `mu_fraction` times the median level of the full-rank units, or
+/// `fallback(table)` times it when there are none.
+///
+/// # Panics
+/// When the logs do not overlap (never for the generators here).
+pub(crate) fn with_required_excitation(
+    name: String,
+    file: &str,
+    p: usize,
+    (nodes, classes, links): (Vec<Node>, &[Class], Vec<Link>),
+    mu_fraction: f64,
+    fallback: impl FnOnce(&crate::ExcitationTable) -> f64,
+) -> Problem {
     let mut settings = Settings {
-        name: format!("benchmark n={n} seed={seed}"),
+        name,
         parameters: p,
         window: 20.0,
         window_kind: WindowKind::Time,
@@ -367,23 +405,21 @@ pub fn bench_problem_sized(n: usize, seed: u64, mu_fraction: f64, dt: f64) -> Pr
         target_rate: None,
         gains: Gains::default(),
     };
-    let probe = Problem::from_parts(
-        PathBuf::from("bench.toml"),
-        settings.clone(),
-        nodes.clone(),
-        vec![],
-    )
-    .expect("benchmark logs overlap");
+    let probe = Problem::from_parts(PathBuf::from(file), settings.clone(), nodes.clone(), vec![])
+        .expect("synthetic logs overlap");
     let table = crate::ExcitationTable::build(&probe);
-    let mut full: Vec<f64> = (0..n)
+    let mut full: Vec<f64> = (0..nodes.len())
         .filter(|&k| classes[k] == Class::Full)
         .map(|k| table.level(&[NodeId(k as u32)]).value)
         .collect();
     full.sort_by(f64::total_cmp);
-    let reference = full.get(full.len() / 2).copied().unwrap_or(1.0);
+    let reference = match full.get(full.len() / 2) {
+        Some(&r) => r,
+        None => fallback(&table),
+    };
     settings.min_excitation = Some(mu_fraction * reference);
-    Problem::from_parts(PathBuf::from("bench.toml"), settings, nodes, links)
-        .expect("benchmark logs overlap")
+    Problem::from_parts(PathBuf::from(file), settings, nodes, links)
+        .expect("synthetic logs overlap")
 }
 
 /// The certificate benchmark: [`bench_problem_sized`] with a 10 s stride and

@@ -267,15 +267,15 @@ pub fn meet_target_with(
             timed_out = true;
             break;
         }
-        let Some((l, full)) = clock.step(|| {
+        let Some((l, trial, full)) = clock.step(|| {
             let l = best_addition(problem, &schedule, &set, &cert, &rejected, None)?;
             let trial = with(&set, l);
-            Some((l, memo.certify(problem, table, &schedule, &trial, progress)))
+            let full = memo.certify(problem, table, &schedule, &trial, progress);
+            Some((l, trial, full))
         }) else {
             break;
         };
         let current = rate_of(&cert);
-        let trial = with(&set, l);
         if rate_of(&full) > current {
             set = trial;
             cert = full;

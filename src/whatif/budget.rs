@@ -150,17 +150,14 @@ pub fn front(
             break;
         }
         let left = max_cost.map(|b| b - problem.cost(&set));
-        let Some((l, full)) = clock.step(|| {
+        let Some((l, trial, full)) = clock.step(|| {
             let l = best_addition(problem, &schedule, &set, &cert, &rejected, left)?;
             let trial = with(&set, l);
-            Some((
-                l,
-                memo.certify(problem, table, &schedule, &trial, &options.progress),
-            ))
+            let full = memo.certify(problem, table, &schedule, &trial, &options.progress);
+            Some((l, trial, full))
         }) else {
             break;
         };
-        let trial = with(&set, l);
         out.certified_sets += 1;
         if rate_of(&full) > rate_of(&cert) {
             set = trial;
